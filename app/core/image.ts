@@ -1,0 +1,58 @@
+// Conversions between generator tensors and 8-bit images.
+import { encode } from 'fast-png';
+
+export interface RgbaImage {
+  width: number;
+  height: number;
+  /** RGBA, 8 bits per channel, row-major. */
+  data: Uint8ClampedArray;
+}
+
+/**
+ * One image of a float batch in [lo, hi] to RGBA8. `layout` says where channels are.
+ * Rounds to nearest and clamps, the common convention for GAN outputs (x·127.5 + 128, truncated).
+ */
+export function tensorToRgba(
+  values: Float32Array,
+  index: number,
+  height: number,
+  width: number,
+  layout: 'NCHW' | 'NHWC' = 'NCHW',
+  range: [number, number] = [-1, 1],
+): RgbaImage {
+  const plane = height * width;
+  const base = index * plane * 3;
+  const out = new Uint8ClampedArray(plane * 4);
+  const scale = 255 / (range[1] - range[0]);
+  const lo = range[0];
+  for (let p = 0; p < plane; p++) {
+    for (let ch = 0; ch < 3; ch++) {
+      const v = layout === 'NCHW' ? values[base + ch * plane + p] : values[base + p * 3 + ch];
+      out[p * 4 + ch] = Math.floor((v - lo) * scale + 0.5); // Uint8ClampedArray clamps
+    }
+    out[p * 4 + 3] = 255;
+  }
+  return { width, height, data: out };
+}
+
+export function encodePng(image: RgbaImage): Uint8Array {
+  return encode({ width: image.width, height: image.height, data: image.data, channels: 4, depth: 8 });
+}
+
+/** Places images in a grid (for contact sheets and previews). */
+export function tileImages(images: RgbaImage[], columns: number, gap = 2, background = 24): RgbaImage {
+  if (images.length === 0) throw new RangeError('tileImages: no images');
+  const w = images[0].width;
+  const h = images[0].height;
+  const rows = Math.ceil(images.length / columns);
+  const width = columns * w + (columns + 1) * gap;
+  const height = rows * h + (rows + 1) * gap;
+  const data = new Uint8ClampedArray(width * height * 4).fill(background);
+  for (let i = 3; i < data.length; i += 4) data[i] = 255;
+  images.forEach((img, k) => {
+    const ox = gap + (k % columns) * (w + gap);
+    const oy = gap + Math.floor(k / columns) * (h + gap);
+    for (let y = 0; y < h; y++) data.set(img.data.subarray(y * w * 4, (y + 1) * w * 4), ((oy + y) * width + ox) * 4);
+  });
+  return { width, height, data };
+}

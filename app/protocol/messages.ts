@@ -1,0 +1,183 @@
+// The one message schema shared by renderer, engine host, web shell, Electron main and CLI.
+// Every boundary validates what it receives with these schemas. Binary payloads (images) travel
+// as Uint8Array values: transferred over MessagePorts, as binary frames over WebSockets (see
+// frames.ts), never as base64 text.
+import { z } from 'zod';
+
+export const PROTOCOL_VERSION = 1;
+
+export const errorDataSchema = z.object({
+  code: z.string(),
+  message: z.string(),
+  file: z.string().optional(),
+});
+export type WireError = z.infer<typeof errorDataSchema>;
+
+const bytes = z.custom<Uint8Array>((v) => v instanceof Uint8Array, { message: "expected binary bytes (Uint8Array)" });
+const seed = z.number().int().min(0).max(0xffffffff);
+const psi = z.number().min(0).max(2);
+const strength = z.number().finite().min(-50).max(50);
+
+export const editSchema = z.object({ direction: z.string().min(1), strength });
+export type Edit = z.infer<typeof editSchema>;
+
+/** Request parameters by method. Adding a method here is the only way to add a channel. */
+export const requestSchemas = {
+  'engine.hello': z.object({}),
+  'model.openDemo': z.object({}),
+  'model.open': z.object({ path: z.string().min(1), mappingPath: z.string().min(1).optional() }),
+  'directions.open': z.object({ path: z.string().min(1) }),
+  'preview.render': z.object({ seed, psi, edits: z.array(editSchema).max(64) }),
+  'grid.render': z.object({ seeds: z.array(seed).min(1).max(256), psi }),
+  'job.cancel': z.object({ jobId: z.number().int() }),
+} as const;
+export type Method = keyof typeof requestSchemas;
+export type Params<M extends Method> = z.infer<(typeof requestSchemas)[M]>;
+
+export const attributeInfoSchema = z.object({ name: z.string(), unit: z.string().optional(), description: z.string().optional() });
+
+export const modelInfoSchema = z.object({
+  id: z.string(),
+  name: z.string(),
+  description: z.string(),
+  fingerprint: z.string().regex(/^[0-9a-f]{64}$/),
+  files: z.array(z.string()),
+  space: z.enum(['z', 'w', 'w+']),
+  latentSize: z.number().int().positive(),
+  layers: z.number().int().positive(),
+  hasMapping: z.boolean(),
+  width: z.number().int().positive(),
+  height: z.number().int().positive(),
+  defaultPsi: z.number(),
+  attributes: z.array(attributeInfoSchema),
+  assumptions: z.array(z.string()),
+  demoDirections: z.string().nullable(),
+  caution: z.string().nullable(),
+});
+export type ModelInfo = z.infer<typeof modelInfoSchema>;
+
+export const directionInfoSchema = z.object({
+  id: z.string(),
+  name: z.string(),
+  target: z.string().nullable(),
+  layers: z.tuple([z.number().int(), z.number().int()]).nullable(),
+  /** Std of the latent projection onto the direction over random samples: one strength unit. */
+  sigma: z.number().positive(),
+  notes: z.string(),
+  method: z.string(),
+});
+export type DirectionInfo = z.infer<typeof directionInfoSchema>;
+
+export const imageSchema = z.object({ width: z.number().int(), height: z.number().int(), rgba: bytes });
+export type WireImage = z.infer<typeof imageSchema>;
+
+export const resultSchemas = {
+  'engine.hello': z.object({ protocol: z.number(), engine: z.string(), threads: z.number(), model: modelInfoSchema.nullable() }),
+  'model.openDemo': modelInfoSchema,
+  'model.open': modelInfoSchema,
+  'directions.open': z.object({ file: z.string(), directions: z.array(directionInfoSchema) }),
+  'preview.render': z.union([
+    z.object({ superseded: z.literal(true) }),
+    z.object({ superseded: z.literal(false), seed, image: imageSchema, attributes: z.array(z.number()), millis: z.number() }),
+  ]),
+  'grid.render': z.union([
+    z.object({ cancelled: z.literal(true) }),
+    z.object({ cancelled: z.literal(false), images: z.array(z.object({ seed, image: imageSchema })) }),
+  ]),
+  'job.cancel': z.object({ cancelled: z.boolean() }),
+} satisfies Record<Method, z.ZodType>;
+export type Result<M extends Method> = z.infer<(typeof resultSchemas)[M]>;
+
+export const requestSchema = z.object({
+  v: z.literal(PROTOCOL_VERSION),
+  type: z.literal('request'),
+  id: z.number().int().nonnegative(),
+  method: z.enum(Object.keys(requestSchemas) as [Method, ...Method[]]),
+  params: z.unknown(),
+});
+export type RequestMessage = { v: 1; type: 'request'; id: number; method: Method; params: unknown };
+
+export const responseSchema = z.discriminatedUnion('ok', [
+  z.object({ v: z.literal(PROTOCOL_VERSION), type: z.literal('response'), id: z.number().int(), ok: z.literal(true), result: z.unknown() }),
+  z.object({ v: z.literal(PROTOCOL_VERSION), type: z.literal('response'), id: z.number().int(), ok: z.literal(false), error: errorDataSchema }),
+]);
+export type ResponseMessage = z.infer<typeof responseSchema>;
+
+export const eventSchemas = {
+  'job.progress': z.object({ jobId: z.number().int(), requestId: z.number().int(), done: z.number().int(), total: z.number().int(), label: z.string() }),
+  'engine.ready': z.object({ engine: z.string(), restarted: z.boolean() }),
+  'engine.stopped': z.object({ reason: z.string(), code: z.number().nullable(), restarting: z.boolean() }),
+  'model.changed': z.object({ model: modelInfoSchema }),
+} as const;
+export type EventName = keyof typeof eventSchemas;
+export type EventData<E extends EventName> = z.infer<(typeof eventSchemas)[E]>;
+
+export const eventSchema = z.object({
+  v: z.literal(PROTOCOL_VERSION),
+  type: z.literal('event'),
+  event: z.enum(Object.keys(eventSchemas) as [EventName, ...EventName[]]),
+  data: z.unknown(),
+});
+export type EventMessage = { v: 1; type: 'event'; event: EventName; data: unknown };
+
+export type Message = RequestMessage | ResponseMessage | EventMessage;
+
+export class ProtocolError extends Error {
+  readonly code = 'protocol';
+}
+
+function describe(issues: z.core.$ZodIssue[]): string {
+  return issues
+    .slice(0, 4)
+    .map((i) => `${i.path.length ? i.path.join('.') : '(message)'}: ${i.message}`)
+    .join('; ');
+}
+
+/** Validates any incoming message and, for requests, its parameters. Throws ProtocolError. */
+export function parseMessage(raw: unknown): Message {
+  if (typeof raw !== 'object' || raw === null) throw new ProtocolError(`expected a message object, got ${raw === null ? 'null' : typeof raw}`);
+  const type = (raw as { type?: unknown }).type;
+  if (type === 'request') {
+    const r = requestSchema.safeParse(raw);
+    if (!r.success) throw new ProtocolError(`bad request: ${describe(r.error.issues)}`);
+    const p = requestSchemas[r.data.method].safeParse(r.data.params);
+    if (!p.success) throw new ProtocolError(`bad parameters for ${r.data.method}: ${describe(p.error.issues)}`);
+    return { ...r.data, params: p.data } as RequestMessage;
+  }
+  if (type === 'response') {
+    const r = responseSchema.safeParse(raw);
+    if (!r.success) throw new ProtocolError(`bad response: ${describe(r.error.issues)}`);
+    return r.data;
+  }
+  if (type === 'event') {
+    const r = eventSchema.safeParse(raw);
+    if (!r.success) throw new ProtocolError(`bad event: ${describe(r.error.issues)}`);
+    const d = eventSchemas[r.data.event].safeParse(r.data.data);
+    if (!d.success) throw new ProtocolError(`bad data for event ${r.data.event}: ${describe(d.error.issues)}`);
+    return { ...r.data, data: d.data } as EventMessage;
+  }
+  throw new ProtocolError(`unknown message type ${JSON.stringify(type)} (expected request, response or event)`);
+}
+
+export function parseResult<M extends Method>(method: M, raw: unknown): Result<M> {
+  const r = resultSchemas[method].safeParse(raw);
+  if (!r.success) throw new ProtocolError(`bad result for ${method}: ${describe(r.error.issues)}`);
+  return r.data as Result<M>;
+}
+
+export function request<M extends Method>(id: number, method: M, params: Params<M>): RequestMessage {
+  return { v: PROTOCOL_VERSION, type: 'request', id, method, params };
+}
+
+export function event<E extends EventName>(name: E, data: EventData<E>): EventMessage {
+  return { v: PROTOCOL_VERSION, type: 'event', event: name, data };
+}
+
+/** Buffers to transfer (not copy) when posting a message over a MessagePort. */
+export function transferables(value: unknown, out: ArrayBuffer[] = []): ArrayBuffer[] {
+  if (value instanceof Uint8Array) {
+    if (value.buffer instanceof ArrayBuffer && !out.includes(value.buffer)) out.push(value.buffer);
+  } else if (Array.isArray(value)) for (const v of value) transferables(v, out);
+  else if (value && typeof value === 'object') for (const v of Object.values(value)) transferables(v, out);
+  return out;
+}
