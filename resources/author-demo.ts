@@ -170,6 +170,7 @@ export function authorDemo(outDir: string): { files: string[] } {
     synthesis: { file: 'sigil-synthesis.onnx', latentInput: 'ws', space: 'w+', layers: STAGES.length, latentSize: D, output: 'image', layout: 'NCHW', range: [-1, 1], attributesOutput: 'attributes' },
     mapping: { file: 'sigil-mapping.onnx', input: 'z', output: 'w', zSize: Z },
     truncation: { centre: Array.from(Float32Array.from(mean)), defaultPsi: 0.7 },
+    directions: 'sigil-directions.npy',
     attributes: ATTRIBUTES,
     layerNotes: STAGES.map((s, i) => ({ layer: i, name: s.name, drives: [...s.factors] })),
   };

@@ -1,0 +1,233 @@
+// The web shell: serves the built renderer on 127.0.0.1 only and bridges a WebSocket to an
+// engine host in a child process. A random token, required on the socket and checked in
+// constant time, keeps other local pages and users out; the socket also checks Origin.
+import { createServer, type IncomingMessage, type ServerResponse } from 'node:http';
+import { fork, type ChildProcess } from 'node:child_process';
+import { randomBytes, timingSafeEqual } from 'node:crypto';
+import { existsSync, readFileSync, statSync } from 'node:fs';
+import { dirname, extname, join, normalize, resolve, sep } from 'node:path';
+import { fileURLToPath } from 'node:url';
+import { WebSocketServer, type WebSocket } from 'ws';
+import { decodeFrame, encodeFrame } from '../protocol/frames.ts';
+import { PROTOCOL_VERSION, event, parseMessage, type Message, type ResponseMessage } from '../protocol/messages.ts';
+
+const here = dirname(fileURLToPath(import.meta.url));
+const root = resolve(here, '..', '..');
+const MIME: Record<string, string> = { '.html': 'text/html; charset=utf-8', '.js': 'text/javascript', '.css': 'text/css', '.svg': 'image/svg+xml', '.png': 'image/png', '.json': 'application/json', '.woff2': 'font/woff2' };
+const RESTART_DELAYS = [200, 1000, 3000, 10000];
+
+export interface WebShellOptions {
+  port?: number;
+  rendererDir?: string;
+  threads?: number;
+  /** Enables POST /__test/kill-engine (end-to-end tests only). */
+  testHooks?: boolean;
+  quiet?: boolean;
+}
+
+export interface WebShell {
+  url: string;
+  token: string;
+  close(): Promise<void>;
+  killEngine(): void;
+}
+
+interface Client {
+  ws: WebSocket;
+  id: number;
+}
+
+export async function startWebShell(options: WebShellOptions = {}): Promise<WebShell> {
+  const rendererDir = resolve(options.rendererDir ?? join(root, 'out', 'renderer'));
+  if (!existsSync(join(rendererDir, 'index.html'))) throw new Error(`${rendererDir}: no built renderer (run npm run build first)`);
+  const token = randomBytes(24).toString('hex');
+  const log = (s: string) => !options.quiet && process.stderr.write(`[web shell] ${s}\n`);
+
+  // Engine child and request routing: client request ids are remapped to host-wide ids.
+  let child: ChildProcess | null = null;
+  let restarts = 0;
+  let closing = false;
+  let everStarted = false;
+  let nextId = 1;
+  const routes = new Map<number, { client: Client; id: number }>();
+  const clients = new Set<Client>();
+  let nextClient = 1;
+
+  const send = (client: Client, m: Message) => {
+    if (client.ws.readyState === client.ws.OPEN) client.ws.send(encodeFrame(m));
+  };
+  const broadcast = (m: Message) => clients.forEach((c) => send(c, m));
+
+  const startEngine = () => {
+    const restarted = everStarted;
+    everStarted = true;
+    const c = fork(join(root, 'app', 'engine', 'child-entry.ts'), [], {
+      execArgv: ['--import', 'tsx'],
+      serialization: 'advanced',
+      env: { ...process.env, ...(options.threads ? { PLUMBLINE_THREADS: String(options.threads) } : {}) },
+      stdio: ['ignore', 'inherit', 'inherit', 'ipc'],
+    });
+    child = c;
+    c.on('message', (raw) => {
+      const m = raw as Message;
+      if (m?.type === 'response') {
+        const route = routes.get(m.id);
+        if (!route) return;
+        routes.delete(m.id);
+        send(route.client, { ...m, id: route.id });
+      } else if (m?.type === 'event') {
+        if (m.event === 'job.progress') {
+          const data = m.data as { requestId: number };
+          const route = routes.get(data.requestId);
+          if (route) send(route.client, { ...m, data: { ...data, requestId: route.id } });
+        } else if (m.event === 'engine.ready') {
+          restarts = 0;
+          broadcast(event('engine.ready', { engine: (m.data as { engine: string }).engine, restarted }));
+        } else broadcast(m);
+      }
+    });
+    c.on('exit', (code, signal) => {
+      if (child === c) child = null;
+      // Every request in flight fails with a typed error; clients then recover.
+      for (const [hostId, route] of routes) {
+        send(route.client, { v: PROTOCOL_VERSION, type: 'response', id: route.id, ok: false, error: { code: 'engine-stopped', message: `the engine stopped (${signal ?? `exit code ${code}`}) before answering` } });
+        routes.delete(hostId);
+      }
+      if (closing) return;
+      const delay = RESTART_DELAYS[Math.min(restarts, RESTART_DELAYS.length - 1)];
+      restarts++;
+      log(`engine stopped (${signal ?? code}); restarting in ${delay} ms`);
+      broadcast(event('engine.stopped', { reason: signal ? `killed by ${signal}` : `exited with code ${code}`, code: code ?? null, restarting: true }));
+      setTimeout(() => !closing && startEngine(), delay);
+    });
+  };
+  startEngine();
+
+  const csp = (port: number) =>
+    [
+      "default-src 'none'",
+      "script-src 'self'",
+      "style-src 'self' 'unsafe-inline'",
+      "img-src 'self' data: blob:",
+      "font-src 'self'",
+      `connect-src ws://127.0.0.1:${port}`,
+      "base-uri 'none'",
+      "form-action 'none'",
+      "frame-ancestors 'none'",
+      "object-src 'none'",
+    ].join('; ');
+
+  const server = createServer((req: IncomingMessage, res: ServerResponse) => {
+    const url = new URL(req.url ?? '/', 'http://127.0.0.1');
+    if (options.testHooks && req.method === 'POST' && url.pathname === '/__test/kill-engine' && tokenOk(url.searchParams.get('token'))) {
+      child?.kill('SIGKILL');
+      res.writeHead(204).end();
+      return;
+    }
+    if (req.method !== 'GET' && req.method !== 'HEAD') {
+      res.writeHead(405).end();
+      return;
+    }
+    const rel = url.pathname === '/' ? 'index.html' : decodeURIComponent(url.pathname).replace(/^\/+/, '');
+    const file = normalize(join(rendererDir, rel));
+    if (!file.startsWith(rendererDir + sep) || !existsSync(file) || !statSync(file).isFile()) {
+      res.writeHead(404, { 'content-type': 'text/plain' }).end('not found');
+      return;
+    }
+    const port = (server.address() as { port: number }).port;
+    res.writeHead(200, {
+      'content-type': MIME[extname(file)] ?? 'application/octet-stream',
+      'content-security-policy': csp(port),
+      'x-content-type-options': 'nosniff',
+      'cache-control': 'no-store',
+      'referrer-policy': 'no-referrer',
+    });
+    res.end(req.method === 'HEAD' ? undefined : readFileSync(file));
+  });
+
+  const tokenOk = (given: string | null) => {
+    if (!given) return false;
+    const a = Buffer.from(given);
+    const b = Buffer.from(token);
+    return a.length === b.length && timingSafeEqual(a, b);
+  };
+
+  const wss = new WebSocketServer({ noServer: true, maxPayload: 16 * 1024 * 1024 });
+  server.on('upgrade', (req, socket, head) => {
+    const url = new URL(req.url ?? '/', 'http://127.0.0.1');
+    const port = (server.address() as { port: number }).port;
+    const originOk = req.headers.origin === `http://127.0.0.1:${port}`;
+    if (url.pathname !== '/engine' || !tokenOk(url.searchParams.get('token')) || !originOk) {
+      socket.write('HTTP/1.1 403 Forbidden\r\n\r\n');
+      socket.destroy();
+      return;
+    }
+    wss.handleUpgrade(req, socket, head, (ws) => {
+      const client: Client = { ws, id: nextClient++ };
+      clients.add(client);
+      if (child) send(client, event('engine.ready', { engine: 'plumbline-engine', restarted: false }));
+      ws.on('message', (data, isBinary) => {
+        let m: Message;
+        try {
+          if (!isBinary) throw new Error('text frames are not accepted; send binary protocol frames');
+          const buf = Array.isArray(data) ? Buffer.concat(data) : Buffer.from(data as ArrayBuffer);
+          m = parseMessage(decodeFrame(new Uint8Array(buf.buffer, buf.byteOffset, buf.byteLength)));
+        } catch (err) {
+          send(client, { v: PROTOCOL_VERSION, type: 'response', id: -1, ok: false, error: { code: 'protocol', message: (err as Error).message } } as ResponseMessage);
+          return;
+        }
+        if (m.type !== 'request') return;
+        if (!child || !child.connected) {
+          send(client, { v: PROTOCOL_VERSION, type: 'response', id: m.id, ok: false, error: { code: 'engine-stopped', message: 'the engine is restarting; try again in a moment' } });
+          return;
+        }
+        const hostId = nextId++;
+        routes.set(hostId, { client, id: m.id });
+        const forwarded: Message = { ...m, id: hostId };
+        if (m.method === 'job.cancel') {
+          // Job ids are host-wide request ids: translate the client's id.
+          const target = (m.params as { jobId: number }).jobId;
+          const hostTarget = [...routes].find(([, r]) => r.client === client && r.id === target)?.[0] ?? -1;
+          (forwarded as { params: unknown }).params = { jobId: hostTarget };
+        }
+        child.send(forwarded);
+      });
+      ws.on('close', () => clients.delete(client));
+    });
+  });
+
+  await new Promise<void>((ok, fail) => {
+    server.once('error', fail);
+    server.listen(options.port ?? 0, '127.0.0.1', () => ok());
+  });
+  const port = (server.address() as { port: number }).port;
+  const url = `http://127.0.0.1:${port}/?token=${token}`;
+  return {
+    url,
+    token,
+    killEngine: () => child?.kill('SIGKILL'),
+    close: async () => {
+      closing = true;
+      child?.kill();
+      for (const c of clients) c.ws.terminate();
+      await new Promise<void>((ok) => wss.close(() => ok()));
+      await new Promise<void>((ok) => server.close(() => ok()));
+    },
+  };
+}
+
+if (process.argv[1] && resolve(process.argv[1]) === fileURLToPath(import.meta.url)) {
+  const args = process.argv.slice(2);
+  const portArg = args.indexOf('--port');
+  const shell = await startWebShell({
+    port: portArg >= 0 ? Number(args[portArg + 1]) : Number(process.env.PLUMBLINE_PORT) || 0,
+    testHooks: process.env.PLUMBLINE_TEST_HOOKS === '1',
+  });
+  process.stdout.write(`Plumbline web shell (127.0.0.1 only). Open:\n  ${shell.url}\n`);
+  const stop = async () => {
+    await shell.close();
+    process.exit(0);
+  };
+  process.on('SIGINT', stop);
+  process.on('SIGTERM', stop);
+}

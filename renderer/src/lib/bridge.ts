@@ -1,0 +1,16 @@
+// What the Electron preload exposes (window.plumbline). In the web shell it is absent and the
+// interface falls back to typed paths and a WebSocket.
+export interface DesktopBridge {
+  platform: 'electron';
+  chooseFile(kind: 'generator' | 'directions'): Promise<string | null>;
+  pathForFile(file: File): string;
+  onMenu(listener: (command: string, arg?: string) => void): () => void;
+  recent(): Promise<string[]>;
+  addRecent(path: string): Promise<void>;
+  getSetting(key: 'theme' | 'threads'): Promise<unknown>;
+  setSetting(key: 'theme' | 'threads', value: unknown): Promise<void>;
+}
+
+export function desktop(): DesktopBridge | null {
+  return (globalThis as { plumbline?: DesktopBridge }).plumbline ?? null;
+}
