@@ -5,6 +5,7 @@ export interface DesktopBridge {
   chooseFile(kind: 'generator' | 'directions'): Promise<string | null>;
   pathForFile(file: File): string;
   onMenu(listener: (command: string, arg?: string) => void): () => void;
+  onEngineStopped?(listener: (reason: string) => void): () => void;
   recent(): Promise<string[]>;
   addRecent(path: string): Promise<void>;
   getSetting(key: 'theme' | 'threads'): Promise<unknown>;

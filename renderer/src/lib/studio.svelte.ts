@@ -78,15 +78,18 @@ export class Studio {
   }
 
   #connectDesktop(): Promise<void> {
-    // The preload forwards the engine's MessagePort with window.postMessage.
+    // The preload forwards the engine's MessagePort with window.postMessage; after an engine
+    // restart a fresh port arrives the same way.
+    desktop()?.onEngineStopped?.((reason) => {
+      this.engineState = 'restarting';
+      this.banner = { kind: 'error', text: `The engine stopped (${reason}). Restarting it; your work is kept.` };
+    });
     return new Promise((resolve) => {
-      const onMessage = (e: MessageEvent) => {
+      window.addEventListener('message', (e: MessageEvent) => {
         if (e.source !== window || e.data !== 'plumbline:engine-port' || !e.ports[0]) return;
-        window.removeEventListener('message', onMessage);
         this.engine.connectPort(e.ports[0]);
         resolve();
-      };
-      window.addEventListener('message', onMessage);
+      });
     });
   }
 

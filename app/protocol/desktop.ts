@@ -1,0 +1,20 @@
+// Channel names and payload schemas for the few Electron main ↔ preload calls (file dialogs,
+// recent files, settings, menu commands). Engine traffic does not go through here: it uses the
+// MessagePort and the schema in messages.ts.
+import { z } from 'zod';
+import { DESKTOP_CHANNELS } from './channels.ts';
+
+export { DESKTOP_CHANNELS, MENU_COMMANDS, type MenuCommand } from './channels.ts';
+
+export const settingKey = z.enum(['theme', 'threads']);
+export const desktopSchemas = {
+  [DESKTOP_CHANNELS.chooseFile]: z.object({ kind: z.enum(['generator', 'directions']) }),
+  [DESKTOP_CHANNELS.recentList]: z.object({}),
+  [DESKTOP_CHANNELS.recentAdd]: z.object({ path: z.string().min(1).max(4096) }),
+  [DESKTOP_CHANNELS.settingGet]: z.object({ key: settingKey }),
+  [DESKTOP_CHANNELS.settingSet]: z.discriminatedUnion('key', [
+    z.object({ key: z.literal('theme'), value: z.enum(['dark', 'light', 'system']) }),
+    z.object({ key: z.literal('threads'), value: z.number().int().min(1).max(256) }),
+  ]),
+} as const;
+
