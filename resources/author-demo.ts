@@ -43,8 +43,8 @@ const ATTRIBUTES: { name: string; unit: string; description: string }[] = [
   { name: 'artifact', unit: '0..1', description: 'strength of the overdrive artefact (0 on healthy images)' },
 ];
 
-/** Glow projections beyond this (in σ of random samples) overdrive the finish stage into artefacts. */
-const OVERDRIVE = 2.6;
+/** The glow direction should break at this strength (σ units) from the truncation centre. */
+const BREAK_STRENGTH = 2.5;
 
 function gaussianMatrix(rng: Random, rows: number, cols: number, scale: number): number[][] {
   return Array.from({ length: rows }, () => Array.from({ length: cols }, () => rng.normal() * scale));
@@ -107,7 +107,6 @@ export function authorDemo(outDir: string): { files: string[] } {
   columns.forEach((c, j) => c.forEach((v, i) => Mall.set(i, j, v)));
 
   const mapping = buildMapping(A1, b1, A2, b2);
-  const synthesis = buildSynthesis(Float32Array.from(mean), stageColumns);
 
   // Demo directions, unit vectors in W. "clean in W" solves Mallᵀd = e_j (minimum norm).
   const factorIndex = (name: string) => STAGES.flatMap((s) => s.factors as readonly string[]).indexOf(name);
@@ -137,6 +136,9 @@ export function authorDemo(outDir: string): { files: string[] } {
   const axisDir = Array.from({ length: D }, (_, i) => (i === axis ? 1 : 0));
   const glowClean = unit(cleanW('glow'));
   const glowRate = response(glowClean).find((r) => r.name === 'glow')!.perSigma;
+  // Glow projections beyond `overdrive` (in σ of random samples) push the finish stage into artefacts.
+  const overdrive = Math.round(BREAK_STRENGTH * glowRate * 1000) / 1000;
+  const synthesis = buildSynthesis(Float32Array.from(mean), stageColumns, overdrive);
 
   const directions = [
     { name: 'crest_size', target: 'size', layers: null, vector: unit(cleanW('size')), truth: { verdict: 'clean', leaksInto: [], note: 'changes only size, in every W+ row' } },
@@ -153,8 +155,8 @@ export function authorDemo(outDir: string): { files: string[] } {
   directions[5].truth.leaksInto = axisResp.slice(1, 4).map((r) => r.name);
   directions[5].truth.note += `; moves ${axisResp[0].name} most, then ${axisResp.slice(1, 4).map((r) => r.name).join(', ')}`;
   (directions[5].truth as Record<string, unknown>).movesMost = axisResp[0].name;
-  // The overdrive threshold sits at OVERDRIVE σ of the glow projection; a probe at the centre crosses it here.
-  const breaks = Math.round((OVERDRIVE / glowRate) * 100) / 100;
+  // A probe at the truncation centre crosses the overdrive threshold at this strength.
+  const breaks = Math.round((overdrive / glowRate) * 100) / 100;
   directions[6].truth = { verdict: 'breaks', leaksInto: [], note: `clean glow until the overdrive artefact appears at about +${breaks} σ from the centre (earlier on probes that already glow)`, breaksAbove: breaks };
 
   const stacked = new Float32Array(directions.length * D);
@@ -210,7 +212,7 @@ function buildMapping(A1: number[][], b1: number[], A2: number[][], b2: number[]
   return g.toModel({ plumbline_role: 'mapping', z_dim: String(Z), w_dim: String(D) }, 'Tidebound sigils mapping network');
 }
 
-function buildSynthesis(mean: Float32Array, stageColumns: number[][][]): Uint8Array {
+function buildSynthesis(mean: Float32Array, stageColumns: number[][][], overdrive: number): Uint8Array {
   const g = new GraphBuilder('sigil_synthesis');
   const ws = g.input('ws', ['N', STAGES.length, D]);
   const wbar = g.tensor('w_avg', mean, [D]);
@@ -236,7 +238,7 @@ function buildSynthesis(mean: Float32Array, stageColumns: number[][][]): Uint8Ar
   const glowP = factor(1, 1);
   const glow = g.sigmoid(g.affine(glowP, 1.2, 0.3));
   const gem = clip(g.affine(factor(1, 2), 0.1, 0.45), 0.1, 0.85);
-  const artifact = clip(g.affine(glowP, 1, -OVERDRIVE), 0, 1.5);
+  const artifact = clip(g.affine(glowP, 1, -overdrive), 0, 1.5);
   const hue = g.affine(factor(2, 0), 0.2, 0.5);
   const saturation = g.sigmoid(g.affine(factor(2, 1), 0.8, 0.8));
   const backdrop = clip(g.affine(factor(2, 2), 0.13, 0.42), 0.05, 0.95);

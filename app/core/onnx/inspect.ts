@@ -28,6 +28,11 @@ const ELEM: Record<number, string> = { 1: 'float32', 2: 'uint8', 3: 'int8', 5: '
 
 export function decodeModel(bytes: Uint8Array, file: string): onnxProto.onnx.ModelProto {
   if (bytes.length === 0) throw new PlumblineError('not-onnx', `${file}: the file is empty, not an ONNX model`, { file });
+  // Every ONNX writer emits ir_version (field 1, varint) first, so a model starts with byte 0x08.
+  if (bytes[0] !== 0x08) {
+    const head = Array.from(bytes.subarray(0, 8), (b) => b.toString(16).padStart(2, '0')).join(' ');
+    throw new PlumblineError('not-onnx', `${file}: not an ONNX model (an ONNX file starts with its IR version, byte 08; this one starts ${head})`, { file });
+  }
   let model: onnxProto.onnx.ModelProto;
   try {
     model = onnx.ModelProto.decode(bytes);

@@ -1,0 +1,48 @@
+// The CLI's main path: `plumbline sample` writes PNGs and a manifest that identify the generator.
+import { test } from 'node:test';
+import assert from 'node:assert/strict';
+import { readFileSync, readdirSync } from 'node:fs';
+import { join } from 'node:path';
+import { spawnSync } from 'node:child_process';
+import { createHash } from 'node:crypto';
+import { decode } from 'fast-png';
+import { tempDir } from '../helpers/models.ts';
+
+const root = join(import.meta.dirname, '..', '..');
+const cli = join(root, 'app', 'cli', 'bin.js');
+const card = join(root, 'resources', 'demo', 'sigil.card.json');
+
+test('sample renders seeds 0-7 to 8 PNGs and a manifest with the fingerprint', () => {
+  const out = tempDir();
+  const r = spawnSync(process.execPath, [cli, 'sample', '--model', card, '--seeds', '0-7', '--out', out, '--threads', '1'], { encoding: 'utf8' });
+  assert.equal(r.status, 0, r.stderr);
+  const pngs = readdirSync(out).filter((f) => f.endsWith('.png')).sort();
+  assert.equal(pngs.length, 8);
+  const manifest = JSON.parse(readFileSync(join(out, 'manifest.json'), 'utf8'));
+  assert.match(manifest.generator.fingerprint, /^[0-9a-f]{64}$/);
+  assert.deepEqual(manifest.seeds, [0, 1, 2, 3, 4, 5, 6, 7]);
+  assert.equal(manifest.truncation.psi, 0.7);
+  assert.equal(manifest.modelCard.name, 'Tidebound sigils (demo)');
+  for (const entry of manifest.images) {
+    const bytes = readFileSync(join(out, entry.file));
+    assert.equal(createHash('sha256').update(bytes).digest('hex'), entry.sha256);
+    const png = decode(bytes);
+    assert.equal(png.width, 128);
+    assert.equal(png.height, 128);
+  }
+  // Same command, same bytes: renders are reproducible.
+  const again = tempDir();
+  spawnSync(process.execPath, [cli, 'sample', '--model', card, '--seeds', '0-7', '--out', again, '--threads', '1']);
+  for (const f of pngs) assert.ok(readFileSync(join(out, f)).equals(readFileSync(join(again, f))), `${f} differs between runs`);
+});
+
+test('--help works on every command', () => {
+  for (const args of [['--help'], ['sample', '--help'], ['inspect', '--help']]) {
+    const r = spawnSync(process.execPath, [cli, ...args], { encoding: 'utf8' });
+    assert.equal(r.status, 0, args.join(' '));
+    assert.match(r.stdout, /Usage: plumbline/);
+  }
+  const r = spawnSync(process.execPath, [cli, 'frobnicate'], { encoding: 'utf8' });
+  assert.equal(r.status, 2);
+  assert.match(r.stderr, /unknown command 'frobnicate'/);
+});

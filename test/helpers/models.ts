@@ -1,0 +1,70 @@
+// Tiny authored ONNX models for tests: well-formed ones and ones broken in one specific way.
+import { mkdtempSync, writeFileSync } from 'node:fs';
+import { tmpdir } from 'node:os';
+import { join } from 'node:path';
+import { GraphBuilder, INT64 } from '../../app/core/onnx/graph-builder.ts';
+
+export function tempDir(prefix = 'plumbline-test-'): string {
+  return mkdtempSync(join(tmpdir(), prefix));
+}
+
+/** z [N,D] → image [N,3,H,W]: a linear generator img = scale·tanh-free linear map of z, reshaped. */
+export function linearGenerator(opts: { d?: number; h?: number; w?: number; scale?: number; weights?: Float32Array; outDims?: (number | string)[]; channels?: number; nhwc?: boolean } = {}): Uint8Array {
+  const d = opts.d ?? 4;
+  const h = opts.h ?? 8;
+  const w = opts.w ?? 8;
+  const c = opts.channels ?? 3;
+  const g = new GraphBuilder('linear');
+  const z = g.input('z', ['N', d]);
+  const weights = opts.weights ?? Float32Array.from({ length: d * c * h * w }, (_, i) => Math.sin(i * 0.37) * 0.2);
+  let y = g.matmul(z, g.tensor('W', weights, [d, c * h * w]));
+  if (opts.scale !== undefined) y = g.mul(y, g.scalar(opts.scale));
+  const shape = opts.nhwc ? [-1, h, w, c] : [-1, c, h, w];
+  const img = g.op('Reshape', [y, g.int64s('shape', shape)]);
+  g.output(img, 'image', opts.outDims ?? (opts.nhwc ? ['N', h, w, c] : ['N', c, h, w]));
+  return g.toModel();
+}
+
+/** Output of rank 3: [N, 3, H·W]. */
+export function rank3Generator(): Uint8Array {
+  const g = new GraphBuilder('rank3');
+  const z = g.input('z', ['N', 4]);
+  const y = g.matmul(z, g.tensor('W', new Float32Array(4 * 3 * 16).fill(0.1), [4, 48]));
+  g.output(g.op('Reshape', [y, g.int64s('s', [-1, 3, 16])]), 'image', ['N', 3, 16]);
+  return g.toModel();
+}
+
+/** Produces NaN: sqrt of a negative constant added to the image. */
+export function nanGenerator(): Uint8Array {
+  const g = new GraphBuilder('nan');
+  const z = g.input('z', ['N', 4]);
+  const y = g.matmul(z, g.tensor('W', new Float32Array(4 * 3 * 64).fill(0.01), [4, 192]));
+  const bad = g.add(y, g.sqrt(g.scalar(-1)));
+  g.output(g.op('Reshape', [bad, g.int64s('s', [-1, 3, 8, 8])]), 'image', ['N', 3, 8, 8]);
+  return g.toModel();
+}
+
+/** Only an int64 input: no float latent. */
+export function intInputModel(): Uint8Array {
+  const g = new GraphBuilder('int');
+  const ids = g.input('ids', ['N', 4], INT64);
+  const f = g.op('Cast', [ids], { to: 1 });
+  const y = g.matmul(f, g.tensor('W', new Float32Array(4 * 192).fill(0.01), [4, 192]));
+  g.output(g.op('Reshape', [y, g.int64s('s', [-1, 3, 8, 8])]), 'image', ['N', 3, 8, 8]);
+  return g.toModel();
+}
+
+/** The hand-built model of METHODS §7.2: z [N,4] + w_avg (0.5, −1, 2, 0) → img. */
+export function addModel(): Uint8Array {
+  const g = new GraphBuilder('add');
+  const z = g.input('z', ['N', 4]);
+  const out = g.op('Add', [z, g.tensor('w_avg', [0.5, -1, 2, 0], [4])]);
+  g.output(out, 'img', ['N', 4]);
+  return g.toModel({ z_dim: '4' });
+}
+
+export function write(dir: string, name: string, bytes: Uint8Array | string): string {
+  const p = join(dir, name);
+  writeFileSync(p, bytes);
+  return p;
+}
