@@ -6,7 +6,7 @@ import { join, resolve } from 'node:path';
 import cliProgress from 'cli-progress';
 import { PlumblineError } from '../core/errors.ts';
 import { writeFileAtomic } from '../core/atomic-write.ts';
-import { encodePng, tensorToRgba } from '../core/image.ts';
+import { encodePng } from '../core/image.ts';
 import { Generator } from '../engine/generator.ts';
 import { demoCardPath } from '../engine/host.ts';
 import { parseSeeds } from './seeds.ts';
@@ -80,12 +80,11 @@ export function buildProgram(): Command {
         for (const a of gen.info.assumptions) process.stderr.write(`assumed: ${a}\n`);
         const bar = progressBar(seeds.length, 'sampling');
         const images: { seed: number; file: string; sha256: string }[] = [];
-        const { width, height } = gen.imageSize();
         for (let at = 0; at < seeds.length && !cancelled; at += gen.batchSize) {
           const chunk = seeds.slice(at, at + gen.batchSize);
           const r = await gen.renderSeeds(chunk, psi, []);
           chunk.forEach((seed, i) => {
-            const png = encodePng(tensorToRgba(r.images, i, height, width, gen.imageLayout, gen.range));
+            const png = encodePng(gen.toRgba(r.images, i));
             const file = `seed-${String(seed).padStart(6, '0')}.png`;
             writeFileAtomic(join(out, file), png);
             images.push({ seed, file, sha256: createHash('sha256').update(png).digest('hex') });

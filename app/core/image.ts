@@ -25,14 +25,29 @@ export function tensorToRgba(
   const out = new Uint8ClampedArray(plane * 4);
   const scale = 255 / (range[1] - range[0]);
   const lo = range[0];
+  const span = range[1] - range[0];
+  const min = lo - span;
+  const max = range[1] + span;
   for (let p = 0; p < plane; p++) {
     for (let ch = 0; ch < 3; ch++) {
       const v = layout === 'NCHW' ? values[base + ch * plane + p] : values[base + p * 3 + ch];
+      // Every value is read here anyway, so this is where NaN, ±Inf and far values are caught for sure.
+      if (!(v >= min && v <= max)) throw new OutputValueError(v, range);
       out[p * 4 + ch] = Math.floor((v - lo) * scale + 0.5); // Uint8ClampedArray clamps
     }
     out[p * 4 + 3] = 255;
   }
   return { width, height, data: out };
+}
+
+/** A value that cannot be an image value: NaN, ±Inf, or more than one span outside the range. */
+export class OutputValueError extends Error {
+  constructor(readonly value: number, readonly range: [number, number]) {
+    super(Number.isFinite(value) ? `value ${value.toPrecision(4)} is far outside the declared range [${range[0]}, ${range[1]}]` : `value ${value} is not finite`);
+  }
+  get finite(): boolean {
+    return Number.isFinite(this.value);
+  }
 }
 
 export function encodePng(image: RgbaImage): Uint8Array {

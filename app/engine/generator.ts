@@ -9,6 +9,7 @@ import { PlumblineError } from '../core/errors.ts';
 import { parseModelCard, type ModelCard } from '../core/model-card.ts';
 import { decodeModel, summarizeModel, type OnnxSummary, type TensorInterface } from '../core/onnx/inspect.ts';
 import { applyEdits, broadcastLayers, seedsToZ, truncate, type EditVector } from '../core/latent.ts';
+import { OutputValueError, tensorToRgba, type RgbaImage } from '../core/image.ts';
 import type { ModelInfo } from '../protocol/messages.ts';
 import { createSession, type SessionOptions } from './sessions.ts';
 
@@ -18,6 +19,13 @@ export const STAT_SAMPLES = 4000;
 const STAT_SEED_BASE = 0xa0000000;
 /** Values beyond the declared range by more than one full span are "far outside" it. */
 const RANGE_SLACK = 1.0;
+/**
+ * Batches checked value by value after opening; later batches are checked on a stride, because a
+ * full scan costs ~15% of a small generator's run time. Every consumer of images (8-bit
+ * conversion, scorers) reads all values and checks them fully, so nothing bad is ever used.
+ */
+const FULL_CHECK_BATCHES = 4;
+const CHECK_STRIDE = 13;
 export const DEFAULT_BATCH = 16;
 
 export interface GeneratorLayout {
@@ -165,6 +173,8 @@ export class Generator {
   }
 
   #shape: number[] | null = null;
+  #checkedBatches = 0;
+  #seedCache = new Map<number, Float32Array>();
 
   imageSize(): { width: number; height: number } {
     if (!this.#shape) throw new Error('no image rendered yet');
@@ -201,8 +211,17 @@ export class Generator {
 
   /** Truncated codes [n, layers, size] for seeds. */
   async codesForSeeds(seeds: number[], psi: number): Promise<Float32Array> {
-    const z = seedsToZ(seeds, this.layout.zSize);
-    const w = await this.mapZ(z, seeds.length);
+    let w: Float32Array;
+    const cached = seeds.length === 1 ? this.#seedCache.get(seeds[0]) : undefined;
+    if (cached) w = cached;
+    else {
+      w = await this.mapZ(seedsToZ(seeds, this.layout.zSize), seeds.length);
+      if (seeds.length === 1) {
+        // Previews revisit the same few seeds while a slider moves: skip the mapping run.
+        if (this.#seedCache.size >= 64) this.#seedCache.delete(this.#seedCache.keys().next().value!);
+        this.#seedCache.set(seeds[0], w);
+      }
+    }
     const t = truncate(w, this.centre, psi);
     return this.layout.layers > 1 ? broadcastLayers(t, this.layout) : t;
   }
@@ -211,6 +230,12 @@ export class Generator {
   async synthesize(codes: Float32Array, n: number, onBatch?: (done: number) => Promise<void> | void): Promise<RenderOutput> {
     const per = this.layout.layers * this.layout.size;
     if (codes.length !== n * per) throw new PlumblineError('latent-size-mismatch', `expected ${n} codes of ${per} values, got ${codes.length} values`);
+    if (n <= this.batchSize) {
+      // One batch: hand back onnxruntime's own output arrays, no copy.
+      const out = await this.#runBatch(codes, n);
+      await onBatch?.(n);
+      return { n, images: out.images, attributes: out.attributes };
+    }
     let images: Float32Array | null = null;
     let attributes: Float32Array | null = null;
     let perImage = 0;
@@ -265,19 +290,44 @@ export class Generator {
     this.#shape = [...dims];
     const [lo, hi] = this.#r.range;
     const slack = (hi - lo) * RANGE_SLACK;
+    const min = lo - slack;
+    const max = hi + slack;
+    // One comparison per value on the fast path: NaN and ±Inf fail it as well as far values.
+    const stride = this.#checkedBatches++ < FULL_CHECK_BATCHES ? 1 : CHECK_STRIDE;
+    let clean = true;
+    for (let i = 0; i < data.length; i += stride) {
+      const v = data[i];
+      if (!(v >= min && v <= max)) {
+        clean = false;
+        break;
+      }
+    }
+    if (clean) return;
     let bad = 0;
     let far = 0;
     let worst = 0;
     for (let i = 0; i < data.length; i++) {
       const v = data[i];
       if (!Number.isFinite(v)) bad++;
-      else if (v < lo - slack || v > hi + slack) {
+      else if (v < min || v > max) {
         far++;
         if (Math.abs(v) > Math.abs(worst)) worst = v;
       }
     }
     if (bad) throw new PlumblineError('output-not-finite', `${file}: the generator produced ${bad} NaN or infinite value(s) out of ${data.length}`, { file });
     if (far) throw new PlumblineError('output-out-of-range', `${file}: ${far} output value(s) are far outside the declared range [${lo}, ${hi}] (e.g. ${worst.toPrecision(4)}); check the range in the model card`, { file });
+  }
+
+  /** Image i of a rendered batch as RGBA8; fails with the model's file name on NaN, Inf or far values. */
+  toRgba(images: Float32Array, index: number): RgbaImage {
+    const { width, height } = this.imageSize();
+    try {
+      return tensorToRgba(images, index, height, width, this.imageLayout, this.range);
+    } catch (err) {
+      if (!(err instanceof OutputValueError)) throw err;
+      const file = this.#r.synthesisFile;
+      throw new PlumblineError(err.finite ? 'output-out-of-range' : 'output-not-finite', `${file}: the generator produced a bad image (${err.message})`, { file });
+    }
   }
 
   async renderSeeds(seeds: number[], psi: number, edits: EditVector[], onBatch?: (done: number) => Promise<void> | void): Promise<RenderOutput> {

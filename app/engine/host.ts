@@ -11,7 +11,6 @@ import { fileURLToPath } from 'node:url';
 import { PlumblineError, toErrorData } from '../core/errors.ts';
 import { readDirections, parseDirectionsMeta, type Direction } from '../core/directions.ts';
 import { directionSigma, type EditVector } from '../core/latent.ts';
-import { tensorToRgba } from '../core/image.ts';
 import {
   PROTOCOL_VERSION, ProtocolError, event, parseMessage, type DirectionInfo, type EventMessage, type Message, type Method,
   type Params, type RequestMessage, type ResponseMessage, type Result,
@@ -224,7 +223,7 @@ export class EngineHost {
     const started = performance.now();
     const out = await gen.renderSeeds([p.seed], p.psi, this.edits(p.edits));
     const { width, height } = gen.imageSize();
-    const rgba = tensorToRgba(out.images, 0, height, width, gen.imageLayout, gen.range);
+    const rgba = gen.toRgba(out.images, 0);
     return {
       superseded: false,
       seed: p.seed,
@@ -238,11 +237,14 @@ export class EngineHost {
     const gen = this.#requireGenerator();
     const images: { seed: number; image: { width: number; height: number; rgba: Uint8Array } }[] = [];
     const batch = gen.batchSize;
+    // Codes for the whole job at once (one mapping run), then synthesis batch by batch.
+    const codes = await gen.codesForSeeds(p.seeds, p.psi);
+    const per = gen.layout.layers * gen.layout.size;
     for (let at = 0; at < p.seeds.length; at += batch) {
       const seeds = p.seeds.slice(at, at + batch);
-      const out = await gen.renderSeeds(seeds, p.psi, []);
+      const out = await gen.synthesize(codes.subarray(at * per, (at + seeds.length) * per), seeds.length);
       const { width, height } = gen.imageSize();
-      seeds.forEach((seed, i) => images.push({ seed, image: { width, height, rgba: new Uint8Array(tensorToRgba(out.images, i, height, width, gen.imageLayout, gen.range).data.buffer) } }));
+      seeds.forEach((seed, i) => images.push({ seed, image: { width, height, rgba: new Uint8Array(gen.toRgba(out.images, i).data.buffer) } }));
       if (at + batch < p.seeds.length) yield { done: at + seeds.length, total: p.seeds.length, label: 'rendering seeds' };
     }
     return { cancelled: false, images };

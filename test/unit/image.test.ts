@@ -26,3 +26,14 @@ test('PNG output decodes to the same pixels', () => {
   assert.equal(back.width, 4);
   assert.deepEqual(Array.from(back.data), Array.from(img.data));
 });
+
+test('conversion refuses NaN, infinite and far-out values instead of writing them as pixels', () => {
+  for (const bad of [NaN, Infinity, -Infinity, 3.5]) {
+    const t = new Float32Array(12).fill(0.25);
+    t[7] = bad;
+    assert.throws(() => tensorToRgba(t, 0, 2, 2), (e: Error) => (Number.isFinite(bad) ? /far outside the declared range/ : /not finite/).test(e.message));
+  }
+  // Mild overshoot (within one span of the range) is clamped, as generators do overshoot a little.
+  const ok = tensorToRgba(Float32Array.from([1.4, -1.4, 0]), 0, 1, 1);
+  assert.deepEqual(Array.from(ok.data), [255, 0, 128, 255]);
+});

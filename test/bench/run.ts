@@ -1,0 +1,148 @@
+// npm run bench — benchmarks, not tests. Every ratio is measured side by side in one run, with
+// the two sides interleaved round by round so machine drift affects both alike.
+import { fork } from 'node:child_process';
+import { readFileSync } from 'node:fs';
+import { join } from 'node:path';
+import { tmpdir } from 'node:os';
+import { mkdtempSync, rmSync } from 'node:fs';
+import * as ort from 'onnxruntime-node';
+import { chromium } from '@playwright/test';
+import { Generator } from '../../app/engine/generator.ts';
+import { demoCardPath } from '../../app/engine/host.ts';
+import { request, type Message } from '../../app/protocol/messages.ts';
+import { startWebShell } from '../../app/web/serve.ts';
+import { authorLarge } from './author-large.ts';
+
+const root = join(import.meta.dirname, '..', '..');
+const THREADS = Number(process.env.PLUMBLINE_THREADS) || 1;
+const rows: [string, string, string, string][] = [];
+const median = (xs: number[]) => [...xs].sort((a, b) => a - b)[Math.floor(xs.length / 2)];
+const pct = (xs: number[], p: number) => [...xs].sort((a, b) => a - b)[Math.min(xs.length - 1, Math.floor(xs.length * p))];
+
+async function throughput(label: string, card: string, batch: number, perRound: number, rounds: number) {
+  const gen = await Generator.open(card, { threads: THREADS });
+  gen.batchSize = batch;
+  const c = JSON.parse(readFileSync(card, 'utf8'));
+  const synthFile = join(card, '..', c.synthesis.file);
+  const bare = await ort.InferenceSession.create(synthFile, { intraOpNumThreads: THREADS, interOpNumThreads: 1, executionMode: 'sequential', graphOptimizationLevel: 'all' });
+  const seeds = Array.from({ length: batch }, (_, i) => i);
+  const codes = await gen.codesForSeeds(seeds, 0.7);
+  const dims = [batch, gen.layout.layers, gen.layout.size];
+  const engineRates: number[] = [];
+  const bareRates: number[] = [];
+  // Warm up both.
+  await bare.run({ [c.synthesis.latentInput]: new ort.Tensor('float32', codes, dims) });
+  await gen.renderSeeds(seeds, 0.7, []);
+  for (let r = 0; r < rounds; r++) {
+    let t = performance.now();
+    for (let n = 0; n < perRound; n += batch) await bare.run({ [c.synthesis.latentInput]: new ort.Tensor('float32', codes, dims) });
+    bareRates.push(perRound / ((performance.now() - t) / 1000));
+    t = performance.now();
+    // The engine path as its jobs run it: seeds → mapping → truncation for the job, then synthesis
+    // and output checks batch by batch.
+    const all = Array.from({ length: perRound }, (_, i) => 10_000 + r * perRound + i);
+    const jobCodes = await gen.codesForSeeds(all, 0.7);
+    const per = gen.layout.layers * gen.layout.size;
+    for (let n = 0; n < perRound; n += batch) await gen.synthesize(jobCodes.subarray(n * per, (n + batch) * per), batch);
+    engineRates.push(perRound / ((performance.now() - t) / 1000));
+  }
+  const e = median(engineRates);
+  const b = median(bareRates);
+  rows.push([`${label}: engine vs bare session.run (batch ${batch}, ${THREADS} thread${THREADS > 1 ? 's' : ''})`, `${e.toFixed(1)} img/s`, `${b.toFixed(1)} img/s`, `${(e / b).toFixed(3)}× (target ≥ 0.95)`]);
+  // Bare single-image inference time, for the preview comparison.
+  const one = await gen.codesForSeeds([3], 0.7);
+  const singles: number[] = [];
+  for (let i = 0; i < 30; i++) {
+    const t = performance.now();
+    await bare.run({ [c.synthesis.latentInput]: new ort.Tensor('float32', one, [1, gen.layout.layers, gen.layout.size]) });
+    singles.push(performance.now() - t);
+  }
+  await bare.release();
+  await gen.dispose();
+  return { single: median(singles) };
+}
+
+/**
+ * Runs in the page: sets the first slider, notices the new paint at once (the canvas bumps its
+ * data-paints attribute after putImageData), then waits for the next animation frame — the
+ * moment the frame reaches the screen.
+ */
+const MEASURE_IN_PAGE = `async (v) => {
+  const slider = document.querySelector('#lever-d1');
+  const canvas = document.querySelector('[data-testid=preview]');
+  const before = Number(canvas.dataset.paints || 0);
+  const t0 = performance.now();
+  await new Promise((done) => {
+    const seen = new MutationObserver(() => {
+      if (Number(canvas.dataset.paints) > before) {
+        seen.disconnect();
+        requestAnimationFrame(() => done());
+      }
+    });
+    seen.observe(canvas, { attributes: true, attributeFilter: ['data-paints'] });
+    slider.value = String(v);
+    slider.dispatchEvent(new Event('input', { bubbles: true }));
+  });
+  return performance.now() - t0;
+}`;
+
+async function previewLatency(inference: number) {
+  const shell = await startWebShell({ quiet: true, threads: THREADS });
+  const browser = await chromium.launch({ executablePath: process.env.CHROMIUM_PATH ?? '/usr/bin/chromium', args: ['--no-sandbox', '--disable-gpu', '--disable-background-networking', '--disable-component-update', '--disable-sync'] });
+  try {
+    const page = await browser.newPage();
+    await page.goto(shell.url);
+    await page.getByText('engine ready').waitFor();
+    await page.locator('#lever-d1').waitFor();
+    await page.waitForTimeout(500);
+    const times: number[] = [];
+    for (let i = 0; i < 60; i++) {
+      const value = ((i % 20) - 10) / 4;
+      // Passed as source text: the TypeScript loader's helpers do not exist in the page.
+      times.push(await page.evaluate(`(${MEASURE_IN_PAGE})(${value === 0 ? 0.05 : value})`));
+    }
+    const m = median(times.slice(10));
+    const p95 = pct(times.slice(10), 0.95);
+    rows.push(['demo: preview round trip, slider input → painted frame (web shell)', `median ${m.toFixed(1)} ms, p95 ${p95.toFixed(1)} ms`, `inference ${inference.toFixed(1)} ms`, `median − inference = ${(m - inference).toFixed(1)} ms (target ≤ 15)`]);
+  } finally {
+    await browser.close();
+    await shell.close();
+  }
+}
+
+async function coldStart() {
+  const times: number[] = [];
+  for (let i = 0; i < 3; i++) {
+    const t0 = performance.now();
+    const child = fork(join(root, 'app', 'engine', 'child-entry.ts'), [], { execArgv: ['--import', 'tsx'], serialization: 'advanced', env: { ...process.env, PLUMBLINE_THREADS: String(THREADS) } });
+    await new Promise<void>((done, fail) => {
+      child.on('message', (m: Message) => {
+        if (m.type === 'event' && m.event === 'engine.ready') {
+          child.send(request(1, 'model.openDemo', {}));
+          child.send(request(2, 'preview.render', { seed: 0, psi: 0.7, edits: [] }));
+        }
+        if (m.type === 'response' && m.id === 2) (m.ok ? done() : fail(new Error(JSON.stringify(m))));
+      });
+    });
+    times.push(performance.now() - t0);
+    child.kill();
+  }
+  rows.push(['cold start: new engine process → first demo image', `median ${median(times).toFixed(0)} ms`, '', `(${times.map((t) => t.toFixed(0)).join(', ')} ms)`]);
+}
+
+const demo = await throughput('demo 128²', demoCardPath(), 16, 256, 15);
+const dir = mkdtempSync(join(tmpdir(), 'plumbline-bench-'));
+try {
+  const large = authorLarge(dir);
+  await throughput(`realistic 256², ${(large.parameters / 1e6).toFixed(1)} M params`, large.card, 4, 8, 3);
+} finally {
+  rmSync(dir, { recursive: true, force: true });
+}
+await previewLatency(demo.single);
+await coldStart();
+
+const widths = [0, 1, 2, 3].map((k) => Math.max(...rows.map((r) => r[k].length), ['measure', 'plumbline', 'reference', 'ratio'][k].length));
+const line = (r: string[]) => r.map((c, k) => c.padEnd(widths[k])).join(' │ ');
+console.log('\n' + line(['measure', 'plumbline', 'reference', 'ratio']));
+console.log(widths.map((w) => '─'.repeat(w)).join('─┼─'));
+for (const r of rows) console.log(line(r));
