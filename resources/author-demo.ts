@@ -308,8 +308,10 @@ function buildSynthesis(mean: Float32Array, stageColumns: number[][][], overdriv
   img = g.lerp(img, inkColour, gemEdge);
   img = g.lerp(img, inkColour, ink);
   const artColour = g.tensor('artifact_colour', [1, -0.6, 0.8], [1, 3, 1, 1]);
-  img = g.add(img, g.mul(g.mul(AR, g.scalar(0.9)), g.mul(g.tensor('artifact_pattern', pattern, [1, 1, SIZE, SIZE]), artColour)));
-  img = g.add(img, g.mul(AR, g.scalar(0.35)));
+  // Overdrive: the image dissolves into a high-frequency interference pattern, as GANs pushed
+  // out of their training distribution do; the blend keeps values inside a plausible range.
+  const interference = g.affine(g.mul(g.tensor('artifact_pattern', pattern, [1, 1, SIZE, SIZE]), artColour), 0.5, 0.5);
+  img = g.lerp(img, interference, g.mul(clip(AR, 0, 1), g.scalar(0.85)));
   g.output(g.affine(img, 2, -1), 'image', ['N', 3, SIZE, SIZE]);
   return g.toModel({ plumbline_role: 'synthesis', latent: 'ws', num_ws: String(STAGES.length), w_dim: String(D), resolution: String(SIZE) }, 'Tidebound sigils synthesis network');
 }

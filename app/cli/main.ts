@@ -10,6 +10,7 @@ import { encodePng } from '../core/image.ts';
 import { Generator } from '../engine/generator.ts';
 import { demoCardPath } from '../engine/host.ts';
 import { parseSeeds } from './seeds.ts';
+import { addLabCommands } from './lab-commands.ts';
 
 /** Bad command-line input found after parsing (commander prints its own parse errors). */
 class UsageError extends Error {}
@@ -41,7 +42,7 @@ function integer(name: string, lo: number, hi: number) {
 }
 
 function progressBar(total: number, label: string) {
-  if (!process.stderr.isTTY) return { update: (_n: number) => {}, stop: () => {} };
+  if (!process.stderr.isTTY) return { update: (_n: number, _label?: string) => {}, stop: () => {} };
   const bar = new cliProgress.SingleBar({ format: `${label} [{bar}] {value}/{total} {eta_formatted}`, stream: process.stderr, hideCursor: true }, cliProgress.Presets.shades_classic);
   bar.start(total, 0);
   return { update: (n: number) => bar.update(n), stop: () => bar.stop() };
@@ -127,6 +128,7 @@ export function buildProgram(): Command {
         await gen.dispose();
       }
     });
+  addLabCommands(program, { progressBar, isCancelled: () => cancelled, usage: (m) => new UsageError(m) }, number, integer);
   return program;
 }
 

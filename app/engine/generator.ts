@@ -182,6 +182,13 @@ export class Generator {
     return this.#r.imageLayout === 'NCHW' ? { height: s[2], width: s[3] } : { height: s[1], width: s[2] };
   }
 
+  get synthesisFile(): string {
+    return this.#r.synthesisFile;
+  }
+  get latentInputName(): string {
+    return this.#r.latentInput;
+  }
+
   get imageLayout(): 'NCHW' | 'NHWC' {
     return this.#r.imageLayout;
   }

@@ -67,9 +67,29 @@ export interface BoundaryResult {
  * (Hsieh et al. 2008), report held-out accuracy. The intercept is dropped; the unit normal points
  * towards higher scores.
  */
-export function linearBoundary(codes: Float32Array, d: number, scores: ArrayLike<number>, options: { fraction?: number; seed?: number; C?: number; epochs?: number } = {}): BoundaryResult {
+export function linearBoundary(codes: Float32Array, d: number, scores: ArrayLike<number>, options: { fraction?: number; seed?: number; C?: number; epochs?: number; whiten?: boolean } = {}): BoundaryResult {
   const n = scores.length;
   if (codes.length !== n * d) throw new RangeError(`${n} scores for ${codes.length / d} codes`);
+  if (options.whiten ?? true) {
+    // W is anisotropic, and a max-margin plane between the tails of anisotropic data tilts away
+    // from the score's gradient. Fitting in whitened coordinates (zero mean, identity
+    // covariance, like Z where the published method works) and mapping the normal back with
+    // Σ^{-1/2} removes that tilt: a plane n'·x' = c is (Σ^{-1/2} n')·(w − w̄) = c in W.
+    const { mean, cov } = covariance(codes, d);
+    const { values, vectors } = symmetricEigen(cov);
+    const inv = values.map((v) => 1 / Math.sqrt(Math.max(v, 1e-12 * values[0])));
+    const white = new Float32Array(codes.length);
+    for (let i = 0; i < n; i++)
+      for (let k = 0; k < d; k++) {
+        let s = 0;
+        for (let j = 0; j < d; j++) s += vectors[k][j] * (codes[i * d + j] - mean[j]);
+        white[i * d + k] = s * inv[k];
+      }
+    const r = linearBoundary(white, d, scores, { ...options, whiten: false });
+    const back = new Float64Array(d);
+    for (let k = 0; k < d; k++) for (let j = 0; j < d; j++) back[j] += vectors[k][j] * inv[k] * r.vector[k];
+    return { ...r, vector: unit(back) };
+  }
   const fraction = options.fraction ?? 0.1;
   const perSide = Math.min(Math.floor(n / 2), fraction <= 1 ? Math.max(2, Math.round(n * fraction)) : Math.round(fraction));
   const order = Array.from({ length: n }, (_, i) => i).sort((a, b) => scores[b] - scores[a]);
@@ -135,18 +155,25 @@ export function differenceOfMeans(positive: Float32Array, negative: Float32Array
 }
 
 /**
- * Repair: remove from n its component in span(C) — n' = n − C(CᵀC)⁻¹Cᵀn — and renormalise
- * (InterFaceGAN's conditional manipulation, general k).
+ * Repair: the smallest change to n that zeroes its component along each `remove` boundary —
+ * n' = n − C(CᵀC)⁻¹Cᵀn, InterFaceGAN's conditional manipulation for k conditions — optionally
+ * while holding its component along each `hold` boundary fixed (so removing one leak does not
+ * create another through correlated boundaries): n' = n − A(AᵀA)⁻¹[Rᵀn; 0], A = [R H].
+ * The result is renormalised and keeps the parent's orientation.
  */
-export function projectOff(direction: ArrayLike<number>, boundaries: ArrayLike<number>[]): Float32Array {
+export function projectOff(direction: ArrayLike<number>, remove: ArrayLike<number>[], hold: ArrayLike<number>[] = []): Float32Array {
   const d = direction.length;
-  if (boundaries.length === 0) return unit(direction);
-  for (const b of boundaries) if (b.length !== d) throw new RangeError(`boundary of length ${b.length} for a direction of length ${d}`);
-  const Cm = new Matrix(d, boundaries.length);
-  boundaries.forEach((b, j) => { for (let i = 0; i < d; i++) Cm.set(i, j, b[i]); });
+  if (remove.length === 0) return unit(direction);
+  const all = [...remove, ...hold];
+  for (const b of all) if (b.length !== d) throw new RangeError(`boundary of length ${b.length} for a direction of length ${d}`);
+  if (all.length >= d) throw new RangeError(`${all.length} boundaries leave no freedom in ${d} dimensions`);
+  const A = new Matrix(d, all.length);
+  all.forEach((b, j) => { for (let i = 0; i < d; i++) A.set(i, j, b[i]); });
   const n = Matrix.columnVector(Array.from(direction));
-  const coef = solve(Cm.transpose().mmul(Cm), Cm.transpose().mmul(n));
-  const out = n.sub(Cm.mmul(coef)).getColumn(0);
+  const rhs = A.transpose().mmul(n);
+  for (let j = remove.length; j < all.length; j++) rhs.set(j, 0, 0);
+  const coef = solve(A.transpose().mmul(A), rhs);
+  const out = n.sub(A.mmul(coef)).getColumn(0);
   const norm = Math.hypot(...out);
   if (norm < 1e-6 * Math.hypot(...Array.from(direction))) throw new RangeError('the direction lies inside the span of the boundaries: nothing is left after the projection');
   return fixSignLike(unit(out), direction);

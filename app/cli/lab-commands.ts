@@ -1,0 +1,238 @@
+// `plumbline discover`, `plumbline audit` and `plumbline repair`.
+import { Command, InvalidArgumentError } from 'commander';
+import { resolve } from 'node:path';
+import { writeFileAtomic } from '../core/atomic-write.ts';
+import { writeDirections } from '../core/direction-files.ts';
+import { PlumblineError } from '../core/errors.ts';
+import { runAudit, type AuditReport } from '../engine/audit.ts';
+import { EngineHost, demoCardPath } from '../engine/host.ts';
+import { discoverByTags, discoverPca, discoverSefa, fitBoundary, repairDirection, type LabDirection } from '../engine/lab.ts';
+import { parseSeeds } from './seeds.ts';
+
+export interface CliContext {
+  progressBar(total: number, label: string): { update(n: number, label?: string): void; stop(): void };
+  isCancelled(): boolean;
+  usage(message: string): Error;
+}
+
+function parseLayers(text: string | undefined, usage: CliContext['usage']): [number, number] | null {
+  if (!text) return null;
+  const m = /^(\d+)(?:-(\d+))?$/.exec(text);
+  if (!m) throw usage(`--layers: '${text}' is not a layer or an inclusive range like 0-3`);
+  const a = Number(m[1]);
+  const b = m[2] === undefined ? a : Number(m[2]);
+  if (b < a) throw usage(`--layers: range '${text}' runs backwards`);
+  return [a, b + 1];
+}
+
+function parseGrid(text: string, usage: CliContext['usage']): number[] {
+  // "-3:3:0.5" (from:to:step) or "a,b,c"
+  const range = /^(-?[\d.]+):(-?[\d.]+):([\d.]+)$/.exec(text);
+  if (range) {
+    const [from, to, step] = range.slice(1).map(Number);
+    if (!(step > 0) || to < from) throw usage(`--strengths: '${text}' must be from:to:step with step > 0`);
+    const out: number[] = [];
+    for (let v = from; v <= to + 1e-9; v += step) out.push(Math.round(v * 1e6) / 1e6);
+    return out;
+  }
+  const list = text.split(',').map(Number);
+  if (list.some((v) => !Number.isFinite(v))) throw usage(`--strengths: '${text}' is not a list of numbers or from:to:step`);
+  return list;
+}
+
+async function openHost(model: string | undefined, threads: number | undefined): Promise<EngineHost> {
+  const host = new EngineHost({ threads });
+  await host.openModel(resolve(model ?? demoCardPath()));
+  return host;
+}
+
+function loadDirections(host: EngineHost, file: string, only?: string[]) {
+  const info = host.openDirections(resolve(file));
+  const all = info.directions.map((d) => host.direction(d.id));
+  if (!only?.length) return all;
+  return only.map((name) => {
+    const d = all.find((x) => x.name === name);
+    if (!d) throw new PlumblineError('bad-request', `${file}: no direction named '${name}'; it holds ${all.map((x) => x.name).join(', ')}`);
+    return d;
+  });
+}
+
+const pad = (s: string, n: number) => (s.length > n ? s.slice(0, n - 1) + '…' : s.padEnd(n));
+const f2 = (v: number) => (Number.isFinite(v) ? v.toFixed(2) : '—');
+const sgn = (v: number) => (v > 0 ? `+${v}` : `${v}`);
+
+export function auditTable(report: AuditReport): string {
+  const rows = report.directions.map((d) => [
+    d.name,
+    d.target + (d.targetChosen ? '*' : ''),
+    d.verdict.toUpperCase(),
+    `${f2(d.leakage.value)} [${f2(d.leakage.low)}–${f2(d.leakage.high)}]`,
+    d.leakage.attribute,
+    `${f2(d.targetEffect.value)} σ`,
+    `${d.pathLength.value.toPrecision(3)}`,
+    `${sgn(d.safeRange[0])}…${sgn(d.safeRange[1])}`,
+  ]);
+  const head = ['direction', 'target', 'verdict', `leakage @±${report.settings.referenceStrength} [95% CI]`, 'leaks most into', 'target effect', `path length (${report.settings.pathLength.distance})`, 'safe range'];
+  const widths = head.map((h, k) => Math.max(h.length, ...rows.map((r) => r[k].length)));
+  const line = (r: string[]) => r.map((c, k) => pad(c, widths[k])).join('  ');
+  const out = [line(head), widths.map((w) => '─'.repeat(w)).join('  '), ...rows.map(line), ''];
+  for (const d of report.directions) out.push(`${d.name}: ${d.verdict} — ${d.reason}`);
+  const flagged = report.combinations.filter((c) => c.verdict !== 'additive');
+  if (report.combinations.length) {
+    out.push('', `combinations: ${report.combinations.length - flagged.length} of ${report.combinations.length} pairs combine additively`);
+    for (const c of flagged) out.push(`  ${c.a} + ${c.b}: interact in ${c.attribute} (${f2(c.attributeInteraction.value)} σ [${f2(c.attributeInteraction.low)}–${f2(c.attributeInteraction.high)}] beyond the sum at +${report.settings.referenceStrength})`);
+  }
+  if (report.directions.some((d) => d.targetChosen)) out.push('', '* no target named: the attribute the direction moves most');
+  for (const w of report.warnings) out.push('', `warning: ${w}`);
+  out.push('', `probes: ${report.probes.count} at ψ ${report.probes.psi}; generator ${report.generator.name} (${report.generator.fingerprint.slice(0, 12)}…)`);
+  out.push(`note: ${report.caution}`);
+  return out.join('\n') + '\n';
+}
+
+export function addLabCommands(program: Command, ctx: CliContext, number: (n: string, lo: number, hi: number) => (v: string) => number, integer: (n: string, lo: number, hi: number) => (v: string) => number): void {
+  program
+    .command('discover')
+    .description('find candidate directions (pca, sefa, boundary, means) and write them as .npy + .json')
+    .option('-m, --model <file>', 'model card or .onnx; default: the bundled demo')
+    .requiredOption('--method <name>', 'pca | sefa | boundary | means')
+    .requiredOption('-o, --out <file.npy>', 'directions file to write (a .json sidecar is written beside it)')
+    .option('-k, --components <n>', 'components to keep (pca, sefa)', integer('--components', 1, 4096), 8)
+    .option('--samples <n>', 'random samples (pca, boundary)', integer('--samples', 16, 1_000_000), 4000)
+    .option('--seed <n>', 'sampling seed', integer('--seed', 0, 0xffffffff), 1)
+    .option('--layers <range>', 'W+ rows the directions apply to, e.g. 0-1 (pca, sefa)')
+    .option('--attribute <name>', 'attribute to separate (boundary)')
+    .option('--positive <seeds>', 'seeds tagged as having the attribute (means)')
+    .option('--negative <seeds>', 'seeds tagged as lacking it (means)')
+    .option('--name <name>', 'name for a boundary or means direction')
+    .option('--threads <n>', 'inference threads', integer('--threads', 1, 256))
+    .action(async (o) => {
+      const host = await openHost(o.model, o.threads);
+      try {
+        const gen = host.generator!;
+        const layers = parseLayers(o.layers, ctx.usage);
+        let found: LabDirection[];
+        if (o.method === 'pca') found = await discoverPca(gen, { samples: o.samples, components: o.components, seed: o.seed, layers });
+        else if (o.method === 'sefa') found = discoverSefa(gen, { components: o.components, layers });
+        else if (o.method === 'boundary') {
+          if (!o.attribute) throw ctx.usage('--method boundary needs --attribute <name>');
+          const b = await fitBoundary(gen, o.attribute, { samples: o.samples, seed: o.seed });
+          found = [{ ...b, name: o.name ?? b.name }];
+        } else if (o.method === 'means') {
+          if (!o.positive || !o.negative) throw ctx.usage('--method means needs --positive <seeds> and --negative <seeds>');
+          found = [await discoverByTags(gen, parseSeeds(o.positive), parseSeeds(o.negative), o.name ?? 'tagged')];
+        } else throw ctx.usage(`--method must be one of pca, sefa, boundary, means; got '${o.method}'`);
+        const files = writeDirections(resolve(o.out), found, gen.layout.space);
+        const w = Math.max(9, ...found.map((d) => d.name.length));
+        process.stdout.write(`${'direction'.padEnd(w)}  σ (latent units)  notes\n`);
+        for (const d of found) process.stdout.write(`${d.name.padEnd(w)}  ${d.sigma.toFixed(4).padStart(16)}  ${d.notes}\n`);
+        process.stdout.write(`wrote ${found.length} direction(s) to ${files.npy} and ${files.json}\n`);
+      } finally {
+        await host.dispose();
+      }
+    });
+
+  program
+    .command('audit')
+    .description('audit directions for leakage, path length and safe range over a probe set')
+    .option('-m, --model <file>', 'model card or .onnx; default: the bundled demo')
+    .requiredOption('-d, --directions <file>', 'directions (.npy with optional .json sidecar)')
+    .option('--only <names>', 'audit only these directions (comma-separated)')
+    .option('--probes <n>', 'random probe latents', integer('--probes', 0, 100_000), 64)
+    .option('--pin <seeds>', 'pinned probe seeds, e.g. 3,17,40-42')
+    .option('--psi <number>', 'truncation ψ of the probes', number('--psi', 0, 2), 0.7)
+    .option('--seed <n>', 'seed of probes, σ samples and bootstrap', integer('--seed', 0, 0xffffffff), 1)
+    .option('--strengths <grid>', 'strength grid in σ units: from:to:step or a list', '-3:3:0.5')
+    .option('--reference <s>', 'strength at which leakage is summarised (±)', number('--reference', 0.01, 20), 2)
+    .option('--attributes <set>', 'default | card | image | all | a,b,c', 'default')
+    .option('--pass <leakage>', 'leakage below this passes', number('--pass', 0, 10), 0.15)
+    .option('--fail <leakage>', 'leakage at or above this fails', number('--fail', 0, 10), 0.35)
+    .option('--distance <name>', 'path-length distance: ssim | ciede2000 | l2', 'ssim')
+    .option('--combinations <which>', 'all | none', 'all')
+    .option('--resamples <n>', 'bootstrap resamples', integer('--resamples', 200, 100_000), 1000)
+    .option('--json <file>', 'write the full report as JSON')
+    .option('--threads <n>', 'inference threads', integer('--threads', 1, 256))
+    .action(async (o) => {
+      if (!['ssim', 'ciede2000', 'l2'].includes(o.distance)) throw ctx.usage(`--distance must be ssim, ciede2000 or l2; got '${o.distance}'`);
+      if (!['all', 'none'].includes(o.combinations)) throw ctx.usage(`--combinations must be all or none; got '${o.combinations}'`);
+      if (o.pass >= o.fail) throw ctx.usage(`--pass (${o.pass}) must be below --fail (${o.fail})`);
+      const host = await openHost(o.model, o.threads);
+      try {
+        const dirs = loadDirections(host, o.directions, o.only ? String(o.only).split(',') : undefined);
+        const attributes = ['default', 'card', 'image', 'all'].includes(o.attributes) ? o.attributes : String(o.attributes).split(',');
+        const job = runAudit(host.generator!, dirs.map((d) => ({ name: d.name, target: d.target, layers: d.layers, vector: d.vector, sigma: d.sigma })), {
+          probes: o.probes,
+          pinnedSeeds: o.pin ? parseSeeds(o.pin) : [],
+          psi: o.psi,
+          seed: o.seed,
+          strengths: parseGrid(o.strengths, ctx.usage),
+          referenceStrength: o.reference,
+          attributes,
+          leakPass: o.pass,
+          leakFail: o.fail,
+          pathLength: { distance: o.distance, epsilon: 0.01, spikeRatio: 5 },
+          combinations: o.combinations,
+          bootstrapResamples: o.resamples,
+        });
+        let bar: ReturnType<CliContext['progressBar']> | null = null;
+        let report: AuditReport | null = null;
+        for (;;) {
+          if (ctx.isCancelled()) {
+            await job.return(undefined as never);
+            bar?.stop();
+            process.stderr.write('audit cancelled; nothing was written\n');
+            process.exitCode = 130;
+            return;
+          }
+          const step = await job.next();
+          if (step.done) {
+            report = step.value;
+            break;
+          }
+          bar ??= ctx.progressBar(step.value.total, 'auditing');
+          bar.update(step.value.done);
+        }
+        bar?.stop();
+        process.stdout.write(auditTable(report));
+        if (o.json) {
+          writeFileAtomic(resolve(o.json), JSON.stringify(report, null, 2) + '\n');
+          process.stdout.write(`wrote ${resolve(o.json)}\n`);
+        }
+      } finally {
+        await host.dispose();
+      }
+    });
+
+  program
+    .command('repair')
+    .description('project a direction off the boundaries of chosen attributes (optionally holding others)')
+    .option('-m, --model <file>', 'model card or .onnx; default: the bundled demo')
+    .requiredOption('-d, --directions <file>', 'directions file holding the direction')
+    .requiredOption('--direction <name>', 'the direction to repair')
+    .requiredOption('--against <attributes>', 'attributes to remove, comma-separated')
+    .option('--hold <attributes>', "attributes whose response must not change, comma-separated, or 'others' for every other attribute")
+    .option('--layers <range>', 'W+ rows the repaired direction applies to')
+    .option('--samples <n>', 'random samples for the boundaries', integer('--samples', 100, 1_000_000), 4000)
+    .option('--seed <n>', 'sampling seed', integer('--seed', 0, 0xffffffff), 1)
+    .requiredOption('-o, --out <file.npy>', 'where to write the repaired direction')
+    .option('--threads <n>', 'inference threads', integer('--threads', 1, 256))
+    .action(async (o) => {
+      const host = await openHost(o.model, o.threads);
+      try {
+        const [d] = loadDirections(host, o.directions, [o.direction]);
+        const against = String(o.against).split(',').filter(Boolean);
+        const gen = host.generator!;
+        const names = gen.card?.attributes.map((a) => a.name) ?? [];
+        const hold = o.hold === 'others' ? names.filter((n) => !against.includes(n) && n !== d.target) : o.hold ? String(o.hold).split(',') : [];
+        const repaired = await repairDirection(gen, d, against, { samples: o.samples, seed: o.seed, hold, layers: o.layers ? parseLayers(o.layers, ctx.usage) : undefined });
+        const files = writeDirections(resolve(o.out), [repaired], gen.layout.space);
+        let cos = 0;
+        for (let i = 0; i < d.vector.length; i++) cos += d.vector[i] * repaired.vector[i];
+        process.stdout.write(`${repaired.name}: ${repaired.notes}\n`);
+        for (const b of repaired.boundaries) process.stdout.write(`  boundary ${b.attribute.padEnd(14)} ${b.role.padEnd(8)} held-out accuracy ${(b.accuracy * 100).toFixed(1)}%\n`);
+        process.stdout.write(`  angle to the original: ${((Math.acos(Math.min(1, cos)) * 180) / Math.PI).toFixed(1)}°\nwrote ${files.npy} and ${files.json}; audit it with: plumbline audit -d ${files.npy}\n`);
+      } finally {
+        await host.dispose();
+      }
+    });
+  void InvalidArgumentError;
+}

@@ -1,0 +1,68 @@
+// Attribute sources for audits and boundaries: the generator's own named attribute outputs
+// (declared by its model card) and the built-in image measures. Scores come back as one row of
+// K values per image.
+import { PlumblineError } from '../core/errors.ts';
+import { IMAGE_MEASURES, measureImage } from '../core/scorers/measures.ts';
+import type { Generator, RenderOutput } from './generator.ts';
+
+export interface AttributeSpec {
+  name: string;
+  unit: string;
+  source: 'card' | 'image';
+  /** Column in the card's attribute output, or index in IMAGE_MEASURES. */
+  index: number;
+  period?: number;
+}
+
+export type AttributeSelection = 'default' | 'card' | 'image' | 'all' | string[];
+
+/** default: the card's attributes when it declares some, else the image measures. */
+export function resolveAttributes(gen: Generator, selection: AttributeSelection = 'default'): AttributeSpec[] {
+  const card: AttributeSpec[] = (gen.card?.attributes ?? []).map((a, index) => ({ name: a.name, unit: a.unit ?? '', source: 'card', index }));
+  const image: AttributeSpec[] = IMAGE_MEASURES.map((m, index) => ({ name: m.name, unit: m.unit, source: 'image', index, period: m.period }));
+  if (selection === 'default') return card.length ? card : image;
+  if (selection === 'card') {
+    if (!card.length) throw new PlumblineError('bad-request', `${gen.info.name} declares no attribute outputs in its model card; use the image measures (${image.map((m) => m.name).join(', ')})`);
+    return card;
+  }
+  if (selection === 'image') return image;
+  if (selection === 'all') return [...card, ...image];
+  const all = [...card, ...image];
+  return selection.map((name) => {
+    const found = all.find((a) => a.name === name);
+    if (!found) throw new PlumblineError('bad-request', `unknown attribute '${name}'; available: ${all.map((a) => a.name).join(', ')}`);
+    return found;
+  });
+}
+
+/** Scores a rendered batch: [n × K] in spec order. Checks every value for NaN. */
+export function scoreBatch(gen: Generator, out: RenderOutput, specs: AttributeSpec[]): Float64Array {
+  const k = specs.length;
+  const scores = new Float64Array(out.n * k);
+  const needImages = specs.some((s) => s.source === 'image');
+  const cardWidth = out.attributes ? out.attributes.length / out.n : 0;
+  for (let i = 0; i < out.n; i++) {
+    const measures = needImages ? measureImage(gen.toRgba(out.images, i)) : null;
+    for (let j = 0; j < k; j++) {
+      const s = specs[j];
+      let v: number;
+      if (s.source === 'card') {
+        if (!out.attributes) throw new PlumblineError('bad-request', `${gen.info.name} produced no attribute output`);
+        v = out.attributes[i * cardWidth + s.index];
+      } else v = measures![s.index];
+      if (!Number.isFinite(v)) throw new PlumblineError('output-not-finite', `attribute scorer '${s.name}' returned ${v} for an image; the audit cannot use it`);
+      scores[i * k + j] = v;
+    }
+  }
+  return scores;
+}
+
+/** Difference b − a, wrapped into (−period/2, period/2] for circular attributes. */
+export function attributeDelta(a: number, b: number, period?: number): number {
+  let d = b - a;
+  if (period) {
+    d = ((d % period) + period) % period;
+    if (d > period / 2) d -= period;
+  }
+  return d;
+}
