@@ -83,6 +83,10 @@ export function auditTable(report: AuditReport): string {
     for (const c of flagged) out.push(`  ${c.a} + ${c.b}: interact in ${c.attribute} (${f2(c.attributeInteraction.value)} σ [${f2(c.attributeInteraction.low)}–${f2(c.attributeInteraction.high)}] beyond the sum at +${report.settings.referenceStrength})`);
   }
   if (report.directions.some((d) => d.targetChosen)) out.push('', '* no target named: the attribute the direction moves most');
+  if (report.groundTruth) {
+    const g = report.groundTruth;
+    out.push('', `ground truth (${g.factors.length} declared factors, ${g.samples} samples): MIG ${g.mig ?? '—'}, DCI disentanglement ${g.dci.disentanglement}, completeness ${g.dci.completeness}, informativeness ${g.dci.informativeness}`);
+  }
   for (const w of report.warnings) out.push('', `warning: ${w}`);
   out.push('', `probes: ${report.probes.count} at ψ ${report.probes.psi}; generator ${report.generator.name} (${report.generator.fingerprint.slice(0, 12)}…)`);
   out.push(`note: ${report.caution}`);

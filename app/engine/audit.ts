@@ -11,6 +11,7 @@ import { AUDIT_CAUTION, MIN_USEFUL_PROBES, auditSettingsSchema, type AuditSettin
 import { DISTANCE_EXPONENT, imageDistance, type ImageLayout } from '../core/audit/path-length.ts';
 import { attributeDelta, resolveAttributes, scoreBatch, type AttributeSpec } from './attributes.ts';
 import type { Generator } from './generator.ts';
+import { groundTruthMetrics } from './lab.ts';
 
 export interface AuditDirection {
   name: string;
@@ -68,6 +69,8 @@ export interface AuditReport {
   caution: string;
   directions: DirectionReport[];
   combinations: CombinationReport[];
+  /** MIG and DCI of the audited set against the generator's declared factors, when it declares any. */
+  groundTruth: Awaited<ReturnType<typeof groundTruthMetrics>>;
 }
 
 export interface AuditProgress {
@@ -114,7 +117,7 @@ export async function* runAudit(gen: Generator, directions: AuditDirection[], ra
   const exponent = DISTANCE_EXPONENT[distance];
   const batch = gen.batchSize;
   const n = seeds.length;
-  const K = specs.length;
+  let K = specs.length;
   const pairs = choosePairs(directions, settings.combinations);
   const pairProbes = Math.min(n, PAIR_PROBES);
 
@@ -141,11 +144,23 @@ export async function* runAudit(gen: Generator, directions: AuditDirection[], ra
       }
     yield tick('measuring attribute spread');
   }
-  const sigma = sigmaStats.map((m) => m.std);
+  let sigma = sigmaStats.map((m) => m.std);
   const zero = specs.filter((_, j) => !(sigma[j] > 1e-12)).map((s) => s.name);
   if (zero.length) {
-    throw new PlumblineError('bad-request', `attribute(s) ${zero.join(', ')} do not vary over ${settings.sigmaSamples} random samples (zero variance), so changes cannot be normalised; leave them out with --attributes`);
+    const problem = `attribute(s) ${zero.join(', ')} do not vary over ${settings.sigmaSamples} random samples (zero variance), so changes cannot be normalised`;
+    // Asked for by name: an error. Part of a default set: left out, and the report says so.
+    if (Array.isArray(settings.attributes) || specs.length === zero.length) throw new PlumblineError('bad-request', `${problem}; leave them out with --attributes`);
+    warnings.push(`${problem}; they were left out of this audit (more --sigma samples may reveal rare variation)`);
+    const keep = specs.map((_, j) => j).filter((j) => sigma[j] > 1e-12);
+    specs.splice(0, specs.length, ...keep.map((j) => specs[j]));
+    names.splice(0, names.length, ...specs.map((x) => x.name));
+    sigma = keep.map((j) => sigma[j]);
+    for (const d of directions) {
+      if (d.target && !names.includes(d.target)) throw new PlumblineError('bad-request', `direction '${d.name}' targets ${d.target}, which does not vary over the random samples`);
+    }
   }
+
+  K = specs.length;
 
   // 2. Probes: codes and unedited scores, once for the whole audit.
   const probeCodes = await gen.codesForSeeds(seeds, settings.psi);
@@ -394,6 +409,8 @@ export async function* runAudit(gen: Generator, directions: AuditDirection[], ra
     void A.pos;
   }
 
+  const groundTruth = settings.groundTruthSamples > 0 && gen.attributeNames.length ? await groundTruthMetrics(gen, directions, settings.groundTruthSamples, settings.seed) : null;
+
   return {
     format: 'plumbline.audit',
     version: 1,
@@ -407,6 +424,7 @@ export async function* runAudit(gen: Generator, directions: AuditDirection[], ra
     caution: AUDIT_CAUTION,
     directions: reports,
     combinations,
+    groundTruth,
   };
 }
 
@@ -490,6 +508,7 @@ function thumbnail(img: RgbaImage): string {
   return `data:image/png;base64,${Buffer.from(encodePng({ width: w, height: h, data })).toString('base64')}`;
 }
 
-const r4 = (v: number, digits = 4) => (Number.isFinite(v) ? Number(v.toFixed(digits)) : v);
+/** Six significant digits: enough for any reading, small values keep their precision. */
+const r4 = (v: number, digits = 6) => (Number.isFinite(v) ? Number(v.toPrecision(digits)) : v);
 const round = (i: Interval): Interval => ({ value: r4(i.value), low: r4(i.low), high: r4(i.high) });
 const fmt = (s: number) => (s > 0 ? `+${s}` : `${s}`);

@@ -68,3 +68,29 @@ export function write(dir: string, name: string, bytes: Uint8Array | string): st
   writeFileSync(p, bytes);
   return p;
 }
+
+/**
+ * A small Z-space generator with a model card: image = reshape(z·A) (3×16×16), and attributes
+ * [z0, 0.5 (constant), sqrt(z1 − 100) (NaN)]. Used for audit error paths and the analytic path length.
+ */
+export function cardGenerator(dir: string, d = 4): { card: string; weights: Float32Array } {
+  const g = new GraphBuilder('card_linear');
+  const z = g.input('z', ['N', d]);
+  const size = 3 * 16 * 16;
+  const weights = Float32Array.from({ length: d * size }, (_, i) => Math.sin(i * 0.61) * 0.05);
+  const img = g.op('Reshape', [g.matmul(z, g.tensor('A', weights, [d, size])), g.int64s('s', [-1, 3, 16, 16])]);
+  g.output(img, 'image', ['N', 3, 16, 16]);
+  const col = (j: number) => g.op('Slice', [z, g.int64s('a', [j]), g.int64s('b', [j + 1]), g.int64s('x', [1])]);
+  const constant = g.add(g.mul(col(0), g.scalar(0)), g.scalar(0.5));
+  const nan = g.sqrt(g.sub(col(1), g.scalar(100)));
+  g.output(g.op('Concat', [col(0), constant, nan], { axis: 1 }), 'attributes', ['N', 3]);
+  write(dir, 'linear.onnx', g.toModel());
+  const card = {
+    format: 'plumbline.model-card',
+    version: 1,
+    name: 'linear test generator',
+    synthesis: { file: 'linear.onnx', latentInput: 'z', space: 'z', latentSize: d, output: 'image', range: [-1, 1], attributesOutput: 'attributes' },
+    attributes: [{ name: 'first' }, { name: 'constant' }, { name: 'broken' }],
+  };
+  return { card: write(dir, 'linear.card.json', JSON.stringify(card)), weights };
+}

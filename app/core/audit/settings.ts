@@ -32,6 +32,8 @@ export const auditSettingsSchema = z.object({
   /** Pairs of directions to check for additivity: 'all' (up to 12 directions), 'none', or explicit name pairs. */
   combinations: z.union([z.enum(['all', 'none']), z.array(z.tuple([z.string(), z.string()]))]).default('all'),
   worstProbes: z.number().int().min(0).max(16).default(3),
+  /** Samples for MIG/DCI against a generator's declared factors (0 skips them). */
+  groundTruthSamples: z.number().int().min(0).max(100_000).default(2000),
 });
 
 export type AuditSettings = z.infer<typeof auditSettingsSchema>;
