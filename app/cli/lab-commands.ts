@@ -8,6 +8,7 @@ import { runAudit, type AuditReport } from '../engine/audit.ts';
 import { EngineHost, demoCardPath } from '../engine/host.ts';
 import { discoverByTags, discoverPca, discoverSefa, fitBoundary, repairDirection, type LabDirection } from '../engine/lab.ts';
 import { parseSeeds } from './seeds.ts';
+import { ScorerModel } from '../engine/scorer-model.ts';
 
 export interface CliContext {
   progressBar(total: number, label: string): { update(n: number, label?: string): void; stop(): void };
@@ -150,17 +151,24 @@ export function addLabCommands(program: Command, ctx: CliContext, number: (n: st
     .option('--attributes <set>', 'default | card | image | all | a,b,c', 'default')
     .option('--pass <leakage>', 'leakage below this passes', number('--pass', 0, 10), 0.15)
     .option('--fail <leakage>', 'leakage at or above this fails', number('--fail', 0, 10), 0.35)
-    .option('--distance <name>', 'path-length distance: ssim | ciede2000 | l2', 'ssim')
+    .option('--distance <name>', 'path-length distance: ssim | ciede2000 | l2 | features', 'ssim')
+    .option('--scorer <card>', 'a scorer card (.json) for a user ONNX attribute model; repeatable', (v: string, prev: string[]) => [...prev, v], [] as string[])
+    .option('--feature-scorer <card>', "scorer card whose features output serves the 'features' distance")
     .option('--combinations <which>', 'all | none', 'all')
     .option('--resamples <n>', 'bootstrap resamples', integer('--resamples', 200, 100_000), 1000)
     .option('--json <file>', 'write the full report as JSON')
     .option('--threads <n>', 'inference threads', integer('--threads', 1, 256))
     .action(async (o) => {
-      if (!['ssim', 'ciede2000', 'l2'].includes(o.distance)) throw ctx.usage(`--distance must be ssim, ciede2000 or l2; got '${o.distance}'`);
+      if (!['ssim', 'ciede2000', 'l2', 'features'].includes(o.distance)) throw ctx.usage(`--distance must be ssim, ciede2000, l2 or features; got '${o.distance}'`);
+      if (o.distance === 'features' && !o.featureScorer) throw ctx.usage("--distance features needs --feature-scorer <card>");
       if (!['all', 'none'].includes(o.combinations)) throw ctx.usage(`--combinations must be all or none; got '${o.combinations}'`);
       if (o.pass >= o.fail) throw ctx.usage(`--pass (${o.pass}) must be below --fail (${o.fail})`);
       const host = await openHost(o.model, o.threads);
+      const scorers: ScorerModel[] = [];
       try {
+        for (const c of o.scorer as string[]) scorers.push(await ScorerModel.open(c, { threads: o.threads }));
+        const features = o.featureScorer ? await ScorerModel.open(o.featureScorer, { threads: o.threads }) : undefined;
+        if (features) scorers.push(features);
         const dirs = loadDirections(host, o.directions, o.only ? String(o.only).split(',') : undefined);
         const attributes = ['default', 'card', 'image', 'all'].includes(o.attributes) ? o.attributes : String(o.attributes).split(',');
         const job = runAudit(host.generator!, dirs.map((d) => ({ name: d.name, target: d.target, layers: d.layers, vector: d.vector, sigma: d.sigma })), {
@@ -176,7 +184,9 @@ export function addLabCommands(program: Command, ctx: CliContext, number: (n: st
           pathLength: { distance: o.distance, epsilon: 0.01, spikeRatio: 5 },
           combinations: o.combinations,
           bootstrapResamples: o.resamples,
-        });
+          scorerCards: (o.scorer as string[]).map((c) => resolve(c)),
+          featureScorer: o.featureScorer ? resolve(o.featureScorer) : null,
+        }, { scorers: scorers.filter((x) => x !== features), features });
         let bar: ReturnType<CliContext['progressBar']> | null = null;
         let report: AuditReport | null = null;
         for (;;) {
@@ -202,6 +212,7 @@ export function addLabCommands(program: Command, ctx: CliContext, number: (n: st
           process.stdout.write(`wrote ${resolve(o.json)}\n`);
         }
       } finally {
+        for (const sc of scorers) await sc.dispose();
         await host.dispose();
       }
     });

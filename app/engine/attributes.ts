@@ -4,30 +4,33 @@
 import { PlumblineError } from '../core/errors.ts';
 import { IMAGE_MEASURES, measureImage } from '../core/scorers/measures.ts';
 import type { Generator, RenderOutput } from './generator.ts';
+import type { ScorerModel } from './scorer-model.ts';
 
 export interface AttributeSpec {
   name: string;
   unit: string;
-  source: 'card' | 'image';
-  /** Column in the card's attribute output, or index in IMAGE_MEASURES. */
+  source: 'card' | 'image' | 'scorer';
+  /** Column in the card's attribute output, index in IMAGE_MEASURES, or attribute of the scorer card. */
   index: number;
+  scorer?: ScorerModel;
   period?: number;
 }
 
 export type AttributeSelection = 'default' | 'card' | 'image' | 'all' | string[];
 
-/** default: the card's attributes when it declares some, else the image measures. */
-export function resolveAttributes(gen: Generator, selection: AttributeSelection = 'default'): AttributeSpec[] {
+/** default: the card's attributes when it declares some, else the image measures; plus any user scorers. */
+export function resolveAttributes(gen: Generator, selection: AttributeSelection = 'default', scorers: ScorerModel[] = []): AttributeSpec[] {
   const card: AttributeSpec[] = (gen.card?.attributes ?? []).map((a, index) => ({ name: a.name, unit: a.unit ?? '', source: 'card', index }));
   const image: AttributeSpec[] = IMAGE_MEASURES.map((m, index) => ({ name: m.name, unit: m.unit, source: 'image', index, period: m.period }));
-  if (selection === 'default') return card.length ? card : image;
+  const user: AttributeSpec[] = scorers.flatMap((sc) => sc.card.attributes.map((a, index) => ({ name: a.name, unit: a.unit, source: 'scorer' as const, index, scorer: sc })));
+  if (selection === 'default') return [...(card.length ? card : image), ...user];
   if (selection === 'card') {
     if (!card.length) throw new PlumblineError('bad-request', `${gen.info.name} declares no attribute outputs in its model card; use the image measures (${image.map((m) => m.name).join(', ')})`);
     return card;
   }
-  if (selection === 'image') return image;
-  if (selection === 'all') return [...card, ...image];
-  const all = [...card, ...image];
+  if (selection === 'image') return [...image, ...user];
+  if (selection === 'all') return [...card, ...image, ...user];
+  const all = [...card, ...image, ...user];
   return selection.map((name) => {
     const found = all.find((a) => a.name === name);
     if (!found) throw new PlumblineError('bad-request', `unknown attribute '${name}'; available: ${all.map((a) => a.name).join(', ')}`);
@@ -36,20 +39,27 @@ export function resolveAttributes(gen: Generator, selection: AttributeSelection 
 }
 
 /** Scores a rendered batch: [n × K] in spec order. Checks every value for NaN. */
-export function scoreBatch(gen: Generator, out: RenderOutput, specs: AttributeSpec[]): Float64Array {
+export async function scoreBatch(gen: Generator, out: RenderOutput, specs: AttributeSpec[]): Promise<Float64Array> {
   const k = specs.length;
   const scores = new Float64Array(out.n * k);
-  const needImages = specs.some((s) => s.source === 'image');
+  const needImages = specs.some((s) => s.source !== 'card');
+  const rgba = needImages ? Array.from({ length: out.n }, (_, i) => gen.toRgba(out.images, i)) : [];
+  const measures = specs.some((s) => s.source === 'image') ? rgba.map((img) => measureImage(img)) : [];
+  const byScorer = new Map<ScorerModel, Float64Array>();
+  for (const s of specs) if (s.scorer && !byScorer.has(s.scorer)) byScorer.set(s.scorer, await s.scorer.score(rgba));
   const cardWidth = out.attributes ? out.attributes.length / out.n : 0;
   for (let i = 0; i < out.n; i++) {
-    const measures = needImages ? measureImage(gen.toRgba(out.images, i)) : null;
     for (let j = 0; j < k; j++) {
       const s = specs[j];
       let v: number;
       if (s.source === 'card') {
         if (!out.attributes) throw new PlumblineError('bad-request', `${gen.info.name} produced no attribute output`);
         v = out.attributes[i * cardWidth + s.index];
-      } else v = measures![s.index];
+      } else if (s.source === 'image') v = measures[i][s.index];
+      else {
+        const all = byScorer.get(s.scorer!)!;
+        v = all[i * s.scorer!.card.attributes.length + s.index];
+      }
       if (!Number.isFinite(v)) throw new PlumblineError('output-not-finite', `attribute scorer '${s.name}' returned ${v} for an image; the audit cannot use it`);
       scores[i * k + j] = v;
     }

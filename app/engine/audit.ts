@@ -8,9 +8,10 @@ import { applyEdits } from '../core/latent.ts';
 import { encodePng, type RgbaImage } from '../core/image.ts';
 import { ProbeBootstrap, RunningMoments } from '../core/stats.ts';
 import { AUDIT_CAUTION, MIN_USEFUL_PROBES, auditSettingsSchema, type AuditSettings } from '../core/audit/settings.ts';
-import { DISTANCE_EXPONENT, imageDistance, type ImageLayout } from '../core/audit/path-length.ts';
+import { DISTANCE_EXPONENT, imageDistance, type ImageLayout, type PathDistance } from '../core/audit/path-length.ts';
 import { attributeDelta, resolveAttributes, scoreBatch, type AttributeSpec } from './attributes.ts';
 import type { Generator } from './generator.ts';
+import type { ScorerModel } from './scorer-model.ts';
 import { groundTruthMetrics } from './lab.ts';
 
 export interface AuditDirection {
@@ -88,8 +89,16 @@ const ADDITIVE_LIMIT = 0.15;
 const PAIR_PROBES = 32;
 const THUMB = 48;
 
-export async function* runAudit(gen: Generator, directions: AuditDirection[], rawSettings: Partial<AuditSettings> = {}): AsyncGenerator<AuditProgress, AuditReport, void> {
+export interface AuditModels {
+  /** User ONNX scorers whose attributes join the audit. */
+  scorers?: ScorerModel[];
+  /** Feature model for the 'features' path-length distance. */
+  features?: ScorerModel;
+}
+
+export async function* runAudit(gen: Generator, directions: AuditDirection[], rawSettings: Partial<AuditSettings> = {}, models: AuditModels = {}): AsyncGenerator<AuditProgress, AuditReport, void> {
   const settings = auditSettingsSchema.parse(rawSettings);
+  if (settings.pathLength.distance === 'features' && !models.features) throw new PlumblineError('bad-request', "the 'features' path-length distance needs a scorer card with a features output (--feature-scorer)");
   if (directions.length === 0) throw new PlumblineError('bad-request', 'no directions to audit');
   const per = gen.layout.layers * gen.layout.size;
   for (const d of directions) {
@@ -97,7 +106,7 @@ export async function* runAudit(gen: Generator, directions: AuditDirection[], ra
       throw new PlumblineError('latent-size-mismatch', `direction '${d.name}' has ${d.vector.length} values; this generator's latent size is ${gen.layout.size}`);
     }
   }
-  const specs = resolveAttributes(gen, settings.attributes);
+  const specs = resolveAttributes(gen, settings.attributes, models.scorers ?? []);
   const names = specs.map((s) => s.name);
   for (const d of directions) {
     if (d.target && !names.includes(d.target)) throw new PlumblineError('bad-request', `direction '${d.name}' targets unknown attribute '${d.target}'; audited attributes: ${names.join(', ')}`);
@@ -114,7 +123,8 @@ export async function* runAudit(gen: Generator, directions: AuditDirection[], ra
   const pplGrid = grid.filter((t) => Number.isInteger(t));
   const eps = settings.pathLength.epsilon;
   const distance = settings.pathLength.distance;
-  const exponent = DISTANCE_EXPONENT[distance];
+  // Squared feature distances are quadratic for small steps, like LPIPS: exponent 2.
+  const exponent = distance === 'features' ? 2 : DISTANCE_EXPONENT[distance];
   const batch = gen.batchSize;
   const n = seeds.length;
   let K = specs.length;
@@ -133,7 +143,7 @@ export async function* runAudit(gen: Generator, directions: AuditDirection[], ra
   const circularRef: number[] = [];
   for (let at = 0; at < sigmaSeeds.length; at += batch) {
     const out = await gen.renderSeeds(sigmaSeeds.slice(at, at + batch), 1, []);
-    const s = scoreBatch(gen, out, specs);
+    const s = await scoreBatch(gen, out, specs);
     for (let i = 0; i < out.n; i++)
       for (let j = 0; j < K; j++) {
         // Circular attributes: spread of the wrapped difference from the first sample.
@@ -168,7 +178,7 @@ export async function* runAudit(gen: Generator, directions: AuditDirection[], ra
   for (let at = 0; at < n; at += batch) {
     const m = Math.min(batch, n - at);
     const out = await gen.synthesize(probeCodes.slice(at * per, (at + m) * per), m);
-    baseScores.set(scoreBatch(gen, out, specs), at * K);
+    baseScores.set((await scoreBatch(gen, out, specs)), at * K);
     yield tick('rendering probes');
   }
   const { width, height } = gen.imageSize();
@@ -204,7 +214,7 @@ export async function* runAudit(gen: Generator, directions: AuditDirection[], ra
         const m = Math.min(batch, n - at);
         const out = await gen.synthesize(editCodes(at, m, d, s), m);
         if (s !== 0) {
-          const sc = scoreBatch(gen, out, specs);
+          const sc = await scoreBatch(gen, out, specs);
           for (let i = 0; i < m; i++) {
             const p = at + i;
             for (let j = 0; j < K; j++) {
@@ -223,8 +233,9 @@ export async function* runAudit(gen: Generator, directions: AuditDirection[], ra
         if (pi >= 0) {
           // Path length: the same batch one ε further along the direction.
           const next = await gen.synthesize(editCodes(at, m, d, s + eps), m);
+          const feats = distance === 'features' ? await Promise.all([out, next].map((o) => models.features!.features(Array.from({ length: m }, (_, i) => gen.toRgba(o.images, i))))) : null;
           for (let i = 0; i < m; i++) {
-            const v = imageDistance(distance, out.images, i, next.images, i, geometry) / eps ** exponent;
+            const v = (feats ? featureDistance(feats[0], feats[1], i) : imageDistance(distance as PathDistance, out.images, i, next.images, i, geometry)) / eps ** exponent;
             ppl[pi].push(v);
             if (Math.abs(s) <= ref) {
               pplPerProbe[at + i] += v;
@@ -362,7 +373,7 @@ export async function* runAudit(gen: Generator, directions: AuditDirection[], ra
     for (let at = 0; at < pairProbes; at += batch) {
       const m = Math.min(batch, pairProbes - at);
       const both = await gen.synthesize(editCodes(at, m, a, ref, [{ d: b, s: ref }]), m);
-      const sc = scoreBatch(gen, both, specs);
+      const sc = await scoreBatch(gen, both, specs);
       for (let i = 0; i < m; i++) {
         const p = at + i;
         for (let j = 0; j < K; j++) {
@@ -491,6 +502,13 @@ function choosePairs(directions: AuditDirection[], which: AuditSettings['combina
     if (!da || !db) throw new PlumblineError('bad-request', `combination ${a} + ${b}: unknown direction`);
     return [da, db];
   });
+}
+
+/** Squared L2 distance between feature vectors i of two batches (LPIPS-style, without learned weights). */
+function featureDistance(a: { data: Float32Array; width: number }, b: { data: Float32Array; width: number }, i: number): number {
+  let s = 0;
+  for (let k = 0; k < a.width; k++) s += (a.data[i * a.width + k] - b.data[i * b.width + k]) ** 2;
+  return s;
 }
 
 function thumbnail(img: RgbaImage): string {

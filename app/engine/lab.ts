@@ -113,7 +113,7 @@ export async function fitBoundaries(gen: Generator, attributes: string[], option
   const scores = new Float64Array(samples * K);
   for (let at = 0; at < samples; at += gen.batchSize) {
     const out = await gen.renderSeeds(seeds.slice(at, at + gen.batchSize), 1, []);
-    scores.set(scoreBatch(gen, out, specs), at * K);
+    scores.set(await scoreBatch(gen, out, specs), at * K);
   }
   return specs.map((spec, j) => {
     const column = Float64Array.from({ length: samples }, (_, i) => scores[i * K + j]);

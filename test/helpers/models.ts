@@ -94,3 +94,30 @@ export function cardGenerator(dir: string, d = 4): { card: string; weights: Floa
   };
   return { card: write(dir, 'linear.card.json', JSON.stringify(card)), weights };
 }
+
+/**
+ * A user scorer model with its card: image [N,3,32,32] in [0,1] → scores [N,2] = per-image mean
+ * of the red and of the blue channel, and features [N,48] = 4×4 average-pooled colours.
+ */
+export function scorerModel(dir: string): string {
+  const g = new GraphBuilder('scorer');
+  const x = g.input('pixels', ['N', 3, 32, 32]);
+  const means = g.op('ReduceMean', [x], { axes: [2, 3], keepdims: 0 });
+  const pick = (c: number) => g.op('Slice', [means, g.int64s('a', [c]), g.int64s('b', [c + 1]), g.int64s('x', [1])]);
+  g.output(g.op('Concat', [pick(0), pick(2)], { axis: 1 }), 'scores', ['N', 2]);
+  const pooled = g.op('AveragePool', [x], { kernel_shape: [8, 8], strides: [8, 8] });
+  g.output(g.op('Flatten', [pooled], { axis: 1 }), 'features', ['N', 48]);
+  write(dir, 'scorer.onnx', g.toModel());
+  return write(dir, 'scorer.card.json', JSON.stringify({
+    format: 'plumbline.scorer-card',
+    version: 1,
+    name: 'channel means (test)',
+    file: 'scorer.onnx',
+    input: { name: 'pixels', width: 32, height: 32, layout: 'NCHW', range: [0, 1] },
+    attributes: [
+      { name: 'redness', output: 'scores', index: 0, unit: 'mean red, 0–1' },
+      { name: 'blueness', output: 'scores', index: 1, unit: 'mean blue, 0–1' },
+    ],
+    features: 'features',
+  }));
+}

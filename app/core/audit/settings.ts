@@ -14,6 +14,9 @@ export const auditSettingsSchema = z.object({
   strengths: z.array(z.number().min(-20).max(20)).min(2).default(DEFAULT_STRENGTHS),
   /** Summary strength: leakage, dependency and target effect are reported at ±this. */
   referenceStrength: z.number().positive().default(2),
+  /** User scorer cards whose attributes join the audit (recorded for the report). */
+  scorerCards: z.array(z.string()).default([]),
+  featureScorer: z.string().nullable().default(null),
   attributes: z.union([z.enum(['default', 'card', 'image', 'all']), z.array(z.string()).min(1)]).default('default'),
   /** Random samples (ψ = 1, separate from the probes) for each attribute's σ. */
   sigmaSamples: z.number().int().min(16).max(100_000).default(512),
@@ -22,7 +25,7 @@ export const auditSettingsSchema = z.object({
   /** Leakage at or above this fails. */
   leakFail: z.number().positive().default(0.35),
   pathLength: z.object({
-    distance: z.enum(['ssim', 'ciede2000', 'l2']).default('ssim'),
+    distance: z.enum(['ssim', 'ciede2000', 'l2', 'features']).default('ssim'),
     /** Finite-difference step in σ units; 1e-2 keeps 8-bit-free float differences well above rounding (METHODS §1.5). */
     epsilon: z.number().positive().max(1).default(0.01),
     /** A path length this many times the median over |t| ≤ 1 counts as a spike. */
