@@ -59,7 +59,7 @@ async function throughput(label: string, card: string, batch: number, perRound: 
   }
   await bare.release();
   await gen.dispose();
-  return { single: median(singles) };
+  return { single: median(singles), rate: b };
 }
 
 /**
@@ -130,6 +130,42 @@ async function coldStart() {
   rows.push(['cold start: new engine process → first demo image', `median ${median(times).toFixed(0)} ms`, '', `(${times.map((t) => t.toFixed(0)).join(', ')} ms)`]);
 }
 
+/** Runs one audit in a fresh process (so peak memory is its own) and returns its figures. */
+function auditChild(probes: number, directions: number, step: number, distance = 'ssim'): Promise<{ ms: number; inRunMs: number; images: number; maxRssMb: number }> {
+  return new Promise((done, fail) => {
+    const child = fork(join(root, 'test', 'bench', 'audit-child.ts'), [String(probes), String(directions), String(step), distance], { execArgv: ['--import', 'tsx'], stdio: ['ignore', 'pipe', 'inherit', 'ipc'], env: { ...process.env, PLUMBLINE_THREADS: String(THREADS) } });
+    let out = '';
+    child.stdout!.on('data', (c) => (out += c));
+    child.on('exit', (code) => (code === 0 ? done(JSON.parse(out.trim().split('\n').pop()!)) : fail(new Error(`audit child exited ${code}`))));
+  });
+}
+
+async function auditRows(bareRate: number) {
+  for (const distance of ['ssim', 'l2']) {
+    const r = await auditChild(64, 2, 0.5, distance);
+    const rate = r.images / (r.ms / 1000);
+    rows.push([`audit throughput, 64 probes × 2 directions × 9 strengths, path length ${distance}`, `${rate.toFixed(0)} img/s (${r.images} rendered + scored)`, `${bareRate.toFixed(0)} img/s bare`, `${(rate / bareRate).toFixed(3)}× (target ≥ 0.9)`]);
+  }
+  const mem: [number, number][] = [];
+  for (const probes of [64, 256, 1024]) mem.push([probes, (await auditChild(probes, 2, 1)).maxRssMb]);
+  const lo = Math.min(...mem.map((m) => m[1]));
+  const hi = Math.max(...mem.map((m) => m[1]));
+  rows.push(['audit peak memory at 64 / 256 / 1024 probes (fresh process each)', mem.map(([p, m]) => `${p}: ${m.toFixed(0)} MB`).join(', '), '', `max/min ${(hi / lo).toFixed(3)} (target ≤ 1.15)`]);
+  const configs: [number, number, number][] = [[32, 1, 1], [64, 1, 1], [64, 2, 1], [64, 2, 0.5], [128, 2, 0.5]];
+  const perUnit: number[] = [];
+  const cells: string[] = [];
+  for (const [p, d, step] of configs) {
+    const r = await auditChild(p, d, step, 'l2');
+    const strengths = Math.round(4 / step) + 1;
+    const units = p * d * strengths;
+    perUnit.push(r.ms / units);
+    cells.push(`${p}×${d}×${strengths}: ${(r.ms / 1000).toFixed(1)} s`);
+  }
+  const m = median(perUnit);
+  const spread = Math.max(...perUnit.map((u) => Math.abs(u - m) / m));
+  rows.push(['audit time vs probes × directions × strengths (l2)', cells.join(', '), `median ${m.toFixed(3)} ms per probe·direction·strength`, `largest deviation from linear ${(spread * 100).toFixed(0)}%`]);
+}
+
 const demo = await throughput('demo 128²', demoCardPath(), 16, 256, 15);
 const dir = mkdtempSync(join(tmpdir(), 'plumbline-bench-'));
 try {
@@ -140,6 +176,7 @@ try {
 }
 await previewLatency(demo.single);
 await coldStart();
+await auditRows(demo.rate);
 
 const widths = [0, 1, 2, 3].map((k) => Math.max(...rows.map((r) => r[k].length), ['measure', 'plumbline', 'reference', 'ratio'][k].length));
 const line = (r: string[]) => r.map((c, k) => c.padEnd(widths[k])).join(' │ ');

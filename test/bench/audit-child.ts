@@ -1,0 +1,33 @@
+// One audit in a fresh process, for the benchmark: prints {ms, images, maxRssMb} as JSON.
+// Usage: tsx test/bench/audit-child.ts <probes> <directions> <strength step> [distance]
+import * as ort from 'onnxruntime-node';
+import { EngineHost, demoCardPath } from '../../app/engine/host.ts';
+import { runAudit } from '../../app/engine/audit.ts';
+
+const [probes, count, step, distance] = [Number(process.argv[2]), Number(process.argv[3]), Number(process.argv[4]), process.argv[5] ?? 'ssim'];
+const host = new EngineHost({ threads: Number(process.env.PLUMBLINE_THREADS) || 1 });
+await host.openModel(demoCardPath());
+const dirs = host.openDirections(new URL('../../resources/demo/sigil-directions.npy', import.meta.url).pathname).directions.slice(0, count).map((d) => {
+  const x = host.direction(d.id);
+  return { name: x.name, target: x.target, layers: x.layers, vector: x.vector, sigma: x.sigma };
+});
+const strengths: number[] = [];
+for (let s = -2; s <= 2 + 1e-9; s += step) strengths.push(Math.round(s * 1000) / 1000);
+// Count every image the audit renders by wrapping the session's run.
+let images = 0;
+const run = ort.InferenceSession.prototype.run;
+(ort.InferenceSession.prototype as { run: unknown }).run = async function (this: ort.InferenceSession, feeds: Record<string, ort.Tensor>, ...rest: unknown[]) {
+  const input = Object.values(feeds)[0];
+  if (input.dims.length === 3) images += input.dims[0];
+  const t = performance.now();
+  const r = await (run as (...a: unknown[]) => Promise<unknown>).call(this, feeds, ...rest);
+  inRun += performance.now() - t;
+  return r;
+};
+let inRun = 0;
+const t0 = performance.now();
+const job = runAudit(host.generator!, dirs, { probes, strengths, combinations: 'none', groundTruthSamples: 0, sigmaSamples: 256, pathLength: { distance: distance as 'ssim', epsilon: 0.01, spikeRatio: 5 } });
+for (;;) if ((await job.next()).done) break;
+const ms = performance.now() - t0;
+process.stdout.write(JSON.stringify({ ms, inRunMs: inRun, images, maxRssMb: process.resourceUsage().maxRSS / 1024 }) + '\n');
+await host.dispose();
