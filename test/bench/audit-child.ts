@@ -15,8 +15,9 @@ const strengths: number[] = [];
 for (let s = -2; s <= 2 + 1e-9; s += step) strengths.push(Math.round(s * 1000) / 1000);
 // Count every image the audit renders by wrapping the session's run.
 let images = 0;
-const run = ort.InferenceSession.prototype.run;
-(ort.InferenceSession.prototype as { run: unknown }).run = async function (this: ort.InferenceSession, feeds: Record<string, ort.Tensor>, ...rest: unknown[]) {
+const proto = (ort.InferenceSession as unknown as { prototype: { run: unknown } }).prototype;
+const run = proto.run;
+proto.run = async function (this: ort.InferenceSession, feeds: Record<string, ort.Tensor>, ...rest: unknown[]) {
   const input = Object.values(feeds)[0];
   if (input.dims.length === 3) images += input.dims[0];
   const t = performance.now();
