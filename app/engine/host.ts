@@ -17,6 +17,11 @@ import {
 } from '../protocol/messages.ts';
 import { Generator } from './generator.ts';
 import { defaultThreads } from './sessions.ts';
+import { runAudit } from './audit.ts';
+import { discoverByTags, discoverPca, discoverSefa, fitBoundary, repairDirection, type LabDirection } from './lab.ts';
+import { Project, vectorHash } from './project.ts';
+import type { RgbaImage } from '../core/image.ts';
+import { applyEdits } from '../core/latent.ts';
 
 export const ENGINE_VERSION = 'plumbline-engine/0.1.0';
 
@@ -33,7 +38,12 @@ export function demoCardPath(): string {
 interface LoadedDirection extends Direction {
   id: string;
   sigma: number;
+  /** Candidates from discovery stay unkept until the user keeps them. */
+  kept: boolean;
 }
+
+/** Thrown by a job's checkpoint when the job was cancelled; answered as { cancelled: true }. */
+class JobCancelled extends Error {}
 
 interface Job {
   jobId: number;
@@ -42,6 +52,9 @@ interface Job {
   cancelled: boolean;
   steps: AsyncGenerator<{ done: number; total: number; label: string }, unknown, void>;
 }
+
+type Progress = { done: number; total: number; label: string };
+const JOB_METHODS = new Set<Method>(['grid.render', 'lab.discover', 'audit.run', 'lab.repair']);
 
 export interface HostOptions {
   threads?: number;
@@ -56,6 +69,8 @@ export class EngineHost {
   #control: { request: RequestMessage; port: Port }[] = [];
   #jobs: Job[] = [];
   #pumping = false;
+  #project: Project | null = null;
+  #running: Job | null = null;
   readonly threads: number;
 
   constructor(options: HostOptions = {}) {
@@ -94,8 +109,13 @@ export class EngineHost {
         return;
       }
       case 'grid.render':
-        this.#jobs.push({ jobId: this.#nextJob++, request: req, port, cancelled: false, steps: this.#gridJob(req.params as Params<'grid.render'>) });
+      case 'lab.discover':
+      case 'audit.run':
+      case 'lab.repair': {
+        const jobId = this.#nextJob++;
+        this.#jobs.push({ jobId, request: req, port, cancelled: false, steps: this.#jobFor(req) });
         break;
+      }
       default:
         this.#control.push({ request: req, port });
     }
@@ -116,6 +136,7 @@ export class EngineHost {
           await this.#answer(request, port, () => this.#renderPreview(request.params as Params<'preview.render'>));
         } else if (this.#jobs.length) {
           const job = this.#jobs[0];
+          this.#running = job;
           if (job.cancelled) {
             this.#jobs.shift();
             job.port.post(ok(job.request.id, { cancelled: true }));
@@ -131,8 +152,10 @@ export class EngineHost {
               }
             } catch (err) {
               this.#jobs.shift();
-              job.port.post(errorResponse(job.request.id, toErrorData(err)));
+              if (err instanceof JobCancelled) job.port.post(ok(job.request.id, { cancelled: true }));
+              else job.port.post(errorResponse(job.request.id, toErrorData(err)));
             }
+            this.#running = null;
           }
         } else break;
         await new Promise((r) => setImmediate(r));
@@ -162,6 +185,31 @@ export class EngineHost {
       }
       case 'directions.open':
         return this.openDirections((req.params as Params<'directions.open'>).path);
+      case 'directions.list':
+        return { directions: [...this.#directions.values()].filter((d) => d.kept).map((d) => this.#info(d)) };
+      case 'directions.keep': {
+        const p = req.params as Params<'directions.keep'>;
+        const d = this.direction(p.id);
+        if ([...this.#directions.values()].some((x) => x.kept && x.name === p.name && x.id !== d.id)) throw new PlumblineError('bad-request', `a kept direction is already named '${p.name}'`);
+        d.name = p.name;
+        d.kept = true;
+        this.#project?.saveDirection(d, this.#requireGenerator().layout.space);
+        return this.#info(d);
+      }
+      case 'project.open':
+        return this.#openProject(req.params as Params<'project.open'>);
+      case 'project.saveUi': {
+        if (!this.#project) throw new PlumblineError('bad-request', 'no project is open');
+        return { savedAt: this.#project.saveUi(req.params as Params<'project.saveUi'>) };
+      }
+      case 'project.review': {
+        const p = req.params as Params<'project.review'>;
+        if (!this.#project) throw new PlumblineError('bad-request', 'sign-off needs an open project (its review log keeps the history)');
+        const d = this.direction(p.direction);
+        if (!d.kept) throw new PlumblineError('bad-request', `'${d.name}' is a candidate; keep it before signing it off`);
+        this.#project.appendReview({ at: new Date().toISOString(), direction: d.name, vectorHash: vectorHash(d.vector, d.layers), status: p.status, reviewer: p.reviewer, note: p.note });
+        return { direction: d.id, signOff: this.#project.signOff(d.name, vectorHash(d.vector, d.layers)) };
+      }
       default:
         throw new PlumblineError('bad-request', `unhandled method ${req.method}`);
     }
@@ -190,14 +238,162 @@ export class EngineHost {
     const dataFile = npyFile ?? (meta?.file ? resolve(dirname(file), meta.file) : file.replace(/\.json$/i, '.npy'));
     if (!existsSync(dataFile)) throw new PlumblineError('file-missing', `${dataFile}: directions array not found`, { file: dataFile });
     const dirs = readDirections(new Uint8Array(readFileSync(dataFile)), dataFile, meta, gen.layout, basename(dataFile, '.npy'));
-    const infos: DirectionInfo[] = [];
-    for (const d of dirs) {
-      const sigma = directionSigma(gen.centredSamples, gen.layout.size, d.vector, gen.layout.layers, d.layers);
-      const id = `d${this.#nextDirection++}`;
-      this.#directions.set(id, { ...d, id, sigma: sigma > 0 ? sigma : 1 });
-      infos.push({ id, name: d.name, target: d.target, layers: d.layers, sigma: sigma > 0 ? sigma : 1, notes: d.notes, method: d.method });
+    const loaded = dirs.map((d) => this.#register(d, true));
+    for (const d of loaded) this.#project?.saveDirection(d, gen.layout.space);
+    return { file: dataFile, directions: loaded.map((d) => this.#info(d)) };
+  }
+
+  #register(d: Direction, kept: boolean): LoadedDirection {
+    const gen = this.#requireGenerator();
+    const existing = [...this.#directions.values()].find((x) => x.kept && kept && x.name === d.name);
+    const sigma = directionSigma(gen.centredSamples, gen.layout.size, d.vector, gen.layout.layers, d.layers);
+    const entry: LoadedDirection = { ...d, id: existing?.id ?? `d${this.#nextDirection++}`, sigma: sigma > 0 ? sigma : 1, kept };
+    this.#directions.set(entry.id, entry);
+    return entry;
+  }
+
+  #info(d: LoadedDirection): DirectionInfo {
+    return {
+      id: d.id,
+      name: d.name,
+      target: d.target,
+      layers: d.layers,
+      sigma: d.sigma,
+      notes: d.notes,
+      method: d.method,
+      source: d.source,
+      kept: d.kept,
+      signOff: this.#project ? this.#project.signOff(d.name, vectorHash(d.vector, d.layers)) : null,
+    };
+  }
+
+  #openProject(p: Params<'project.open'>): Result<'project.open'> {
+    const gen = this.#requireGenerator();
+    const project = Project.open(p.path, p.create, { name: gen.info.name, fingerprint: gen.info.fingerprint });
+    this.#project = project;
+    const created = p.create && project.doc.directions.length === 0;
+    if (created) {
+      // A new project starts with the directions already on the workbench.
+      for (const d of this.#directions.values()) if (d.kept) project.saveDirection(d, gen.layout.space);
+    } else {
+      for (const d of [...this.#directions.values()]) if (d.kept) this.#directions.delete(d.id);
+      for (const d of project.loadDirections(gen.layout)) this.#register(d, true);
     }
-    return { file: dataFile, directions: infos };
+    const fingerprint = project.doc.generator?.fingerprint ?? null;
+    return {
+      path: project.dir,
+      name: project.doc.name,
+      generatorFingerprint: fingerprint,
+      generatorMatches: fingerprint === gen.info.fingerprint,
+      directions: [...this.#directions.values()].filter((d) => d.kept).map((d) => this.#info(d)),
+      audits: project.audits(),
+      ui: project.doc.ui,
+    };
+  }
+
+  /** Lets a pending preview through and stops a cancelled job; called by long jobs between batches. */
+  async #checkpoint(): Promise<void> {
+    const job = this.#running;
+    if (job?.cancelled) throw new JobCancelled();
+    if (this.#preview) {
+      const { request, port } = this.#preview;
+      this.#preview = null;
+      await this.#answer(request, port, () => this.#renderPreview(request.params as Params<'preview.render'>));
+    }
+    await new Promise((r) => setImmediate(r));
+  }
+
+  #jobFor(req: RequestMessage): AsyncGenerator<Progress, unknown, void> {
+    switch (req.method) {
+      case 'grid.render':
+        return this.#gridJob(req.params as Params<'grid.render'>);
+      case 'lab.discover':
+        return this.#discoverJob(req.params as Params<'lab.discover'>);
+      case 'audit.run':
+        return this.#auditJob(req.params as Params<'audit.run'>);
+      default:
+        return this.#repairJob(req.params as Params<'lab.repair'>);
+    }
+  }
+
+  async *#discoverJob(p: Params<'lab.discover'>): AsyncGenerator<Progress, Result<'lab.discover'>, void> {
+    const gen = this.#requireGenerator();
+    yield { done: 0, total: 2, label: `discovering (${p.method})` };
+    let found: LabDirection[];
+    if (p.method === 'pca') found = await discoverPca(gen, { samples: p.samples, components: p.components, seed: p.seed, layers: p.layers });
+    else if (p.method === 'sefa') found = discoverSefa(gen, { components: p.components, layers: p.layers });
+    else if (p.method === 'boundary') {
+      if (!p.attribute) throw new PlumblineError('bad-request', 'a boundary needs an attribute');
+      found = [await fitBoundary(gen, p.attribute, { samples: p.samples, seed: p.seed, checkpoint: () => this.#checkpoint() })];
+    } else {
+      if (p.positive.length === 0 || p.negative.length === 0) throw new PlumblineError('bad-request', 'difference of means needs seeds tagged as having and as lacking the attribute');
+      found = [await discoverByTags(gen, p.positive, p.negative, p.name ?? 'tagged')];
+    }
+    yield { done: 1, total: 2, label: 'rendering candidate strips' };
+    const candidates: Extract<Result<'lab.discover'>, { cancelled: false }>['candidates'] = [];
+    for (const f of found) {
+      const d = this.#register({ name: p.name && found.length === 1 ? p.name : f.name, target: f.target, layers: f.layers, vector: f.vector, notes: f.notes, method: f.source.method, source: f.source as unknown as Record<string, unknown> }, false);
+      const strip = await this.#strip(d, p.stripSeeds, p.stripStrengths);
+      candidates.push({ direction: this.#info(d), strip, stripSeeds: p.stripSeeds, stripStrengths: p.stripStrengths });
+      await this.#checkpoint();
+    }
+    return { cancelled: false, candidates };
+  }
+
+  /** Small images of seeds × strengths along a direction (rows: seeds). */
+  async #strip(d: LoadedDirection, seeds: number[], strengths: number[]): Promise<{ width: number; height: number; rgba: Uint8Array }[]> {
+    const gen = this.#requireGenerator();
+    const base = await gen.codesForSeeds(seeds, gen.info.defaultPsi);
+    const per = gen.layout.layers * gen.layout.size;
+    const codes = new Float32Array(seeds.length * strengths.length * per);
+    seeds.forEach((_, i) => strengths.forEach((s, j) => {
+      const row = base.slice(i * per, (i + 1) * per);
+      applyEdits(row, gen.layout, [{ vector: d.vector, layers: d.layers, step: s * d.sigma }]);
+      codes.set(row, (i * strengths.length + j) * per);
+    }));
+    const out = await gen.synthesize(codes, seeds.length * strengths.length);
+    return Array.from({ length: out.n }, (_, k) => shrink(gen.toRgba(out.images, k), 64));
+  }
+
+  async *#auditJob(p: Params<'audit.run'>): AsyncGenerator<Progress, Result<'audit.run'>, void> {
+    const gen = this.#requireGenerator();
+    const dirs = p.directions.map((id) => this.direction(id));
+    const job = runAudit(gen, dirs.map((d) => ({ name: d.name, target: d.target, layers: d.layers, vector: d.vector, sigma: d.sigma })), {
+      probes: p.probes, pinnedSeeds: p.pinnedSeeds, psi: p.psi, seed: p.seed, referenceStrength: p.referenceStrength, leakPass: p.leakPass, leakFail: p.leakFail, combinations: p.combinations,
+    });
+    let last = 0;
+    for (;;) {
+      if (this.#running?.cancelled) {
+        await job.return(undefined as never);
+        return { cancelled: true };
+      }
+      const step = await job.next();
+      if (step.done) {
+        const report = step.value;
+        const savedAs = this.#project ? this.#project.saveAudit(report) : null;
+        const thumbnails = report.directions.flatMap((d) => d.worstProbes.map((w) => ({ direction: d.name, seed: w.seed, strength: w.strength, attribute: w.attribute, leakage: w.leakage, before: fromDataUri(w.before), after: fromDataUri(w.after) })));
+        const wire = { ...report, directions: report.directions.map((d) => ({ ...d, worstProbes: d.worstProbes.map(({ before: _b, after: _a, ...rest }) => rest) })) };
+        return { cancelled: false, report: wire as never, thumbnails, savedAs };
+      }
+      // Report progress about twice a second's worth of batches, not every batch.
+      if (step.value.done - last >= 4 || step.value.done === step.value.total) {
+        last = step.value.done;
+        yield step.value;
+      } else await this.#checkpoint();
+    }
+  }
+
+  async *#repairJob(p: Params<'lab.repair'>): AsyncGenerator<Progress, Result<'lab.repair'>, void> {
+    const gen = this.#requireGenerator();
+    const d = this.direction(p.direction);
+    yield { done: 0, total: 1, label: `fitting boundaries for ${p.against.join(', ')}` };
+    const hold = p.hold === 'others' ? gen.attributeNames.filter((n) => !p.against.includes(n) && n !== d.target) : p.hold;
+    const r = await repairDirection(gen, d, p.against, { hold, checkpoint: () => this.#checkpoint() });
+    let name = r.name;
+    for (let k = 2; [...this.#directions.values()].some((x) => x.kept && x.name === name); k++) name = `${r.name}${k}`;
+    const entry = this.#register({ name, target: r.target, layers: r.layers, vector: r.vector, notes: r.notes, method: 'repair', source: r.source as unknown as Record<string, unknown> }, true);
+    this.#project?.saveDirection(entry, gen.layout.space);
+    return { cancelled: false, direction: this.#info(entry), boundaries: r.boundaries };
   }
 
   direction(id: string): LoadedDirection {
@@ -254,6 +450,26 @@ export class EngineHost {
     await this.#generator?.dispose();
     this.#generator = null;
   }
+}
+
+/** Box-downsamples an image so its longer side is at most `max` pixels. */
+function shrink(img: RgbaImage, max: number): { width: number; height: number; rgba: Uint8Array } {
+  const f = Math.max(1, Math.ceil(Math.max(img.width, img.height) / max));
+  const w = Math.floor(img.width / f);
+  const h = Math.floor(img.height / f);
+  const out = new Uint8Array(w * h * 4);
+  for (let y = 0; y < h; y++)
+    for (let x = 0; x < w; x++)
+      for (let c = 0; c < 4; c++) {
+        let s = 0;
+        for (let dy = 0; dy < f; dy++) for (let dx = 0; dx < f; dx++) s += img.data[((y * f + dy) * img.width + x * f + dx) * 4 + c];
+        out[(y * w + x) * 4 + c] = Math.round(s / (f * f));
+      }
+  return { width: w, height: h, rgba: out };
+}
+
+function fromDataUri(uri: string): Uint8Array {
+  return new Uint8Array(Buffer.from(uri.slice(uri.indexOf(',') + 1), 'base64'));
 }
 
 function ok(id: number, result: unknown): ResponseMessage {

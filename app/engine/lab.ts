@@ -100,6 +100,8 @@ export interface BoundaryOptions {
   fraction?: number;
   seed?: number;
   attributes?: 'default' | 'card' | 'image' | 'all';
+  /** Awaited between batches: lets a host serve previews and cancel. */
+  checkpoint?: () => Promise<void>;
 }
 
 /** Boundaries for several attributes from one sampling pass (render once, fit each). */
@@ -114,6 +116,7 @@ export async function fitBoundaries(gen: Generator, attributes: string[], option
   for (let at = 0; at < samples; at += gen.batchSize) {
     const out = await gen.renderSeeds(seeds.slice(at, at + gen.batchSize), 1, []);
     scores.set(await scoreBatch(gen, out, specs), at * K);
+    await options.checkpoint?.();
   }
   return specs.map((spec, j) => {
     const column = Float64Array.from({ length: samples }, (_, i) => scores[i * K + j]);

@@ -30,6 +30,37 @@ export const requestSchemas = {
   'preview.render': z.object({ seed, psi, edits: z.array(editSchema).max(64) }),
   'grid.render': z.object({ seeds: z.array(seed).min(1).max(256), psi }),
   'job.cancel': z.object({ jobId: z.number().int() }),
+  'directions.list': z.object({}),
+  'lab.discover': z.object({
+    method: z.enum(['pca', 'sefa', 'boundary', 'means']),
+    components: z.number().int().min(1).max(64).default(6),
+    samples: z.number().int().min(64).max(200_000).default(3000),
+    seed: z.number().int().min(0).max(0xffffffff).default(1),
+    layers: z.tuple([z.number().int().min(0), z.number().int().min(1)]).nullable().default(null),
+    attribute: z.string().min(1).optional(),
+    positive: z.array(seed).max(10_000).default([]),
+    negative: z.array(seed).max(10_000).default([]),
+    name: z.string().min(1).max(120).optional(),
+    /** Seeds and strengths for the preview strips of each candidate. */
+    stripSeeds: z.array(seed).min(1).max(8).default([0, 1, 2]),
+    stripStrengths: z.array(strength).min(1).max(9).default([-3, -1.5, 0, 1.5, 3]),
+  }),
+  'directions.keep': z.object({ id: z.string().min(1), name: z.string().min(1).max(120).regex(/^[A-Za-z0-9_.-]+$/, 'letters, digits, _ . - only') }),
+  'audit.run': z.object({
+    directions: z.array(z.string().min(1)).min(1).max(64),
+    probes: z.number().int().min(0).max(100_000).default(64),
+    pinnedSeeds: z.array(seed).max(10_000).default([]),
+    psi: psi.default(0.7),
+    seed: z.number().int().min(0).max(0xffffffff).default(1),
+    referenceStrength: z.number().positive().max(10).default(2),
+    leakPass: z.number().positive().max(10).default(0.15),
+    leakFail: z.number().positive().max(10).default(0.35),
+    combinations: z.enum(['all', 'none']).default('all'),
+  }),
+  'lab.repair': z.object({ direction: z.string().min(1), against: z.array(z.string().min(1)).min(1).max(32), hold: z.union([z.literal('others'), z.array(z.string())]).default([]) }),
+  'project.open': z.object({ path: z.string().min(1), create: z.boolean().default(false) }),
+  'project.saveUi': z.object({ seed, psi, strengths: z.record(z.string(), strength), pinned: z.array(seed).max(10_000), tags: z.record(z.string(), z.enum(['has', 'lacks'])) }),
+  'project.review': z.object({ direction: z.string().min(1), status: z.enum(['draft', 'in-review', 'approved', 'rejected']), reviewer: z.string().min(1).max(120), note: z.string().max(4000).default('') }),
 } as const;
 export type Method = keyof typeof requestSchemas;
 export type Params<M extends Method> = z.infer<(typeof requestSchemas)[M]>;
@@ -56,6 +87,24 @@ export const modelInfoSchema = z.object({
 });
 export type ModelInfo = z.infer<typeof modelInfoSchema>;
 
+export const reviewEntrySchema = z.object({
+  at: z.string(),
+  direction: z.string(),
+  vectorHash: z.string(),
+  status: z.enum(['draft', 'in-review', 'approved', 'rejected']),
+  reviewer: z.string(),
+  note: z.string(),
+});
+export type ReviewEntry = z.infer<typeof reviewEntrySchema>;
+
+export const signOffSchema = z.object({
+  status: z.enum(['draft', 'in-review', 'approved', 'rejected']),
+  /** True when the last approval was for a different vector: the direction changed since. */
+  approvalReset: z.boolean(),
+  history: z.array(reviewEntrySchema),
+});
+export type SignOff = z.infer<typeof signOffSchema>;
+
 export const directionInfoSchema = z.object({
   id: z.string(),
   name: z.string(),
@@ -65,11 +114,46 @@ export const directionInfoSchema = z.object({
   sigma: z.number().positive(),
   notes: z.string(),
   method: z.string(),
+  /** Provenance record (method, parameters, samples, seed, generator fingerprint, parent). */
+  source: z.record(z.string(), z.unknown()).default({}),
+  kept: z.boolean().default(true),
+  signOff: signOffSchema.nullable().default(null),
 });
 export type DirectionInfo = z.infer<typeof directionInfoSchema>;
 
 export const imageSchema = z.object({ width: z.number().int(), height: z.number().int(), rgba: bytes });
 export type WireImage = z.infer<typeof imageSchema>;
+
+const interval = z.object({ value: z.number().nullable(), low: z.number().nullable(), high: z.number().nullable() });
+/** The audit report as it crosses the protocol (thumbnails travel separately, as binary PNG). */
+export const auditWireSchema = z.object({
+  format: z.literal('plumbline.audit'),
+  version: z.literal(1),
+  generator: z.object({ name: z.string(), fingerprint: z.string() }),
+  probes: z.object({ count: z.number(), psi: z.number() }).passthrough(),
+  attributes: z.array(z.object({ name: z.string(), unit: z.string(), source: z.string(), sigma: z.number() })),
+  warnings: z.array(z.string()),
+  caution: z.string(),
+  settings: z.object({ referenceStrength: z.number(), leakPass: z.number(), leakFail: z.number() }).passthrough(),
+  directions: z.array(z.object({
+    name: z.string(),
+    target: z.string(),
+    targetChosen: z.boolean(),
+    verdict: z.enum(['pass', 'review', 'fail']),
+    reason: z.string(),
+    targetEffect: interval,
+    dependency: z.record(z.string(), interval),
+    leakage: interval.extend({ strength: z.number(), attribute: z.string() }),
+    pathLength: interval.extend({ distance: z.string() }).passthrough(),
+    safeRange: z.tuple([z.number(), z.number()]),
+    breaksAt: z.number().nullable(),
+    curves: z.object({ strengths: z.array(z.number()), attributes: z.record(z.string(), z.object({ mean: z.array(z.number()), low: z.array(z.number()), high: z.array(z.number()) })) }),
+    leakageCurve: z.array(z.number().nullable()),
+    pathLengthCurve: z.object({ strengths: z.array(z.number()), mean: z.array(z.number()), low: z.array(z.number()), high: z.array(z.number()) }),
+  }).passthrough()),
+  combinations: z.array(z.object({ a: z.string(), b: z.string(), attribute: z.string(), attributeInteraction: interval, imageInteraction: interval, verdict: z.string() })),
+}).passthrough();
+export type AuditWire = z.infer<typeof auditWireSchema>;
 
 export const resultSchemas = {
   'engine.hello': z.object({ protocol: z.number(), engine: z.string(), threads: z.number(), model: modelInfoSchema.nullable() }),
@@ -85,6 +169,20 @@ export const resultSchemas = {
     z.object({ cancelled: z.literal(false), images: z.array(z.object({ seed, image: imageSchema })) }),
   ]),
   'job.cancel': z.object({ cancelled: z.boolean() }),
+  'directions.list': z.object({ directions: z.array(directionInfoSchema) }),
+  'lab.discover': z.union([
+    z.object({ cancelled: z.literal(true) }),
+    z.object({ cancelled: z.literal(false), candidates: z.array(z.object({ direction: directionInfoSchema, strip: z.array(imageSchema), stripSeeds: z.array(seed), stripStrengths: z.array(z.number()) })) }),
+  ]),
+  'directions.keep': directionInfoSchema,
+  'audit.run': z.union([
+    z.object({ cancelled: z.literal(true) }),
+    z.object({ cancelled: z.literal(false), report: auditWireSchema, thumbnails: z.array(z.object({ direction: z.string(), seed, strength: z.number(), attribute: z.string(), leakage: z.number(), before: bytes, after: bytes })), savedAs: z.string().nullable() }),
+  ]),
+  'lab.repair': z.union([z.object({ cancelled: z.literal(true) }), z.object({ cancelled: z.literal(false), direction: directionInfoSchema, boundaries: z.array(z.object({ attribute: z.string(), accuracy: z.number(), role: z.string() })) })]),
+  'project.open': z.object({ path: z.string(), name: z.string(), generatorFingerprint: z.string().nullable(), generatorMatches: z.boolean(), directions: z.array(directionInfoSchema), audits: z.array(z.string()), ui: z.object({ seed, psi, strengths: z.record(z.string(), z.number()), pinned: z.array(seed), tags: z.record(z.string(), z.enum(['has', 'lacks'])) }).nullable() }),
+  'project.saveUi': z.object({ savedAt: z.string() }),
+  'project.review': z.object({ direction: z.string(), signOff: signOffSchema }),
 } satisfies Record<Method, z.ZodType>;
 export type Result<M extends Method> = z.infer<(typeof resultSchemas)[M]>;
 
