@@ -151,6 +151,10 @@ function registerIpc(): void {
   const isMainFrame = (e: Pick<Electron.IpcMainInvokeEvent, 'senderFrame'>) => !!win && e.senderFrame === win.webContents.mainFrame;
   ipcMain.handle(C.chooseFile, guarded(desktopSchemas[C.chooseFile], async ({ kind }) => {
     if (!win) return null;
+    if (kind === 'project') {
+      const r = await dialog.showOpenDialog(win, { properties: ['openDirectory', 'createDirectory'] });
+      return r.canceled ? null : r.filePaths[0] ?? null;
+    }
     const filters = kind === 'generator' ? [{ name: 'Generators and model cards', extensions: ['json', 'onnx'] }] : [{ name: 'Directions', extensions: ['npy', 'json'] }];
     const r = await dialog.showOpenDialog(win, { properties: ['openFile'], filters });
     return r.canceled ? null : r.filePaths[0] ?? null;

@@ -12,7 +12,7 @@ ipcRenderer.on(C.enginePort, (event) => {
 
 contextBridge.exposeInMainWorld('plumbline', {
   platform: 'electron',
-  chooseFile: (kind: 'generator' | 'directions') => ipcRenderer.invoke(C.chooseFile, { kind }),
+  chooseFile: (kind: 'generator' | 'directions' | 'project') => ipcRenderer.invoke(C.chooseFile, { kind }),
   pathForFile: (file: File) => webUtils.getPathForFile(file),
   recent: () => ipcRenderer.invoke(C.recentList, {}),
   addRecent: (path: string) => ipcRenderer.invoke(C.recentAdd, { path }),

@@ -8,7 +8,7 @@ export { DESKTOP_CHANNELS, MENU_COMMANDS, type MenuCommand } from './channels.ts
 
 export const settingKey = z.enum(['theme', 'threads']);
 export const desktopSchemas = {
-  [DESKTOP_CHANNELS.chooseFile]: z.object({ kind: z.enum(['generator', 'directions']) }),
+  [DESKTOP_CHANNELS.chooseFile]: z.object({ kind: z.enum(['generator', 'directions', 'project']) }),
   [DESKTOP_CHANNELS.recentList]: z.object({}),
   [DESKTOP_CHANNELS.recentAdd]: z.object({ path: z.string().min(1).max(4096) }),
   [DESKTOP_CHANNELS.settingGet]: z.object({ key: settingKey }),

@@ -2,7 +2,7 @@
 // interface falls back to typed paths and a WebSocket.
 export interface DesktopBridge {
   platform: 'electron';
-  chooseFile(kind: 'generator' | 'directions'): Promise<string | null>;
+  chooseFile(kind: 'generator' | 'directions' | 'project'): Promise<string | null>;
   pathForFile(file: File): string;
   onMenu(listener: (command: string, arg?: string) => void): () => void;
   onEngineStopped?(listener: (reason: string) => void): () => void;

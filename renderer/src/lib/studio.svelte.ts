@@ -42,6 +42,17 @@ export class Studio {
   busy = $state<string | null>(null);
   historyVersion = $state(0);
   theme = $state<'dark' | 'light'>('dark');
+  /** Seeds pinned into every audit's probe set. */
+  pinned = $state<number[]>([]);
+  /** Seeds tagged as having or lacking an attribute (for difference-of-means directions). */
+  tags = $state<Record<string, 'has' | 'lacks'>>({});
+  lastSaved = $state<string | null>(null);
+  /** Set by the lab when a project is open: persists interface state. */
+  onAutosave: ((ui: { seed: number; psi: number; strengths: Record<string, number>; pinned: number[]; tags: Record<string, 'has' | 'lacks'> }) => Promise<string>) | null = null;
+  /** Set by the lab: reopens the project after an engine restart. */
+  onRecover: (() => Promise<void>) | null = null;
+  #saveTimer: ReturnType<typeof setTimeout> | null = null;
+  #firstPending = 0;
 
   readonly history = new History<Snapshot>();
   #modelPath: string | null = null;
@@ -122,6 +133,7 @@ export class Studio {
       for (const [oldId, s] of Object.entries(keep)) if (byName[names[oldId]]) restored[byName[names[oldId]]] = s;
       this.strengths = { ...Object.fromEntries(this.directions.map((d) => [d.id, 0])), ...restored };
     });
+    if (ok && this.onRecover) await this.onRecover();
     if (ok) {
       this.banner = { kind: 'info', text: 'The engine was restarted and your generator, directions and slider settings were restored.' };
       await Promise.all([this.refreshGrid(), this.requestPreview()]);
@@ -180,6 +192,7 @@ export class Studio {
   setStrength(id: string, value: number): void {
     if (!this.#gestureStart) this.#gestureStart = this.snapshot();
     this.strengths = { ...this.strengths, [id]: clampStrength(value) };
+    this.scheduleSave();
     void this.requestPreview();
   }
 
@@ -221,6 +234,59 @@ export class Studio {
   #record(label: string, before: Snapshot, after: Snapshot): void {
     this.history.push(label, before, after);
     this.historyVersion++;
+    this.scheduleSave();
+  }
+
+  /**
+   * Debounced autosave: at most 300 ms after the last change and never more than 1 s after the
+   * first unsaved one, so a crash loses at most the last second of slider motion.
+   */
+  scheduleSave(): void {
+    if (!this.onAutosave) return;
+    const now = Date.now();
+    if (!this.#saveTimer) this.#firstPending = now;
+    if (this.#saveTimer) clearTimeout(this.#saveTimer);
+    const wait = Math.max(0, Math.min(300, 1000 - (now - this.#firstPending)));
+    this.#saveTimer = setTimeout(() => void this.saveNow(), wait);
+  }
+
+  async saveNow(): Promise<void> {
+    if (this.#saveTimer) clearTimeout(this.#saveTimer);
+    this.#saveTimer = null;
+    if (!this.onAutosave) return;
+    const byName = Object.fromEntries(this.directions.map((d) => [d.id, d.name]));
+    const strengths = Object.fromEntries(Object.entries(this.strengths).filter(([id, v]) => v !== 0 && byName[id]).map(([id, v]) => [byName[id], v]));
+    try {
+      this.lastSaved = await this.onAutosave({ seed: this.seed, psi: this.psi, strengths, pinned: this.pinned, tags: this.tags });
+    } catch (err) {
+      this.banner = { kind: 'error', text: `Autosave failed: ${(err as Error).message}. Your work is still here; try again or open the project elsewhere.` };
+    }
+  }
+
+  /** Applies saved interface state (strengths are stored by direction name, ids change per session). */
+  restoreUi(ui: { seed: number; psi: number; strengths: Record<string, number>; pinned: number[]; tags: Record<string, 'has' | 'lacks'> }): void {
+    const byName = Object.fromEntries(this.directions.map((d) => [d.name, d.id]));
+    this.seed = ui.seed;
+    this.psi = ui.psi;
+    this.pinned = [...ui.pinned];
+    this.tags = { ...ui.tags };
+    const next = Object.fromEntries(this.directions.map((d) => [d.id, 0]));
+    for (const [name, v] of Object.entries(ui.strengths)) if (byName[name]) next[byName[name]] = v;
+    this.strengths = next;
+    this.baseline = null;
+  }
+
+  togglePin(seed = this.seed): void {
+    this.pinned = this.pinned.includes(seed) ? this.pinned.filter((s) => s !== seed) : [...this.pinned, seed].sort((a, b) => a - b);
+    this.scheduleSave();
+  }
+
+  setTag(seed: number, tag: 'has' | 'lacks' | null): void {
+    const next = { ...this.tags };
+    if (tag) next[String(seed)] = tag;
+    else delete next[String(seed)];
+    this.tags = next;
+    this.scheduleSave();
   }
 
   undo(): void {
@@ -243,6 +309,7 @@ export class Studio {
 
   setPsi(psi: number): void {
     this.psi = Math.min(1.5, Math.max(0, psi));
+    this.scheduleSave();
     this.baseline = null;
     void this.requestPreview();
   }

@@ -1,0 +1,128 @@
+// The whole curation flow as an art lead meets it, through the web shell in Chromium: create a
+// project, discover and keep a direction, audit, read a failing direction's reason, repair it,
+// audit again, approve, reload and find everything as left, and survive the engine being killed
+// in the middle of an audit. A screenshot of every screen lands in test-output/screens/.
+import { test, expect, type Page } from '@playwright/test';
+import { mkdirSync, mkdtempSync, readFileSync } from 'node:fs';
+import { tmpdir } from 'node:os';
+import { join } from 'node:path';
+import { startShell } from './shell';
+
+const shots = join(import.meta.dirname, '..', '..', 'test-output', 'screens');
+let shell: Awaited<ReturnType<typeof startShell>>;
+
+test.beforeAll(async () => {
+  mkdirSync(shots, { recursive: true });
+  shell = await startShell({ PLUMBLINE_TEST_HOOKS: '1' });
+});
+test.afterAll(() => shell?.stop());
+
+async function ready(page: Page) {
+  await expect(page.getByTestId('engine-state')).toHaveText('engine ready', { timeout: 30_000 });
+  await expect(page.getByRole('slider', { name: 'turn' })).toBeVisible({ timeout: 30_000 });
+}
+
+async function runAudit(page: Page, names: string[], probes: number) {
+  await page.keyboard.press('Alt+3');
+  await page.getByRole('button', { name: 'None' }).click();
+  for (const n of names) await page.getByRole('checkbox', { name: n, exact: true }).check();
+  await page.getByLabel('Probe count').fill(String(probes));
+  await page.getByRole('button', { name: 'Run audit' }).click();
+}
+
+test('create, discover, audit, repair, approve, reload; the engine dies mid-audit and recovers', async ({ page }) => {
+  test.setTimeout(300_000);
+  const errors: string[] = [];
+  page.on('pageerror', (e) => errors.push(e.message));
+  const projectDir = join(mkdtempSync(join(tmpdir(), 'plumbline-e2e-')), 'emblems');
+  await page.goto(shell.url);
+  await ready(page);
+
+  // Project.
+  await page.getByRole('button', { name: 'New project…' }).click();
+  await page.getByLabel('Path').fill(projectDir);
+  await page.getByRole('button', { name: 'Create', exact: true }).click();
+  await expect(page.getByText('◆ emblems')).toBeVisible();
+  await page.getByRole('button', { name: 'Pin to probes' }).click();
+  await expect(page.getByRole('button', { name: 'Pinned to probes' })).toBeVisible();
+  await page.screenshot({ path: join(shots, 'studio-workbench.png') });
+
+  // Discover: closed-form factorization candidates as strips; keep one by name.
+  await page.keyboard.press('Alt+2');
+  await page.getByRole('button', { name: 'Find candidates' }).click();
+  await expect(page.getByRole('group', { name: /Strip of sefa_0/ })).toBeVisible({ timeout: 60_000 });
+  await page.getByLabel('Name for sefa_0').fill('factor_a');
+  await page.getByRole('button', { name: 'Keep' }).first().click();
+  await expect(page.getByRole('group', { name: /Strip of sefa_0/ })).toHaveCount(0);
+  await page.screenshot({ path: join(shots, 'studio-discover.png') });
+
+  // Audit: outline_bold fails, and says why.
+  await runAudit(page, ['outline_bold', 'turn', 'factor_a'], 32);
+  await expect(page.getByTestId('verdict-outline_bold')).toHaveText('Fail', { timeout: 120_000 });
+  await expect(page.getByTestId('reason-outline_bold')).toContainText('leaks into backdrop');
+  await expect(page.getByTestId('verdict-turn')).toHaveText('Pass');
+  await page.getByRole('button', { name: 'Show outline_bold' }).click();
+  await expect(page.getByRole('figure', { name: /Response curves of outline_bold/ })).toBeVisible();
+  await expect(page.getByAltText(/before/).first()).toBeVisible();
+  await page.screenshot({ path: join(shots, 'studio-audit.png'), fullPage: true });
+
+  // Repair against backdrop, holding the rest; the re-audit shows it clean beside the original.
+  await page.getByRole('checkbox', { name: 'backdrop', exact: true }).check();
+  await page.getByRole('button', { name: 'Repair and re-audit' }).click();
+  await expect(page.getByTestId('verdict-outline_bold_repaired')).toHaveText('Pass', { timeout: 180_000 });
+  await expect(page.getByTestId('verdict-outline_bold')).toHaveText('Fail');
+  await page.getByRole('table', { name: 'Repairs beside their originals' }).scrollIntoViewIfNeeded();
+  await expect(page.getByRole('table', { name: 'Repairs beside their originals' })).toContainText('outline_bold_repaired');
+  await page.screenshot({ path: join(shots, 'studio-repair.png') });
+
+  // Sign-off, recorded in the append-only review log.
+  await page.keyboard.press('Alt+4');
+  await page.getByLabel('Reviewer name').fill('Ines Moreau');
+  await page.getByLabel('Note for outline_bold_repaired').fill('clean after projecting off backdrop');
+  await page.getByRole('button', { name: 'Approve outline_bold_repaired' }).click();
+  await expect(page.getByTestId('status-outline_bold_repaired')).toHaveText('Approved');
+  await page.screenshot({ path: join(shots, 'studio-signoff.png'), fullPage: true });
+  const log = readFileSync(join(projectDir, 'review-log.jsonl'), 'utf8');
+  expect(log).toContain('"reviewer":"Ines Moreau"');
+
+  // Reload: the project comes back as it was left.
+  await page.reload();
+  await ready(page);
+  await expect(page.getByText('◆ emblems')).toBeVisible();
+  await expect(page.getByRole('slider', { name: 'outline_bold_repaired' })).toBeVisible();
+  await expect(page.getByRole('slider', { name: 'factor_a' })).toBeVisible();
+  await expect(page.getByRole('button', { name: 'Pinned to probes' })).toBeVisible();
+  await page.keyboard.press('Alt+4');
+  await expect(page.getByTestId('status-outline_bold_repaired')).toHaveText('Approved');
+
+  // Kill the engine in the middle of an audit: the app says so, restarts it, and the project is intact.
+  await runAudit(page, ['turn', 'factor_a'], 600);
+  await expect(page.getByRole('status').filter({ hasText: /auditing|rendering|measuring/ })).toBeVisible({ timeout: 60_000 });
+  const kill = await fetch(`${shell.origin}/__test/kill-engine?token=${shell.token}`, { method: 'POST' });
+  expect(kill.status).toBe(204);
+  await expect(page.getByRole('alert')).toContainText('engine stopped', { timeout: 30_000 });
+  await page.screenshot({ path: join(shots, 'studio-engine-stopped.png') });
+  await expect(page.getByText(/The engine was restarted and your generator, directions and slider settings were restored/)).toBeVisible({ timeout: 60_000 });
+  await page.keyboard.press('Alt+4');
+  await expect(page.getByTestId('status-outline_bold_repaired')).toHaveText('Approved');
+  await runAudit(page, ['turn'], 8);
+  await expect(page.getByTestId('verdict-turn')).toHaveText(/Needs review|Pass/, { timeout: 60_000 });
+  await page.screenshot({ path: join(shots, 'studio-recovered.png') });
+  expect(errors).toEqual([]);
+});
+
+test('every control on the main screens has an accessible name', async ({ page }) => {
+  await page.goto(shell.url);
+  await ready(page);
+  for (const key of ['Alt+1', 'Alt+2', 'Alt+3', 'Alt+4']) {
+    await page.keyboard.press(key);
+    const unnamed = await page.evaluate(() => {
+      const controls = [...document.querySelectorAll('button, input, select, [role=slider], [role=option]')] as HTMLElement[];
+      return controls.filter((el) => {
+        const label = el.getAttribute('aria-label') || el.textContent?.trim() || (el.id && document.querySelector(`label[for="${el.id}"]`)?.textContent?.trim()) || el.closest('label')?.textContent?.trim() || el.getAttribute('placeholder') || el.getAttribute('title');
+        return !label;
+      }).map((el) => el.outerHTML.slice(0, 120));
+    });
+    expect(unnamed, `unnamed controls after ${key}`).toEqual([]);
+  }
+});
