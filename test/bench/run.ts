@@ -151,19 +151,23 @@ async function auditRows(bareRate: number) {
   const lo = Math.min(...mem.map((m) => m[1]));
   const hi = Math.max(...mem.map((m) => m[1]));
   rows.push(['audit peak memory at 64 / 256 / 1024 probes (fresh process each)', mem.map(([p, m]) => `${p}: ${m.toFixed(0)} MB`).join(', '), '', `max/min ${(hi / lo).toFixed(3)} (target ≤ 1.15)`]);
-  const configs: [number, number, number][] = [[32, 1, 1], [64, 1, 1], [64, 2, 1], [64, 2, 0.5], [128, 2, 0.5]];
-  const perUnit: number[] = [];
+  // Linear in probes × directions × strengths: fit time = fixed + per-unit · units (least squares).
+  const configs: [number, number, number][] = [[32, 1, 1], [64, 1, 1], [64, 2, 1], [64, 2, 0.5], [128, 2, 0.5], [256, 2, 0.5]];
+  const points: [number, number][] = [];
   const cells: string[] = [];
   for (const [p, d, step] of configs) {
     const r = await auditChild(p, d, step, 'l2');
     const strengths = Math.round(4 / step) + 1;
-    const units = p * d * strengths;
-    perUnit.push(r.ms / units);
+    points.push([p * d * strengths, r.ms]);
     cells.push(`${p}×${d}×${strengths}: ${(r.ms / 1000).toFixed(1)} s`);
   }
-  const m = median(perUnit);
-  const spread = Math.max(...perUnit.map((u) => Math.abs(u - m) / m));
-  rows.push(['audit time vs probes × directions × strengths (l2)', cells.join(', '), `median ${m.toFixed(3)} ms per probe·direction·strength`, `largest deviation from linear ${(spread * 100).toFixed(0)}%`]);
+  const mx = points.reduce((a, [x]) => a + x, 0) / points.length;
+  const my = points.reduce((a, [, y]) => a + y, 0) / points.length;
+  const slope = points.reduce((a, [x, y]) => a + (x - mx) * (y - my), 0) / points.reduce((a, [x]) => a + (x - mx) ** 2, 0);
+  const fixed = my - slope * mx;
+  const ssRes = points.reduce((a, [x, y]) => a + (y - fixed - slope * x) ** 2, 0);
+  const ssTot = points.reduce((a, [, y]) => a + (y - my) ** 2, 0);
+  rows.push(['audit time vs probes × directions × strengths (l2)', cells.join(', '), `fit: ${(fixed / 1000).toFixed(2)} s fixed + ${slope.toFixed(3)} ms per unit`, `R² ${(1 - ssRes / ssTot).toFixed(4)} (linear)`]);
 }
 
 const demo = await throughput('demo 128²', demoCardPath(), 16, 256, 15);

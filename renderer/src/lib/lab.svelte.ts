@@ -12,12 +12,25 @@ type Thumb = Extract<Result<'audit.run'>, { cancelled: false }>['thumbnails'][nu
 export type Status = 'draft' | 'in-review' | 'approved' | 'rejected';
 
 const LAST_PROJECT_KEY = 'plumbline.lastProject';
+const RECENT_KEY = 'plumbline.recentProjects';
+const RECENT_LIMIT = 8;
+
+function readRecent(): string[] {
+  try {
+    const v = JSON.parse(globalThis.localStorage?.getItem(RECENT_KEY) ?? '[]');
+    return Array.isArray(v) ? v.filter((x): x is string => typeof x === 'string').slice(0, RECENT_LIMIT) : [];
+  } catch {
+    return [];
+  }
+}
 const REVIEWER_KEY = 'plumbline.reviewer';
 
 export class Lab {
   view = $state<View>('workbench');
   project = $state.raw<ProjectInfo | null>(null);
   reviewer = $state(globalThis.localStorage?.getItem(REVIEWER_KEY) ?? '');
+  /** Recently opened project folders, newest first. */
+  recent = $state<string[]>(readRecent());
 
   method = $state<Params<'lab.discover'>['method']>('sefa');
   components = $state(6);
@@ -70,6 +83,8 @@ export class Lab {
       const p = await this.engine.request('project.open', { path, create });
       this.project = p;
       globalThis.localStorage?.setItem(LAST_PROJECT_KEY, path);
+      this.recent = [path, ...this.recent.filter((r) => r !== path)].slice(0, RECENT_LIMIT);
+      globalThis.localStorage?.setItem(RECENT_KEY, JSON.stringify(this.recent));
       this.studio.onAutosave = (ui) => this.engine.request('project.saveUi', ui).then((r) => r.savedAt);
       this.studio.onRecover = () => this.openProject(path, false);
       await this.refreshDirections(p.directions);
