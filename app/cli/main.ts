@@ -11,6 +11,7 @@ import { Generator } from '../engine/generator.ts';
 import { demoCardPath } from '../engine/host.ts';
 import { parseSeeds } from './seeds.ts';
 import { addLabCommands } from './lab-commands.ts';
+import { addPackCommands } from './pack-commands.ts';
 
 /** Bad command-line input found after parsing (commander prints its own parse errors). */
 class UsageError extends Error {}
@@ -128,7 +129,9 @@ export function buildProgram(): Command {
         await gen.dispose();
       }
     });
-  addLabCommands(program, { progressBar, isCancelled: () => cancelled, usage: (m) => new UsageError(m) }, number, integer);
+  const ctx = { progressBar, isCancelled: () => cancelled, usage: (m: string) => new UsageError(m) };
+  addLabCommands(program, ctx, number, integer);
+  addPackCommands(program, ctx);
   return program;
 }
 

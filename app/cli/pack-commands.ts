@@ -1,0 +1,164 @@
+// `plumbline pack`, `verify`, `apply` and `import`.
+import type { Command } from 'commander';
+import { existsSync, readFileSync } from 'node:fs';
+import { join, resolve } from 'node:path';
+import { createHash } from 'node:crypto';
+import { writeFileAtomic } from '../core/atomic-write.ts';
+import { encodePng } from '../core/image.ts';
+import { applyEdits } from '../core/latent.ts';
+import { PackError, type PackFailure } from '../core/pack.ts';
+import { PlumblineError } from '../core/errors.ts';
+import { Generator } from '../engine/generator.ts';
+import { demoCardPath } from '../engine/host.ts';
+import { buildPack, renderStrip, verifyPack } from '../engine/pack-ops.ts';
+import { Project } from '../engine/project.ts';
+import { parseSeeds } from './seeds.ts';
+import type { CliContext } from './lab-commands.ts';
+
+/** One exit code per failure class, so pipelines can tell them apart (docs/preset-pack.md). */
+export const PACK_EXIT: Record<PackFailure, number> = { archive: 3, hostile: 4, hash: 5, version: 6, generator: 7, range: 8, missing: 9 };
+
+function readFile(path: string): Uint8Array {
+  const f = resolve(path);
+  if (!existsSync(f)) throw new PlumblineError('file-missing', `${f}: pack not found`, { file: f });
+  return new Uint8Array(readFileSync(f));
+}
+
+async function withPackErrors(run: () => Promise<void>): Promise<void> {
+  try {
+    await run();
+  } catch (err) {
+    if (err instanceof PackError) {
+      process.stderr.write(`plumbline: ${err.failure === 'generator' ? 'wrong generator' : err.failure === 'hash' ? 'tampered or corrupted pack' : err.failure === 'version' ? 'unsupported pack version' : err.failure === 'hostile' ? 'unsafe pack refused' : err.failure === 'range' ? 'invalid direction in pack' : err.failure === 'missing' ? 'incomplete pack' : 'unreadable pack'}: ${err.message}\n`);
+      process.exitCode = PACK_EXIT[err.failure];
+      return;
+    }
+    throw err;
+  }
+}
+
+export function addPackCommands(program: Command, ctx: CliContext): void {
+  program
+    .command('pack')
+    .description("bundle a project's approved, audited directions into a preset pack (.plpack)")
+    .requiredOption('--project <dir>', 'project folder')
+    .option('-m, --model <file>', 'the generator the project was audited on (model card or .onnx); default: the bundled demo')
+    .requiredOption('-o, --out <file.plpack>', 'pack to write')
+    .action(async (o) => withPackErrors(async () => {
+      const gen = await Generator.open(resolve(o.model ?? demoCardPath()));
+      try {
+        const { bytes, manifest, skipped } = await buildPack(gen, o.project);
+        writeFileAtomic(resolve(o.out), bytes);
+        for (const d of manifest.directions) process.stdout.write(`packed ${d.name.padEnd(24)} ${d.audit.verdict.padEnd(7)} safe ${d.safeRange[0]}…${d.safeRange[1]} σ  approved by ${d.signOff.reviewer}\n`);
+        for (const s of skipped) process.stdout.write(`skipped ${s}\n`);
+        process.stdout.write(`wrote ${resolve(o.out)} (${bytes.length} bytes) for generator ${manifest.generator.fingerprint.slice(0, 16)}…\n`);
+      } finally {
+        await gen.dispose();
+      }
+    }));
+
+  program
+    .command('verify')
+    .description('check a pack: archive safety, hashes, format version, generator fingerprint and ranges')
+    .requiredOption('--pack <file>', 'the pack')
+    .option('-m, --model <file>', 'the generator production will use; default: the bundled demo')
+    .action(async (o) => withPackErrors(async () => {
+      const bytes = readFile(o.pack);
+      const gen = await Generator.open(resolve(o.model ?? demoCardPath()));
+      try {
+        const r = await verifyPack(bytes, resolve(o.pack), gen);
+        process.stdout.write(`ok: ${r.directions.length} direction(s), ${r.pack.manifest.entries.length} entries with matching SHA-256, format ${r.pack.manifest.version}, generator ${gen.info.name} (${gen.info.fingerprint.slice(0, 16)}…)\n`);
+        for (const d of r.directions) process.stdout.write(`  ${d.name.padEnd(24)} safe ${d.safeRange[0]}…${d.safeRange[1]} σ\n`);
+      } finally {
+        await gen.dispose();
+      }
+    }));
+
+  program
+    .command('apply')
+    .description("render with a pack's directions for production; refuses strengths outside the safe range unless --force")
+    .requiredOption('--pack <file>', 'the pack')
+    .option('-m, --model <file>', 'the generator; default: the bundled demo')
+    .option('-s, --seeds <list>', 'seeds to render, e.g. 0-3')
+    .option('--set <name=strength>', 'a direction and its strength in σ; repeatable', (v: string, prev: string[]) => [...prev, v], [] as string[])
+    .option('--psi <number>', 'truncation ψ (default: the generator card’s)')
+    .option('--preview <name>', "re-render a direction's pack preview exactly, for comparison")
+    .option('--force', 'allow strengths outside the audited safe range (says so in the manifest)')
+    .requiredOption('-o, --out <dir>', 'output folder')
+    .action(async (o) => withPackErrors(async () => {
+      const bytes = readFile(o.pack);
+      const gen = await Generator.open(resolve(o.model ?? demoCardPath()));
+      try {
+        const v = await verifyPack(bytes, resolve(o.pack), gen);
+        const out = resolve(o.out);
+        if (o.preview) {
+          const d = v.directions.find((x) => x.name === o.preview);
+          const spec = v.pack.manifest.directions.find((x) => x.name === o.preview)?.previewSpec;
+          if (!d || !spec) throw ctx.usage(`--preview: no direction '${o.preview}' with a preview in the pack`);
+          const png = await renderStrip(gen, d, spec);
+          writeFileAtomic(join(out, `${d.name}-preview.png`), png);
+          const same = Buffer.from(png).equals(Buffer.from(v.pack.files.get(v.pack.manifest.directions.find((x) => x.name === o.preview)!.preview!)!));
+          process.stdout.write(`${same ? 'identical to' : 'DIFFERS from'} the pack's preview: ${join(out, `${d.name}-preview.png`)}\n`);
+          if (!same) process.exitCode = 1;
+          return;
+        }
+        if (!o.seeds) throw ctx.usage('apply needs --seeds (or --preview <name>)');
+        const seeds = parseSeeds(o.seeds);
+        const sets = (o.set as string[]).map((s) => {
+          const m = /^([A-Za-z0-9_.-]+)=(-?\d+(?:\.\d+)?)$/.exec(s);
+          if (!m) throw ctx.usage(`--set '${s}' must look like name=strength, e.g. crest_size=1.5`);
+          const d = v.directions.find((x) => x.name === m[1]);
+          if (!d) throw ctx.usage(`--set: the pack has no direction '${m[1]}'; it holds ${v.directions.map((x) => x.name).join(', ')}`);
+          return { d, strength: Number(m[2]) };
+        });
+        const outside = sets.filter(({ d, strength }) => strength < d.safeRange[0] || strength > d.safeRange[1]);
+        if (outside.length && !o.force) {
+          throw ctx.usage(`refusing strengths outside the audited safe range: ${outside.map(({ d, strength }) => `${d.name}=${strength} (safe ${d.safeRange[0]}…${d.safeRange[1]})`).join(', ')}; pass --force to render anyway (recorded in the manifest)`);
+        }
+        if (outside.length) process.stderr.write(`warning: forced outside the safe range: ${outside.map(({ d, strength }) => `${d.name}=${strength}`).join(', ')}\n`);
+        const psi = o.psi === undefined ? gen.info.defaultPsi : Number(o.psi);
+        const images = [];
+        for (let at = 0; at < seeds.length; at += gen.batchSize) {
+          const chunk = seeds.slice(at, at + gen.batchSize);
+          const codes = await gen.codesForSeeds(chunk, psi);
+          applyEdits(codes, gen.layout, sets.map(({ d, strength }) => ({ vector: d.vector, layers: d.layers, step: strength * d.sigma })));
+          const r = await gen.synthesize(codes, chunk.length);
+          for (let i = 0; i < chunk.length; i++) {
+            const png = encodePng(gen.toRgba(r.images, i));
+            const file = `seed-${String(chunk[i]).padStart(6, '0')}.png`;
+            writeFileAtomic(join(out, file), png);
+            images.push({ seed: chunk[i], file, sha256: createHash('sha256').update(png).digest('hex') });
+          }
+        }
+        writeFileAtomic(join(out, 'manifest.json'), JSON.stringify({
+          format: 'plumbline.applied', version: 1, createdAt: new Date().toISOString(), pack: v.pack.manifest.project,
+          generator: v.pack.manifest.generator, psi, settings: sets.map(({ d, strength }) => ({ direction: d.name, strength, safeRange: d.safeRange, forced: strength < d.safeRange[0] || strength > d.safeRange[1] })), images,
+        }, null, 2) + '\n');
+        process.stdout.write(`wrote ${images.length} image(s) and manifest.json to ${out}\n`);
+      } finally {
+        await gen.dispose();
+      }
+    }));
+
+  program
+    .command('import')
+    .description("import a pack's directions into a project (after verifying it against the project's generator)")
+    .requiredOption('--pack <file>', 'the pack')
+    .requiredOption('--project <dir>', 'project folder (created if missing)')
+    .option('-m, --model <file>', 'the generator; default: the bundled demo')
+    .action(async (o) => withPackErrors(async () => {
+      const bytes = readFile(o.pack);
+      const gen = await Generator.open(resolve(o.model ?? demoCardPath()));
+      try {
+        const v = await verifyPack(bytes, resolve(o.pack), gen);
+        const project = Project.open(o.project, true, { name: gen.info.name, fingerprint: gen.info.fingerprint });
+        for (const d of v.directions) {
+          // Names were checked against ^[A-Za-z0-9_.-]+$, so files land inside the project's directions/ only.
+          project.saveDirection({ ...d, source: { ...d.source, importedFrom: v.pack.manifest.project } }, gen.layout.space);
+          process.stdout.write(`imported ${d.name}\n`);
+        }
+      } finally {
+        await gen.dispose();
+      }
+    }));
+}
