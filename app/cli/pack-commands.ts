@@ -13,6 +13,8 @@ import { demoCardPath } from '../engine/host.ts';
 import { buildPack, renderStrip, verifyPack } from '../engine/pack-ops.ts';
 import { Project } from '../engine/project.ts';
 import { parseSeeds } from './seeds.ts';
+import { parseRecipe, renderVariants, type VariantDirection } from '../engine/variants.ts';
+import { EngineHost } from '../engine/host.ts';
 import type { CliContext } from './lab-commands.ts';
 
 /** One exit code per failure class, so pipelines can tell them apart (docs/preset-pack.md). */
@@ -137,6 +139,51 @@ export function addPackCommands(program: Command, ctx: CliContext): void {
         process.stdout.write(`wrote ${images.length} image(s) and manifest.json to ${out}\n`);
       } finally {
         await gen.dispose();
+      }
+    }));
+
+  program
+    .command('variants')
+    .description('render a variant set from a recipe: PNGs, a reproducing manifest and a labelled contact sheet (resumable)')
+    .option('-m, --model <file>', 'the generator; default: the bundled demo')
+    .requiredOption('--recipe <file>', 'variant recipe (.json, docs/variant-recipe.md)')
+    .option('-d, --directions <file>', 'directions (.npy with .json sidecar)')
+    .option('--pack <file>', 'a preset pack instead of --directions (its safe ranges are enforced)')
+    .option('--force', 'allow strengths outside a pack’s safe range')
+    .requiredOption('-o, --out <dir>', 'output folder; rerun the same command to resume')
+    .action(async (o) => withPackErrors(async () => {
+      if (!o.directions === !o.pack) throw ctx.usage('give exactly one of --directions or --pack');
+      const recipeFile = resolve(o.recipe);
+      if (!existsSync(recipeFile)) throw new PlumblineError('file-missing', `${recipeFile}: recipe not found`, { file: recipeFile });
+      const recipe = parseRecipe(readFileSync(recipeFile, 'utf8'), recipeFile);
+      const host = new EngineHost({});
+      await host.openModel(resolve(o.model ?? demoCardPath()));
+      try {
+        const gen = host.generator!;
+        let dirs: VariantDirection[];
+        if (o.pack) dirs = (await verifyPack(readFile(o.pack), resolve(o.pack), gen)).directions;
+        else dirs = host.openDirections(resolve(o.directions)).directions.map((d) => host.direction(d.id));
+        const job = renderVariants(gen, recipe, dirs, resolve(o.out), { force: o.force });
+        let bar: ReturnType<CliContext['progressBar']> | null = null;
+        for (;;) {
+          if (ctx.isCancelled()) {
+            await job.return(undefined as never);
+            bar?.stop();
+            process.stderr.write('stopped; run the same command again to resume\n');
+            process.exitCode = 130;
+            return;
+          }
+          const step = await job.next();
+          if (step.done) {
+            bar?.stop();
+            process.stdout.write(`${recipe.name}: ${step.value.rendered} rendered, ${step.value.reused} kept from an earlier run; manifest.json and contact-sheet.png in ${resolve(o.out)}\n`);
+            return;
+          }
+          bar ??= ctx.progressBar(step.value.total, 'variants');
+          bar.update(step.value.done);
+        }
+      } finally {
+        await host.dispose();
       }
     }));
 
