@@ -88,7 +88,7 @@ export function buildProgram(): Command {
           chunk.forEach((seed, i) => {
             const png = encodePng(gen.toRgba(r.images, i));
             const file = `seed-${String(seed).padStart(6, '0')}.png`;
-            writeFileAtomic(join(out, file), png);
+            writeFileAtomic(join(out, file), png, { durable: false });
             images.push({ seed, file, sha256: createHash('sha256').update(png).digest('hex') });
           });
           bar.update(images.length);

@@ -4,7 +4,11 @@ import { closeSync, fsyncSync, mkdirSync, openSync, renameSync, unlinkSync, writ
 import { dirname, basename, join } from 'node:path';
 import { randomBytes } from 'node:crypto';
 
-export function writeFileAtomic(file: string, content: Uint8Array | string): void {
+/**
+ * `durable: false` skips the fsync: still atomic for readers (rename), but a power cut may lose
+ * the newest files. Right for bulk renders that a resumed run re-checks by hash.
+ */
+export function writeFileAtomic(file: string, content: Uint8Array | string, options: { durable?: boolean } = {}): void {
   mkdirSync(dirname(file), { recursive: true });
   const tmp = join(dirname(file), `.${basename(file)}.${randomBytes(6).toString('hex')}.tmp`);
   const bytes = typeof content === 'string' ? new TextEncoder().encode(content) : content;
@@ -12,7 +16,7 @@ export function writeFileAtomic(file: string, content: Uint8Array | string): voi
   try {
     let at = 0;
     while (at < bytes.length) at += writeSync(fd, bytes, at, bytes.length - at);
-    fsyncSync(fd);
+    if (options.durable ?? true) fsyncSync(fd);
   } catch (err) {
     closeSync(fd);
     unlinkSync(tmp);

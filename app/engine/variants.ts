@@ -101,7 +101,7 @@ export async function* renderVariants(gen: Generator, recipe: Recipe, directions
       todo.forEach((j, k) => {
         const img = gen.toRgba(r.images, k);
         const png = encodePng(img);
-        writeFileAtomic(join(out, j.file), png);
+        writeFileAtomic(join(out, j.file), png, { durable: false });
         images.push({ file: j.file, seed: j.seed, setting: j.s.label, sha256: sha(png) });
         if (j.i < 8) thumbs.set(j.file, img);
         rendered++;

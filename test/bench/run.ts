@@ -12,6 +12,10 @@ import { demoCardPath } from '../../app/engine/host.ts';
 import { request, type Message } from '../../app/protocol/messages.ts';
 import { startWebShell } from '../../app/web/serve.ts';
 import { authorLarge } from './author-large.ts';
+import { renderVariants } from '../../app/engine/variants.ts';
+import { readPack, writePack } from '../../app/core/pack.ts';
+import { decodeNpy, encodeNpy } from '../../app/core/npy.ts';
+import { Random } from '../../app/core/random.ts';
 
 const root = join(import.meta.dirname, '..', '..');
 const THREADS = Number(process.env.PLUMBLINE_THREADS) || 1;
@@ -130,6 +134,51 @@ async function coldStart() {
   rows.push(['cold start: new engine process → first demo image', `median ${median(times).toFixed(0)} ms`, '', `(${times.map((t) => t.toFixed(0)).join(', ')} ms)`]);
 }
 
+/** Variant-set rendering (render, check, PNG, write, manifest) against the bare session.run rate. */
+async function variantRow(label: string, card: string, bareRate: number, seeds: number[], settings: number, batch: number) {
+  const gen = await Generator.open(card, { threads: THREADS });
+  gen.batchSize = batch;
+  const out = mkdtempSync(join(tmpdir(), 'plumbline-variants-'));
+  try {
+    const v = { name: 'bench', vector: new Float32Array(gen.layout.size).fill(1 / Math.sqrt(gen.layout.size)), layers: null, sigma: 1 };
+    const recipe = { format: 'plumbline.variant-recipe' as const, version: 1 as const, name: 'bench', seeds, psi: 0.7, settings: Array.from({ length: settings }, (_, k) => ({ label: `s${k}`, strengths: { bench: k - 1 } })) };
+    const t = performance.now();
+    const job = renderVariants(gen, recipe, [v], out);
+    for (;;) if ((await job.next()).done) break;
+    const rate = (seeds.length * settings) / ((performance.now() - t) / 1000);
+    rows.push([`${label}: variant set (render + PNG + write + manifest), batch ${batch}`, `${rate.toFixed(1)} img/s`, `${bareRate.toFixed(1)} img/s bare`, `${(rate / bareRate).toFixed(3)}× (target ≥ 0.9)`]);
+  } finally {
+    rmSync(out, { recursive: true, force: true });
+    await gen.dispose();
+  }
+}
+
+/** Pack build and verify for 50 directions of 512 dimensions (archive work only: no preview rendering). */
+async function packRow() {
+  const rng = new Random(5);
+  const files: { path: string; bytes: Uint8Array }[] = [];
+  const directions = Array.from({ length: 50 }, (_, k) => {
+    const v = Float32Array.from({ length: 512 }, () => rng.normal());
+    files.push({ path: `directions/d${k}.npy`, bytes: encodeNpy(v, [512]) });
+    files.push({ path: `directions/d${k}.json`, bytes: new TextEncoder().encode(JSON.stringify({ format: 'plumbline.directions', version: 1, directions: [{ name: `d${k}` }] })) });
+    return { name: `d${k}`, npy: `directions/d${k}.npy`, meta: `directions/d${k}.json`, preview: null, target: null, layers: null, sigma: 1, safeRange: [-2, 2] as [number, number], audit: { verdict: 'pass' as const, reason: '', leakage: { value: 0, low: 0, high: 0 }, pathLength: { value: 0, low: 0, high: 0 }, probes: 128, file: null }, signOff: { status: 'approved' as const, reviewer: 'bench', at: '', note: '' }, previewSpec: null };
+  });
+  const manifest = { format: 'plumbline.pack' as const, version: 1, createdAt: '', createdBy: 'bench', project: 'bench', generator: { name: 'bench', fingerprint: '0'.repeat(64) }, directions, caution: '' };
+  const build: number[] = [];
+  const verify: number[] = [];
+  let bytes = new Uint8Array(0);
+  for (let r = 0; r < 5; r++) {
+    let t = performance.now();
+    bytes = await writePack(files, manifest);
+    build.push(performance.now() - t);
+    t = performance.now();
+    const p = await readPack(bytes);
+    for (const d of p.manifest.directions) decodeNpy(p.files.get(d.npy)!, d.npy);
+    verify.push(performance.now() - t);
+  }
+  rows.push(['preset pack, 50 directions × 512 dims (archive only)', `build ${median(build).toFixed(1)} ms, verify ${median(verify).toFixed(1)} ms`, `${(bytes.length / 1024).toFixed(0)} KiB`, '']);
+}
+
 /** Runs one audit in a fresh process (so peak memory is its own) and returns its figures. */
 function auditChild(probes: number, directions: number, step: number, distance = 'ssim'): Promise<{ ms: number; inRunMs: number; images: number; maxRssMb: number }> {
   return new Promise((done, fail) => {
@@ -174,10 +223,13 @@ const demo = await throughput('demo 128²', demoCardPath(), 16, 256, 15);
 const dir = mkdtempSync(join(tmpdir(), 'plumbline-bench-'));
 try {
   const large = authorLarge(dir);
-  await throughput(`realistic 256², ${(large.parameters / 1e6).toFixed(1)} M params`, large.card, 4, 8, 3);
+  const big = await throughput(`realistic 256², ${(large.parameters / 1e6).toFixed(1)} M params`, large.card, 4, 8, 3);
+  await variantRow('realistic 256²', large.card, big.rate, [1, 2, 3, 4], 2, 4);
 } finally {
   rmSync(dir, { recursive: true, force: true });
 }
+await variantRow('demo 128²', demoCardPath(), demo.rate, Array.from({ length: 64 }, (_, i) => i), 4, 16);
+await packRow();
 await previewLatency(demo.single);
 await coldStart();
 await auditRows(demo.rate);
