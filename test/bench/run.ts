@@ -166,7 +166,7 @@ async function packRow() {
   const manifest = { format: 'plumbline.pack' as const, version: 1, createdAt: '', createdBy: 'bench', project: 'bench', generator: { name: 'bench', fingerprint: '0'.repeat(64) }, directions, caution: '' };
   const build: number[] = [];
   const verify: number[] = [];
-  let bytes = new Uint8Array(0);
+  let bytes: Uint8Array = new Uint8Array(0);
   for (let r = 0; r < 5; r++) {
     let t = performance.now();
     bytes = await writePack(files, manifest);
