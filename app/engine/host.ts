@@ -20,6 +20,9 @@ import { defaultThreads } from './sessions.ts';
 import { runAudit } from './audit.ts';
 import { discoverByTags, discoverPca, discoverSefa, fitBoundary, repairDirection, type LabDirection } from './lab.ts';
 import { Project, vectorHash } from './project.ts';
+import { buildPack, verifyPack } from './pack-ops.ts';
+import { PackError } from '../core/pack.ts';
+import { writeFileAtomic } from '../core/atomic-write.ts';
 import type { RgbaImage } from '../core/image.ts';
 import { applyEdits } from '../core/latent.ts';
 
@@ -201,6 +204,32 @@ export class EngineHost {
       case 'project.saveUi': {
         if (!this.#project) throw new PlumblineError('bad-request', 'no project is open');
         return { savedAt: this.#project.saveUi(req.params as Params<'project.saveUi'>) };
+      }
+      case 'pack.build': {
+        if (!this.#project) throw new PlumblineError('bad-request', 'building a pack needs an open project');
+        const out = resolve((req.params as Params<'pack.build'>).out);
+        const r = await buildPack(this.#requireGenerator(), this.#project.dir);
+        writeFileAtomic(out, r.bytes);
+        return { file: out, directions: r.manifest.directions.map((d) => d.name), skipped: r.skipped, bytes: r.bytes.length };
+      }
+      case 'pack.import': {
+        const gen = this.#requireGenerator();
+        const file = resolve((req.params as Params<'pack.import'>).path);
+        if (!existsSync(file)) throw new PlumblineError('file-missing', `${file}: pack not found`, { file });
+        let verified;
+        try {
+          verified = await verifyPack(new Uint8Array(readFileSync(file)), file, gen);
+        } catch (err) {
+          if (err instanceof PackError) throw new PlumblineError('bad-request', err.message, { file });
+          throw err;
+        }
+        const imported: string[] = [];
+        for (const d of verified.directions) {
+          const entry = this.#register({ ...d, source: { ...d.source, importedFrom: verified.pack.manifest.project } }, true);
+          this.#project?.saveDirection(entry, gen.layout.space);
+          imported.push(entry.name);
+        }
+        return { imported, directions: [...this.#directions.values()].filter((d) => d.kept).map((d) => this.#info(d)) };
       }
       case 'project.review': {
         const p = req.params as Params<'project.review'>;

@@ -60,6 +60,8 @@ export const requestSchemas = {
   'lab.repair': z.object({ direction: z.string().min(1), against: z.array(z.string().min(1)).min(1).max(32), hold: z.union([z.literal('others'), z.array(z.string())]).default([]) }),
   'project.open': z.object({ path: z.string().min(1), create: z.boolean().default(false) }),
   'project.saveUi': z.object({ seed, psi, strengths: z.record(z.string(), strength), pinned: z.array(seed).max(10_000), tags: z.record(z.string(), z.enum(['has', 'lacks'])) }),
+  'pack.build': z.object({ out: z.string().min(1) }),
+  'pack.import': z.object({ path: z.string().min(1) }),
   'project.review': z.object({ direction: z.string().min(1), status: z.enum(['draft', 'in-review', 'approved', 'rejected']), reviewer: z.string().min(1).max(120), note: z.string().max(4000).default('') }),
 } as const;
 export type Method = keyof typeof requestSchemas;
@@ -183,6 +185,8 @@ export const resultSchemas = {
   'project.open': z.object({ path: z.string(), name: z.string(), generatorFingerprint: z.string().nullable(), generatorMatches: z.boolean(), directions: z.array(directionInfoSchema), audits: z.array(z.string()), ui: z.object({ seed, psi, strengths: z.record(z.string(), z.number()), pinned: z.array(seed), tags: z.record(z.string(), z.enum(['has', 'lacks'])) }).nullable() }),
   'project.saveUi': z.object({ savedAt: z.string() }),
   'project.review': z.object({ direction: z.string(), signOff: signOffSchema }),
+  'pack.build': z.object({ file: z.string(), directions: z.array(z.string()), skipped: z.array(z.string()), bytes: z.number() }),
+  'pack.import': z.object({ imported: z.array(z.string()), directions: z.array(directionInfoSchema) }),
 } satisfies Record<Method, z.ZodType>;
 export type Result<M extends Method> = z.infer<(typeof resultSchemas)[M]>;
 

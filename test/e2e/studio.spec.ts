@@ -85,6 +85,15 @@ test('create, discover, audit, repair, approve, reload; the engine dies mid-audi
   const log = readFileSync(join(projectDir, 'review-log.jsonl'), 'utf8');
   expect(log).toContain('"reviewer":"Ines Moreau"');
 
+  // A preset pack of the approved direction, then imported back (verified against the generator).
+  const packPath = join(projectDir, '..', 'emblems.plpack');
+  await page.getByLabel('Pack file to write').fill(packPath);
+  await page.getByRole('button', { name: 'Build pack' }).click();
+  await expect(page.getByRole('status').filter({ hasText: 'emblems.plpack with outline_bold_repaired' })).toBeVisible({ timeout: 60_000 });
+  await page.getByLabel('Pack file to import').fill(packPath);
+  await page.getByRole('button', { name: 'Import', exact: true }).click();
+  await expect(page.getByRole('status').filter({ hasText: 'Imported outline_bold_repaired' })).toBeVisible({ timeout: 30_000 });
+
   // Reload: the project comes back as it was left.
   await page.reload();
   await ready(page);

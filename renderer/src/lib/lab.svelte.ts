@@ -184,6 +184,21 @@ export class Lab {
     });
   }
 
+  async buildPack(out: string): Promise<void> {
+    await this.#guard(`Building pack ${out}`, async () => {
+      const r = await this.engine.request('pack.build', { out });
+      this.studio.banner = { kind: 'info', text: `Wrote ${r.file} with ${r.directions.join(', ')} (${Math.round(r.bytes / 1024)} KiB).${r.skipped.length ? ` Not included: ${r.skipped.join('; ')}.` : ''}` };
+    });
+  }
+
+  async importPack(path: string): Promise<void> {
+    await this.#guard(`Importing ${path}`, async () => {
+      const r = await this.engine.request('pack.import', { path });
+      await this.refreshDirections(r.directions);
+      this.studio.banner = { kind: 'info', text: `Imported ${r.imported.join(', ')} from ${path}.` };
+    });
+  }
+
   thumbUrl(bytes: Uint8Array): string {
     return URL.createObjectURL(new Blob([bytes as Uint8Array<ArrayBuffer>], { type: 'image/png' }));
   }
