@@ -21,6 +21,7 @@ import { runAudit } from './audit.ts';
 import { discoverByTags, discoverPca, discoverSefa, fitBoundary, repairDirection, type LabDirection } from './lab.ts';
 import { Project, vectorHash } from './project.ts';
 import { buildPack, verifyPack } from './pack-ops.ts';
+import { renderVariants } from './variants.ts';
 import { PackError } from '../core/pack.ts';
 import { writeFileAtomic } from '../core/atomic-write.ts';
 import type { RgbaImage } from '../core/image.ts';
@@ -57,7 +58,6 @@ interface Job {
 }
 
 type Progress = { done: number; total: number; label: string };
-const JOB_METHODS = new Set<Method>(['grid.render', 'lab.discover', 'audit.run', 'lab.repair']);
 
 export interface HostOptions {
   threads?: number;
@@ -114,7 +114,8 @@ export class EngineHost {
       case 'grid.render':
       case 'lab.discover':
       case 'audit.run':
-      case 'lab.repair': {
+      case 'lab.repair':
+      case 'variants.render': {
         const jobId = this.#nextJob++;
         this.#jobs.push({ jobId, request: req, port, cancelled: false, steps: this.#jobFor(req) });
         break;
@@ -340,6 +341,8 @@ export class EngineHost {
         return this.#discoverJob(req.params as Params<'lab.discover'>);
       case 'audit.run':
         return this.#auditJob(req.params as Params<'audit.run'>);
+      case 'variants.render':
+        return this.#variantsJob(req.params as Params<'variants.render'>);
       default:
         return this.#repairJob(req.params as Params<'lab.repair'>);
     }
@@ -409,6 +412,23 @@ export class EngineHost {
         last = step.value.done;
         yield step.value;
       } else await this.#checkpoint();
+    }
+  }
+
+  async *#variantsJob(p: Params<'variants.render'>): AsyncGenerator<Progress, Result<'variants.render'>, void> {
+    const gen = this.#requireGenerator();
+    const used = [...new Set(p.settings.flatMap((s) => Object.keys(s.strengths)))].map((id) => this.direction(id));
+    const recipe = { format: 'plumbline.variant-recipe' as const, version: 1 as const, name: p.name, seeds: p.seeds, psi: p.psi, settings: p.settings.map((s) => ({ label: s.label, strengths: Object.fromEntries(Object.entries(s.strengths).map(([id, v]) => [this.direction(id).name, v])) })) };
+    const out = resolve(p.out);
+    const job = renderVariants(gen, recipe, used, out);
+    for (;;) {
+      if (this.#running?.cancelled) {
+        await job.return(undefined as never);
+        return { cancelled: true };
+      }
+      const step = await job.next();
+      if (step.done) return { cancelled: false, out, rendered: step.value.rendered, reused: step.value.reused, contactSheet: new Uint8Array(readFileSync(join(out, 'contact-sheet.png'))) };
+      yield step.value;
     }
   }
 

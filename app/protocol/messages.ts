@@ -61,6 +61,14 @@ export const requestSchemas = {
   'project.open': z.object({ path: z.string().min(1), create: z.boolean().default(false) }),
   'project.saveUi': z.object({ seed, psi, strengths: z.record(z.string(), strength), pinned: z.array(seed).max(10_000), tags: z.record(z.string(), z.enum(['has', 'lacks'])) }),
   'pack.build': z.object({ out: z.string().min(1) }),
+  'variants.render': z.object({
+    name: z.string().regex(/^[A-Za-z0-9_.-]{1,80}$/, 'letters, digits, _ . - only'),
+    seeds: z.array(seed).min(1).max(10_000),
+    psi,
+    /** Strengths keyed by direction id. */
+    settings: z.array(z.object({ label: z.string().regex(/^[A-Za-z0-9_.=+-]{1,60}$/, 'letters, digits and _ . = + - only'), strengths: z.record(z.string(), strength) })).min(1).max(200),
+    out: z.string().min(1),
+  }),
   'pack.import': z.object({ path: z.string().min(1) }),
   'project.review': z.object({ direction: z.string().min(1), status: z.enum(['draft', 'in-review', 'approved', 'rejected']), reviewer: z.string().min(1).max(120), note: z.string().max(4000).default('') }),
 } as const;
@@ -185,6 +193,7 @@ export const resultSchemas = {
   'project.open': z.object({ path: z.string(), name: z.string(), generatorFingerprint: z.string().nullable(), generatorMatches: z.boolean(), directions: z.array(directionInfoSchema), audits: z.array(z.string()), ui: z.object({ seed, psi, strengths: z.record(z.string(), z.number()), pinned: z.array(seed), tags: z.record(z.string(), z.enum(['has', 'lacks'])) }).nullable() }),
   'project.saveUi': z.object({ savedAt: z.string() }),
   'project.review': z.object({ direction: z.string(), signOff: signOffSchema }),
+  'variants.render': z.union([z.object({ cancelled: z.literal(true) }), z.object({ cancelled: z.literal(false), out: z.string(), rendered: z.number(), reused: z.number(), contactSheet: bytes })]),
   'pack.build': z.object({ file: z.string(), directions: z.array(z.string()), skipped: z.array(z.string()), bytes: z.number() }),
   'pack.import': z.object({ imported: z.array(z.string()), directions: z.array(directionInfoSchema) }),
 } satisfies Record<Method, z.ZodType>;

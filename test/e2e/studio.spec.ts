@@ -94,6 +94,22 @@ test('create, discover, audit, repair, approve, reload; the engine dies mid-audi
   await page.getByRole('button', { name: 'Import', exact: true }).click();
   await expect(page.getByRole('status').filter({ hasText: 'Imported outline_bold_repaired' })).toBeVisible({ timeout: 30_000 });
 
+  // A variant set from slider settings, rendered with progress into a folder, with its contact sheet.
+  await page.keyboard.press('Alt+1');
+  await page.getByRole('slider', { name: 'crest_size' }).fill('1.5');
+  await page.keyboard.press('Alt+5');
+  await page.getByLabel('Setting name').fill('big');
+  await page.getByRole('button', { name: 'Add current sliders as a setting' }).click();
+  await expect(page.getByRole('list', { name: 'Settings' })).toContainText('crest_size +1.5');
+  await page.getByLabel('Variant seeds').fill('0-3');
+  await page.getByLabel('Output folder').fill(join(projectDir, 'renders', 'set1'));
+  await page.getByRole('button', { name: 'Render variant set' }).click();
+  await expect(page.getByRole('status').filter({ hasText: '8 rendered, 0 kept' })).toBeVisible({ timeout: 60_000 });
+  await expect(page.getByAltText('Contact sheet of variant_set')).toBeVisible();
+  await page.screenshot({ path: join(shots, 'studio-variants.png') });
+  await page.keyboard.press('Alt+1');
+  await page.getByRole('button', { name: 'Reset crest_size' }).click();
+
   // Reload: the project comes back as it was left.
   await page.reload();
   await ready(page);
@@ -123,7 +139,7 @@ test('create, discover, audit, repair, approve, reload; the engine dies mid-audi
 test('every control on the main screens has an accessible name', async ({ page }) => {
   await page.goto(shell.url);
   await ready(page);
-  for (const key of ['Alt+1', 'Alt+2', 'Alt+3', 'Alt+4']) {
+  for (const key of ['Alt+1', 'Alt+2', 'Alt+3', 'Alt+4', 'Alt+5']) {
     await page.keyboard.press(key);
     const unnamed = await page.evaluate(() => {
       const controls = [...document.querySelectorAll('button, input, select, [role=slider], [role=option]')] as HTMLElement[];

@@ -5,7 +5,7 @@ import type { AuditWire, DirectionInfo, Params, Result, WireImage } from '../../
 import { EngineRequestError } from './engine.ts';
 import type { Studio } from './studio.svelte.ts';
 
-export type View = 'workbench' | 'discover' | 'audit' | 'signoff';
+export type View = 'workbench' | 'discover' | 'audit' | 'signoff' | 'variants';
 type ProjectInfo = Result<'project.open'>;
 type Candidate = Extract<Result<'lab.discover'>, { cancelled: false }>['candidates'][number];
 type Thumb = Extract<Result<'audit.run'>, { cancelled: false }>['thumbnails'][number];
@@ -47,6 +47,15 @@ export class Lab {
   thumbnails = $state.raw<Thumb[]>([]);
   focus = $state<string | null>(null);
   #auditRequest = 0;
+
+  variantName = $state('variant_set');
+  variantSeeds = $state('0-7');
+  variantOut = $state('');
+  variantSettings = $state<{ label: string; strengths: Record<string, number> }[]>([{ label: 'base', strengths: {} }]);
+  variantProgress = $state<{ done: number; total: number; label: string } | null>(null);
+  contactSheet = $state<string | null>(null);
+  variantSummary = $state<string | null>(null);
+  #variantRequest = 0;
 
   repairAgainst = $state<string[]>([]);
   holdOthers = $state(true);
@@ -184,6 +193,44 @@ export class Lab {
     });
   }
 
+  /** Captures the workbench sliders as one setting of the variant set. */
+  addSettingFromSliders(label: string): void {
+    const strengths = Object.fromEntries(Object.entries(this.studio.strengths).filter(([, v]) => v !== 0));
+    const clean = label.replace(/[^A-Za-z0-9_.=+-]/g, '_').slice(0, 60) || `setting_${this.variantSettings.length}`;
+    this.variantSettings = [...this.variantSettings.filter((s) => s.label !== clean), { label: clean, strengths }];
+  }
+
+  removeSetting(label: string): void {
+    this.variantSettings = this.variantSettings.filter((s) => s.label !== label);
+  }
+
+  async renderVariants(): Promise<void> {
+    let seeds: number[];
+    try {
+      seeds = parseSeedList(this.variantSeeds);
+    } catch (err) {
+      this.studio.banner = { kind: 'error', text: (err as Error).message };
+      return;
+    }
+    this.variantProgress = { done: 0, total: 1, label: 'starting' };
+    await this.#guard('Rendering the variant set', async () => {
+      const pending = this.engine.request('variants.render', { name: this.variantName, seeds, psi: this.studio.psi, settings: this.variantSettings, out: this.variantOut }, (done, total, label) => (this.variantProgress = { done, total, label }));
+      this.#variantRequest = this.engine.lastRequestId;
+      const r = await pending;
+      if (r.cancelled) {
+        this.variantSummary = 'Cancelled; render again to resume where it stopped.';
+        return;
+      }
+      this.contactSheet = this.thumbUrl(r.contactSheet);
+      this.variantSummary = `${r.rendered} rendered, ${r.reused} kept from an earlier run, in ${r.out}`;
+    });
+    this.variantProgress = null;
+  }
+
+  async cancelVariants(): Promise<void> {
+    if (this.#variantRequest) await this.engine.request('job.cancel', { jobId: this.#variantRequest });
+  }
+
   async buildPack(out: string): Promise<void> {
     await this.#guard(`Building pack ${out}`, async () => {
       const r = await this.engine.request('pack.build', { out });
@@ -210,4 +257,19 @@ export class Lab {
   safeRange(name: string): [number, number] | null {
     return this.report?.directions.find((d) => d.name === name)?.safeRange ?? null;
   }
+}
+
+/** "0-7,12" → [0..7, 12]. */
+export function parseSeedList(text: string): number[] {
+  const out: number[] = [];
+  for (const part of text.split(',').map((x) => x.trim()).filter(Boolean)) {
+    const m = /^(\d+)(?:-(\d+))?$/.exec(part);
+    if (!m) throw new Error(`'${part}' is not a seed or a range like 0-7`);
+    const a = Number(m[1]);
+    const b = m[2] === undefined ? a : Number(m[2]);
+    if (b < a || b - a > 10_000) throw new Error(`seed range '${part}' is backwards or too long`);
+    for (let s = a; s <= b; s++) out.push(s);
+  }
+  if (!out.length) throw new Error('no seeds given');
+  return out;
 }
