@@ -78,8 +78,8 @@ export async function* renderVariants(gen: Generator, recipe: Recipe, directions
     }, null, 2) + '\n');
   for (let at = 0; at < jobs.length; at += gen.batchSize) {
     const chunk = jobs.slice(at, at + gen.batchSize);
-    const todo = chunk.filter((j) => !(known.has(j.file) && existsSync(join(out, j.file)) && sha(readFileSync(join(out, j.file))) === known.get(j.file)));
-    for (const j of chunk.filter((x) => !todo.includes(x))) {
+    const pending = chunk.filter((j) => !(known.has(j.file) && existsSync(join(out, j.file)) && sha(readFileSync(join(out, j.file))) === known.get(j.file)));
+    for (const j of chunk.filter((x) => !pending.includes(x))) {
       images.push({ file: j.file, seed: j.seed, setting: j.s.label, sha256: known.get(j.file)! });
       if (j.i < 8) {
         const png = decode(readFileSync(join(out, j.file)));
@@ -87,9 +87,9 @@ export async function* renderVariants(gen: Generator, recipe: Recipe, directions
       }
       reused++;
     }
-    if (todo.length) {
-      const codes = new Float32Array(todo.length * per);
-      todo.forEach((j, k) => {
+    if (pending.length) {
+      const codes = new Float32Array(pending.length * per);
+      pending.forEach((j, k) => {
         const row = base.slice(j.i * per, (j.i + 1) * per);
         applyEdits(row, gen.layout, Object.entries(j.s.strengths).map(([name, strength]) => {
           const d = byName.get(name)!;
@@ -97,8 +97,8 @@ export async function* renderVariants(gen: Generator, recipe: Recipe, directions
         }));
         codes.set(row, k * per);
       });
-      const r = await gen.synthesize(codes, todo.length);
-      todo.forEach((j, k) => {
+      const r = await gen.synthesize(codes, pending.length);
+      pending.forEach((j, k) => {
         const img = gen.toRgba(r.images, k);
         const png = encodePng(img);
         writeFileAtomic(join(out, j.file), png, { durable: false });
