@@ -12,6 +12,7 @@ import { DISTANCE_EXPONENT, imageDistance, type ImageLayout, type PathDistance }
 import { attributeDelta, resolveAttributes, scoreBatch, type AttributeSpec } from './attributes.ts';
 import type { Generator } from './generator.ts';
 import type { ScorerModel } from './scorer-model.ts';
+import { SsimDistanceModel } from './distance-model.ts';
 import { groundTruthMetrics } from './lab.ts';
 
 export interface AuditDirection {
@@ -184,6 +185,8 @@ export async function* runAudit(gen: Generator, directions: AuditDirection[], ra
   const { width, height } = gen.imageSize();
   const geometry: ImageLayout = { width, height, layout: gen.imageLayout, range: gen.range };
   const bootstrap = new ProbeBootstrap(n, settings.bootstrapResamples, settings.seed);
+  const ssimModel = distance === 'ssim' && Math.min(width, height) >= 11 ? await SsimDistanceModel.create(height, width, gen.range, 1) : null;
+  try {
 
   const editCodes = (at: number, m: number, d: AuditDirection, s: number, extra: { d: AuditDirection; s: number }[] = []) => {
     const codes = probeCodes.slice(at * per, (at + m) * per);
@@ -234,8 +237,11 @@ export async function* runAudit(gen: Generator, directions: AuditDirection[], ra
           // Path length: the same batch one ε further along the direction.
           const next = await gen.synthesize(editCodes(at, m, d, s + eps), m);
           const feats = distance === 'features' ? await Promise.all([out, next].map((o) => models.features!.features(Array.from({ length: m }, (_, i) => gen.toRgba(o.images, i))))) : null;
+          // SSIM runs natively in the engine (same definition as the JS reference, checked in tests).
+          const ssimBatch = ssimModel && geometry.layout === 'NCHW' ? await ssimModel.distances(out.images, next.images, m) : null;
           for (let i = 0; i < m; i++) {
-            const v = (feats ? featureDistance(feats[0], feats[1], i) : imageDistance(distance as PathDistance, out.images, i, next.images, i, geometry)) / eps ** exponent;
+            const raw = feats ? featureDistance(feats[0], feats[1], i) : ssimBatch ? ssimBatch[i] : imageDistance(distance as PathDistance, out.images, i, next.images, i, geometry);
+            const v = raw / eps ** exponent;
             ppl[pi].push(v);
             if (Math.abs(s) <= ref) {
               pplPerProbe[at + i] += v;
@@ -437,6 +443,10 @@ export async function* runAudit(gen: Generator, directions: AuditDirection[], ra
     combinations,
     groundTruth,
   };
+  } finally {
+    // Released however the audit ends: finished, cancelled (return()) or failed.
+    await ssimModel?.dispose();
+  }
 }
 
 function judge(x: {
