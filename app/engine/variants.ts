@@ -7,7 +7,7 @@ import { createHash } from 'node:crypto';
 import { z } from 'zod';
 import { decode } from 'fast-png';
 import { writeFileAtomic } from '../core/atomic-write.ts';
-import { encodePng, type RgbaImage } from '../core/image.ts';
+import { encodePng, encodePngAsync, type RgbaImage } from '../core/image.ts';
 import { applyEdits } from '../core/latent.ts';
 import { PlumblineError } from '../core/errors.ts';
 import { drawText, GLYPH_HEIGHT } from '../core/label-font.ts';
@@ -65,6 +65,7 @@ export async function* renderVariants(gen: Generator, recipe: Recipe, directions
   const thumbs = new Map<string, RgbaImage>();
   let rendered = 0;
   let reused = 0;
+  const writes: Promise<void>[] = [];
   const writeManifest = (complete: boolean) =>
     writeFileAtomic(manifestFile, JSON.stringify({
       format: 'plumbline.variants', version: 1, recipe: recipe.name, complete, createdAt: new Date().toISOString(),
@@ -100,16 +101,21 @@ export async function* renderVariants(gen: Generator, recipe: Recipe, directions
       const r = await gen.synthesize(codes, pending.length);
       pending.forEach((j, k) => {
         const img = gen.toRgba(r.images, k);
-        const png = encodePng(img);
-        writeFileAtomic(join(out, j.file), png, { durable: false });
-        images.push({ file: j.file, seed: j.seed, setting: j.s.label, sha256: sha(png) });
         if (j.i < 8) thumbs.set(j.file, img);
-        rendered++;
+        // Compression runs on zlib's threads while the next batch renders; writes follow.
+        writes.push(encodePngAsync(img).then((png) => {
+          writeFileAtomic(join(out, j.file), png, { durable: false });
+          images.push({ file: j.file, seed: j.seed, setting: j.s.label, sha256: sha(png) });
+          rendered++;
+        }));
       });
     }
+    // Keep at most about two batches of images in flight.
+    if (writes.length > 2 * gen.batchSize) await Promise.all(writes.splice(0, writes.length - gen.batchSize));
     writeManifest(false);
     yield { done: Math.min(jobs.length, at + chunk.length), total: jobs.length, label: `rendering ${recipe.name}` };
   }
+  await Promise.all(writes);
   images.sort((a, b) => a.file.localeCompare(b.file));
   writeManifest(true);
   writeFileAtomic(join(out, 'contact-sheet.png'), encodePng(contactSheet(recipe, out, thumbs)));

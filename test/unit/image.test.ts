@@ -37,3 +37,11 @@ test('conversion refuses NaN, infinite and far-out values instead of writing the
   const ok = tensorToRgba(Float32Array.from([1.4, -1.4, 0]), 0, 1, 1);
   assert.deepEqual(Array.from(ok.data), [255, 0, 128, 255]);
 });
+
+test('the thread-pool PNG encoder writes the same bytes as the synchronous one', async () => {
+  const { encodePngAsync } = await import('../../app/core/image.ts');
+  const data = new Uint8ClampedArray(64 * 48 * 4).map((_, i) => (i * 7919) % 251);
+  const img = { width: 64, height: 48, data };
+  assert.deepEqual(Array.from(await encodePngAsync(img)), Array.from(encodePng(img)));
+  assert.deepEqual(Array.from(decode(await encodePngAsync(img)).data), Array.from(data));
+});
