@@ -1,5 +1,5 @@
 // `plumbline discover`, `plumbline audit` and `plumbline repair`.
-import { Command, InvalidArgumentError } from 'commander';
+import type { Command } from 'commander';
 import { resolve } from 'node:path';
 import { writeFileAtomic } from '../core/atomic-write.ts';
 import { writeDirections } from '../core/direction-files.ts';
@@ -249,5 +249,4 @@ export function addLabCommands(program: Command, ctx: CliContext, number: (n: st
         await host.dispose();
       }
     });
-  void InvalidArgumentError;
 }

@@ -9,7 +9,7 @@ import { encodePng, type RgbaImage } from '../core/image.ts';
 import { ProbeBootstrap, RunningMoments } from '../core/stats.ts';
 import { AUDIT_CAUTION, MIN_USEFUL_PROBES, auditSettingsSchema, type AuditSettings } from '../core/audit/settings.ts';
 import { DISTANCE_EXPONENT, imageDistance, type ImageLayout, type PathDistance } from '../core/audit/path-length.ts';
-import { attributeDelta, resolveAttributes, scoreBatch, type AttributeSpec } from './attributes.ts';
+import { attributeDelta, resolveAttributes, scoreBatch } from './attributes.ts';
 import type { Generator } from './generator.ts';
 import type { ScorerModel } from './scorer-model.ts';
 import { SsimDistanceModel } from './distance-model.ts';
@@ -195,7 +195,8 @@ export async function* runAudit(gen: Generator, directions: AuditDirection[], ra
   };
 
   const reports: DirectionReport[] = [];
-  const perDirectionRef: Map<string, { pos: Float64Array[]; scoresAtRef: Float64Array }> = new Map();
+  /** Each direction's scores at +reference strength, for the combination check. */
+  const scoresAtRefByName = new Map<string, Float64Array>();
   for (const d of directions) {
     // Streaming accumulators: per strength and attribute, signed and absolute normalised change.
     const signed = grid.map(() => specs.map(() => new RunningMoments()));
@@ -366,14 +367,14 @@ export async function* runAudit(gen: Generator, directions: AuditDirection[], ra
       pathLengthCurve,
       worstProbes,
     });
-    perDirectionRef.set(d.name, { pos: refAbs[0], scoresAtRef });
+    scoresAtRefByName.set(d.name, scoresAtRef);
   }
 
   // 3. Combination check for pairs: additivity of attribute changes and the images' mixed difference.
   const combinations: CombinationReport[] = [];
   for (const [a, b] of pairs) {
-    const A = perDirectionRef.get(a.name)!;
-    const B = perDirectionRef.get(b.name)!;
+    const atRefA = scoresAtRefByName.get(a.name)!;
+    const atRefB = scoresAtRefByName.get(b.name)!;
     const attrCols = specs.map(() => new Float64Array(pairProbes));
     const imageCol = new Float64Array(pairProbes);
     for (let at = 0; at < pairProbes; at += batch) {
@@ -384,8 +385,8 @@ export async function* runAudit(gen: Generator, directions: AuditDirection[], ra
         const p = at + i;
         for (let j = 0; j < K; j++) {
           const base = baseScores[p * K + j];
-          const da = attributeDelta(base, A.scoresAtRef[p * K + j], specs[j].period);
-          const db = attributeDelta(base, B.scoresAtRef[p * K + j], specs[j].period);
+          const da = attributeDelta(base, atRefA[p * K + j], specs[j].period);
+          const db = attributeDelta(base, atRefB[p * K + j], specs[j].period);
           const dab = attributeDelta(base, sc[i * K + j], specs[j].period);
           attrCols[j][p] = Math.abs(dab - da - db) / sigma[j];
         }
@@ -423,7 +424,6 @@ export async function* runAudit(gen: Generator, directions: AuditDirection[], ra
       imageInteraction: round(pairBoot.interval([imageCol], (mns) => mns[0])),
       verdict: attributeInteraction.value < ADDITIVE_LIMIT ? 'additive' : 'interacts',
     });
-    void A.pos;
   }
 
   const groundTruth = settings.groundTruthSamples > 0 && gen.attributeNames.length ? await groundTruthMetrics(gen, directions, settings.groundTruthSamples, settings.seed) : null;

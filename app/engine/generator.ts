@@ -143,7 +143,7 @@ export class Generator {
       (gen as { centredSamples: Float32Array }).centredSamples = centred;
 
       // A probe render checks shape, range and finiteness before anyone relies on the model.
-      const probe = await gen.renderSeeds([0, 1], 1, []);
+      await gen.renderSeeds([0, 1], 1, []);
       const { width, height } = gen.imageSize();
       const files = [r.cardFile, r.synthesisFile, r.mappingFile].filter((f): f is string => !!f);
       (gen as { info: ModelInfo }).info = {
@@ -164,7 +164,6 @@ export class Generator {
         demoDirections: options.demoDirections ?? (r.card?.directions && r.cardFile ? resolve(dirname(r.cardFile), r.card.directions) : null),
         caution: r.card?.caution ?? null,
       };
-      void probe;
       return gen;
     } catch (err) {
       await gen.dispose();

@@ -118,14 +118,14 @@ export async function* renderVariants(gen: Generator, recipe: Recipe, directions
   await Promise.all(writes);
   images.sort((a, b) => a.file.localeCompare(b.file));
   writeManifest(true);
-  writeFileAtomic(join(out, 'contact-sheet.png'), encodePng(contactSheet(recipe, out, thumbs)));
+  writeFileAtomic(join(out, 'contact-sheet.png'), encodePng(contactSheet(recipe, thumbs)));
   return { manifest: JSON.parse(readFileSync(manifestFile, 'utf8')), rendered, reused };
 }
 
 const sha = (b: Uint8Array) => createHash('sha256').update(b).digest('hex');
 
 /** Rows: settings (labelled); columns: up to 8 seeds (labelled). */
-function contactSheet(recipe: Recipe, out: string, thumbs: Map<string, RgbaImage>): RgbaImage {
+function contactSheet(recipe: Recipe, thumbs: Map<string, RgbaImage>): RgbaImage {
   const seeds = recipe.seeds.slice(0, 8);
   const cell = 96;
   const gap = 6;
@@ -153,6 +153,5 @@ function contactSheet(recipe: Recipe, out: string, thumbs: Map<string, RgbaImage
         }
     });
   });
-  void out;
   return { width, height, data };
 }

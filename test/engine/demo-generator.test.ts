@@ -120,12 +120,10 @@ test('glow_surge breaks past its documented strength and not before', async () =
   assert.ok(limit > 1.5 && limit < 4, `breaks at a moderate strength (${limit})`);
   const d = dirs.find((x) => x.name === 'glow_surge')!;
   const a = gen.attributeNames.indexOf('artifact');
-  const k = gen.attributeNames.length;
   // ψ = 0 puts every probe at the truncation centre, where the documented strength applies exactly.
   const at = async (s: number) => (await gen.renderSeeds([0], 0, host.edits([{ direction: d.id, strength: s }]))).attributes![a];
   assert.equal(await at(0), 0);
   assert.equal(await at(limit - 0.1), 0);
   assert.ok((await at(limit + 0.3)) > 0.1, 'artifact appears past the limit');
   assert.equal((await gen.renderSeeds([0], 0, host.edits([{ direction: d.id, strength: -3 }]))).attributes![a], 0, 'the negative side stays healthy');
-  void k;
 });

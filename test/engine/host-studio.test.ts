@@ -5,7 +5,7 @@ import { test, before, after } from 'node:test';
 import assert from 'node:assert/strict';
 import { readFileSync, existsSync, writeFileSync } from 'node:fs';
 import { join } from 'node:path';
-import { EngineHost, demoCardPath } from '../../app/engine/host.ts';
+import { EngineHost } from '../../app/engine/host.ts';
 import { parseResult, request, type Method, type Params } from '../../app/protocol/messages.ts';
 import { tempDir } from '../helpers/models.ts';
 

@@ -2,13 +2,13 @@
 // against hostile input: unsafe paths, symlinks, duplicates, lying sizes, zip bombs, hash
 // mismatches, the wrong generator, unknown versions and bad .npy files inside. Property-based
 // fuzzing (fast-check) shows the readers never crash and never write anything.
-import { test, before, after } from 'node:test';
+import { test, before } from 'node:test';
 import assert from 'node:assert/strict';
 import { readFileSync, readdirSync, writeFileSync } from 'node:fs';
 import { join } from 'node:path';
 import { spawnSync } from 'node:child_process';
 import fc from 'fast-check';
-import { EngineHost, demoCardPath } from '../../app/engine/host.ts';
+import { EngineHost } from '../../app/engine/host.ts';
 import { request, type Method, type Params } from '../../app/protocol/messages.ts';
 import { PackError, readPack, sha256 } from '../../app/core/pack.ts';
 import { decodeNpy } from '../../app/core/npy.ts';
@@ -46,7 +46,6 @@ before(async () => {
   assert.equal(r.status, 0, r.stderr);
   packBytes = new Uint8Array(readFileSync(packFile));
 });
-after(() => {});
 
 test('pack holds only approved, audited directions, with hashes, previews and a self-contained report', async () => {
   const p = await readPack(packBytes, 'tidebound.plpack');

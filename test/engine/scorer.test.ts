@@ -30,13 +30,12 @@ test('a scorer card drives a user model: resizing, normalisation and named outpu
 
 test('scorer cards that do not match their model are refused with the file named', async () => {
   const dir = tempDir();
-  const card = scorerModel(dir);
+  scorerModel(dir);
   const bad = join(dir, 'bad.card.json');
   writeFileSync(bad, JSON.stringify({ format: 'plumbline.scorer-card', version: 1, name: 'x', file: 'scorer.onnx', input: { name: 'pixels', width: 32, height: 32 }, attributes: [{ name: 'a', output: 'logits' }] }));
   await assert.rejects(ScorerModel.open(bad), /scorer\.onnx: the scorer card names output 'logits' but the model's outputs are scores, features/);
   writeFileSync(bad, '{"format":"plumbline.scorer-card","version":1}');
   await assert.rejects(ScorerModel.open(bad), /bad\.card\.json: invalid scorer card/);
-  void card;
 });
 
 test('user scorer attributes and the feature distance take part in an audit', async () => {
