@@ -8,6 +8,7 @@ import { runAudit, type AuditReport } from '../engine/audit.ts';
 import { EngineHost, demoCardPath } from '../engine/host.ts';
 import { discoverByTags, discoverPca, discoverSefa, fitBoundary, repairDirection, type LabDirection } from '../engine/lab.ts';
 import { parseSeeds } from './seeds.ts';
+import { driveJob } from './jobs.ts';
 import { ScorerModel } from '../engine/scorer-model.ts';
 
 export interface CliContext {
@@ -187,25 +188,8 @@ export function addLabCommands(program: Command, ctx: CliContext, number: (n: st
           scorerCards: (o.scorer as string[]).map((c) => resolve(c)),
           featureScorer: o.featureScorer ? resolve(o.featureScorer) : null,
         }, { scorers: scorers.filter((x) => x !== features), features });
-        let bar: ReturnType<CliContext['progressBar']> | null = null;
-        let report: AuditReport | null = null;
-        for (;;) {
-          if (ctx.isCancelled()) {
-            await job.return(undefined as never);
-            bar?.stop();
-            process.stderr.write('audit cancelled; nothing was written\n');
-            process.exitCode = 130;
-            return;
-          }
-          const step = await job.next();
-          if (step.done) {
-            report = step.value;
-            break;
-          }
-          bar ??= ctx.progressBar(step.value.total, 'auditing');
-          bar.update(step.value.done);
-        }
-        bar?.stop();
+        const report = await driveJob(job, ctx, 'auditing', 'audit cancelled; nothing was written');
+        if (!report) return;
         process.stdout.write(auditTable(report));
         if (o.json) {
           writeFileAtomic(resolve(o.json), JSON.stringify(report, null, 2) + '\n');

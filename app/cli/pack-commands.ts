@@ -13,6 +13,7 @@ import { demoCardPath } from '../engine/host.ts';
 import { buildPack, renderStrip, verifyPack } from '../engine/pack-ops.ts';
 import { Project } from '../engine/project.ts';
 import { parseSeeds } from './seeds.ts';
+import { driveJob } from './jobs.ts';
 import { parseRecipe, renderVariants, type VariantDirection } from '../engine/variants.ts';
 import { EngineHost } from '../engine/host.ts';
 import type { CliContext } from './lab-commands.ts';
@@ -164,24 +165,8 @@ export function addPackCommands(program: Command, ctx: CliContext): void {
         if (o.pack) dirs = (await verifyPack(readFile(o.pack), resolve(o.pack), gen)).directions;
         else dirs = host.openDirections(resolve(o.directions)).directions.map((d) => host.direction(d.id));
         const job = renderVariants(gen, recipe, dirs, resolve(o.out), { force: o.force });
-        let bar: ReturnType<CliContext['progressBar']> | null = null;
-        for (;;) {
-          if (ctx.isCancelled()) {
-            await job.return(undefined as never);
-            bar?.stop();
-            process.stderr.write('stopped; run the same command again to resume\n');
-            process.exitCode = 130;
-            return;
-          }
-          const step = await job.next();
-          if (step.done) {
-            bar?.stop();
-            process.stdout.write(`${recipe.name}: ${step.value.rendered} rendered, ${step.value.reused} kept from an earlier run; manifest.json and contact-sheet.png in ${resolve(o.out)}\n`);
-            return;
-          }
-          bar ??= ctx.progressBar(step.value.total, 'variants');
-          bar.update(step.value.done);
-        }
+        const done = await driveJob(job, ctx, 'variants', 'stopped; run the same command again to resume');
+        if (done) process.stdout.write(`${recipe.name}: ${done.rendered} rendered, ${done.reused} kept from an earlier run; manifest.json and contact-sheet.png in ${resolve(o.out)}\n`);
       } finally {
         await host.dispose();
       }

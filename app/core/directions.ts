@@ -4,6 +4,7 @@
 import { z } from 'zod';
 import { PlumblineError } from './errors.ts';
 import { decodeNpy } from './npy.ts';
+import { parseJsonFile } from './json-file.ts';
 
 export const DIRECTIONS_FORMAT = 'plumbline.directions';
 
@@ -45,18 +46,7 @@ export interface LatentLayout {
 }
 
 export function parseDirectionsMeta(text: string, file: string): DirectionsMeta {
-  let raw: unknown;
-  try {
-    raw = JSON.parse(text);
-  } catch (err) {
-    throw new PlumblineError('directions-invalid', `${file}: not valid JSON (${(err as Error).message})`, { file });
-  }
-  const r = directionsMetaSchema.safeParse(raw);
-  if (!r.success) {
-    const problems = r.error.issues.slice(0, 5).map((i) => `${i.path.join('.') || '(top level)'}: ${i.message}`).join('; ');
-    throw new PlumblineError('directions-invalid', `${file}: invalid directions metadata — ${problems}`, { file });
-  }
-  return r.data;
+  return parseJsonFile(directionsMetaSchema, text, file, 'invalid directions metadata', 'directions-invalid');
 }
 
 /** Builds directions from .npy bytes and optional metadata, checked against the generator's latent layout. */

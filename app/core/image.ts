@@ -106,6 +106,22 @@ function assemblePng(image: RgbaImage, idat: Uint8Array): Uint8Array {
   return out;
 }
 
+/** Box-averages an image by an integer factor (each output pixel is the rounded mean of f×f inputs). */
+export function downsampleImage(img: RgbaImage, factor: number): RgbaImage {
+  const f = Math.max(1, Math.floor(factor));
+  const w = Math.floor(img.width / f);
+  const h = Math.floor(img.height / f);
+  const data = new Uint8ClampedArray(w * h * 4);
+  for (let y = 0; y < h; y++)
+    for (let x = 0; x < w; x++)
+      for (let c = 0; c < 4; c++) {
+        let s = 0;
+        for (let dy = 0; dy < f; dy++) for (let dx = 0; dx < f; dx++) s += img.data[((y * f + dy) * img.width + x * f + dx) * 4 + c];
+        data[(y * w + x) * 4 + c] = Math.round(s / (f * f));
+      }
+  return { width: w, height: h, data };
+}
+
 /** Places images in a grid (for contact sheets and previews). */
 export function tileImages(images: RgbaImage[], columns: number, gap = 2, background = 24): RgbaImage {
   if (images.length === 0) throw new RangeError('tileImages: no images');

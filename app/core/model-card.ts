@@ -1,7 +1,7 @@
 // Model cards: the JSON that sits beside a generator's .onnx and says how to drive it.
 // Format "plumbline.model-card" version 1, documented in docs/model-card.md.
 import { z } from 'zod';
-import { PlumblineError } from './errors.ts';
+import { parseJsonFile } from './json-file.ts';
 
 export const MODEL_CARD_FORMAT = 'plumbline.model-card';
 
@@ -50,16 +50,5 @@ export const modelCardSchema = z
 export type ModelCard = z.infer<typeof modelCardSchema>;
 
 export function parseModelCard(text: string, file: string): ModelCard {
-  let raw: unknown;
-  try {
-    raw = JSON.parse(text);
-  } catch (err) {
-    throw new PlumblineError('card-invalid', `${file}: not valid JSON (${(err as Error).message})`, { file });
-  }
-  const r = modelCardSchema.safeParse(raw);
-  if (!r.success) {
-    const problems = r.error.issues.slice(0, 5).map((i) => `${i.path.join('.') || '(top level)'}: ${i.message}`).join('; ');
-    throw new PlumblineError('card-invalid', `${file}: invalid model card — ${problems}`, { file });
-  }
-  return r.data;
+  return parseJsonFile(modelCardSchema, text, file, 'invalid model card');
 }

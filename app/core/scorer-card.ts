@@ -2,7 +2,7 @@
 // docs/scorer-card.md). They say what the model takes (size, layout, value range or mean/std
 // normalisation) and what each output column means.
 import { z } from 'zod';
-import { PlumblineError } from './errors.ts';
+import { parseJsonFile } from './json-file.ts';
 
 export const scorerCardSchema = z.object({
   format: z.literal('plumbline.scorer-card'),
@@ -34,13 +34,5 @@ export const scorerCardSchema = z.object({
 export type ScorerCard = z.infer<typeof scorerCardSchema>;
 
 export function parseScorerCard(text: string, file: string): ScorerCard {
-  let raw: unknown;
-  try {
-    raw = JSON.parse(text);
-  } catch (err) {
-    throw new PlumblineError('card-invalid', `${file}: not valid JSON (${(err as Error).message})`, { file });
-  }
-  const r = scorerCardSchema.safeParse(raw);
-  if (!r.success) throw new PlumblineError('card-invalid', `${file}: invalid scorer card — ${r.error.issues.slice(0, 5).map((i) => `${i.path.join('.') || '(top level)'}: ${i.message}`).join('; ')}`, { file });
-  return r.data;
+  return parseJsonFile(scorerCardSchema, text, file, 'invalid scorer card');
 }

@@ -5,7 +5,7 @@
 // data kept is a handful of numbers per direction and attribute, never images.
 import { PlumblineError } from '../core/errors.ts';
 import { applyEdits } from '../core/latent.ts';
-import { encodePng, type RgbaImage } from '../core/image.ts';
+import { downsampleImage, encodePng, type RgbaImage } from '../core/image.ts';
 import { ProbeBootstrap, RunningMoments } from '../core/stats.ts';
 import { AUDIT_CAUTION, MIN_USEFUL_PROBES, auditSettingsSchema, type AuditSettings } from '../core/audit/settings.ts';
 import { DISTANCE_EXPONENT, imageDistance, type ImageLayout, type PathDistance } from '../core/audit/path-length.ts';
@@ -522,18 +522,8 @@ function featureDistance(a: { data: Float32Array; width: number }, b: { data: Fl
 }
 
 function thumbnail(img: RgbaImage): string {
-  const f = Math.max(1, Math.floor(img.width / THUMB));
-  const w = Math.floor(img.width / f);
-  const h = Math.floor(img.height / f);
-  const data = new Uint8ClampedArray(w * h * 4);
-  for (let y = 0; y < h; y++)
-    for (let x = 0; x < w; x++)
-      for (let c = 0; c < 4; c++) {
-        let s = 0;
-        for (let dy = 0; dy < f; dy++) for (let dx = 0; dx < f; dx++) s += img.data[((y * f + dy) * img.width + x * f + dx) * 4 + c];
-        data[(y * w + x) * 4 + c] = s / (f * f);
-      }
-  return `data:image/png;base64,${Buffer.from(encodePng({ width: w, height: h, data })).toString('base64')}`;
+  const small = downsampleImage(img, img.width / THUMB);
+  return `data:image/png;base64,${Buffer.from(encodePng(small)).toString('base64')}`;
 }
 
 /** Six significant digits: enough for any reading, small values keep their precision. */

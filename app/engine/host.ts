@@ -24,7 +24,7 @@ import { buildPack, verifyPack } from './pack-ops.ts';
 import { renderVariants } from './variants.ts';
 import { PackError } from '../core/pack.ts';
 import { writeFileAtomic } from '../core/atomic-write.ts';
-import type { RgbaImage } from '../core/image.ts';
+import { downsampleImage, type RgbaImage } from '../core/image.ts';
 import { applyEdits } from '../core/latent.ts';
 
 export const ENGINE_VERSION = 'plumbline-engine/0.1.0';
@@ -501,20 +501,10 @@ export class EngineHost {
   }
 }
 
-/** Box-downsamples an image so its longer side is at most `max` pixels. */
+/** A copy for the wire whose longer side is at most `max` pixels. */
 function shrink(img: RgbaImage, max: number): { width: number; height: number; rgba: Uint8Array } {
-  const f = Math.max(1, Math.ceil(Math.max(img.width, img.height) / max));
-  const w = Math.floor(img.width / f);
-  const h = Math.floor(img.height / f);
-  const out = new Uint8Array(w * h * 4);
-  for (let y = 0; y < h; y++)
-    for (let x = 0; x < w; x++)
-      for (let c = 0; c < 4; c++) {
-        let s = 0;
-        for (let dy = 0; dy < f; dy++) for (let dx = 0; dx < f; dx++) s += img.data[((y * f + dy) * img.width + x * f + dx) * 4 + c];
-        out[(y * w + x) * 4 + c] = Math.round(s / (f * f));
-      }
-  return { width: w, height: h, rgba: out };
+  const small = downsampleImage(img, Math.ceil(Math.max(img.width, img.height) / max));
+  return { width: small.width, height: small.height, rgba: new Uint8Array(small.data.buffer) };
 }
 
 function fromDataUri(uri: string): Uint8Array {

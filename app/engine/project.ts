@@ -12,6 +12,7 @@ import { writeFileAtomic } from '../core/atomic-write.ts';
 import { writeDirections } from '../core/direction-files.ts';
 import { parseDirectionsMeta, readDirections, type Direction, type LatentLayout } from '../core/directions.ts';
 import { PlumblineError } from '../core/errors.ts';
+import { parseJsonFile } from '../core/json-file.ts';
 import { reviewEntrySchema, type ReviewEntry, type SignOff } from '../protocol/messages.ts';
 
 export const PROJECT_FORMAT = 'plumbline.project';
@@ -53,16 +54,9 @@ export class Project {
       p.save();
       return p;
     }
-    let raw: unknown;
-    try {
-      raw = JSON.parse(readFileSync(file, 'utf8'));
-    } catch (err) {
-      throw new PlumblineError('card-invalid', `${file}: not valid JSON (${(err as Error).message})`, { file });
-    }
-    const r = projectSchema.safeParse(raw);
-    if (!r.success) throw new PlumblineError('card-invalid', `${file}: not a valid project — ${r.error.issues.slice(0, 3).map((i) => `${i.path.join('.')}: ${i.message}`).join('; ')}`, { file });
-    for (const d of r.data.directions) if (d.file.includes('..') || d.file.startsWith('/')) throw new PlumblineError('card-invalid', `${file}: direction file '${d.file}' points outside the project`, { file });
-    return new Project(dir, r.data);
+    const doc = parseJsonFile(projectSchema, readFileSync(file, 'utf8'), file, 'not a valid project');
+    for (const d of doc.directions) if (d.file.includes('..') || d.file.startsWith('/')) throw new PlumblineError('card-invalid', `${file}: direction file '${d.file}' points outside the project`, { file });
+    return new Project(dir, doc);
   }
 
   save(): void {

@@ -10,6 +10,7 @@ import { writeFileAtomic } from '../core/atomic-write.ts';
 import { encodePng, encodePngAsync, type RgbaImage } from '../core/image.ts';
 import { applyEdits } from '../core/latent.ts';
 import { PlumblineError } from '../core/errors.ts';
+import { parseJsonFile } from '../core/json-file.ts';
 import { drawText, GLYPH_HEIGHT } from '../core/label-font.ts';
 import type { Generator } from './generator.ts';
 
@@ -34,15 +35,7 @@ export interface VariantDirection {
 const hashOf = (d: VariantDirection) => createHash('sha256').update(new Uint8Array(d.vector.buffer, d.vector.byteOffset, d.vector.byteLength)).update(JSON.stringify(d.layers)).digest('hex');
 
 export function parseRecipe(text: string, file: string): Recipe {
-  let raw: unknown;
-  try {
-    raw = JSON.parse(text);
-  } catch (err) {
-    throw new PlumblineError('card-invalid', `${file}: not valid JSON (${(err as Error).message})`, { file });
-  }
-  const r = recipeSchema.safeParse(raw);
-  if (!r.success) throw new PlumblineError('card-invalid', `${file}: invalid variant recipe — ${r.error.issues.slice(0, 4).map((i) => `${i.path.join('.')}: ${i.message}`).join('; ')}`, { file });
-  return r.data;
+  return parseJsonFile(recipeSchema, text, file, 'invalid variant recipe');
 }
 
 /** Renders a recipe; yields progress between batches. Existing images with matching hashes are kept (resume). */
