@@ -75,12 +75,6 @@ export function chroma(lab: Lab): number {
   return Math.hypot(lab[1], lab[2]);
 }
 
-/** Hue angle h_ab in degrees, [0, 360). */
-export function hueAngle(lab: Lab): number {
-  const h = (Math.atan2(lab[2], lab[1]) * 180) / Math.PI;
-  return h < 0 ? h + 360 : h;
-}
-
 const deg = Math.PI / 180;
 
 /** CIEDE2000 with k_L = k_C = k_H = 1, following Sharma, Wu & Dalal (2005) step by step. */

@@ -1,6 +1,7 @@
 // Direction sets: float32 .npy vectors with a JSON sidecar of metadata (format
 // "plumbline.directions" v1, see docs/directions.md). Shapes: [D] one direction, [K, D] K
 // directions, or [L, D] one W+ direction when the sidecar lists a single entry with perLayer.
+import type { LatentLayout } from './latent.ts';
 import { z } from 'zod';
 import { PlumblineError } from './errors.ts';
 import { decodeNpy } from './npy.ts';
@@ -40,17 +41,14 @@ export interface Direction {
   truth?: Record<string, unknown>;
 }
 
-export interface LatentLayout {
-  size: number;
-  layers: number;
-}
+export type { LatentLayout } from './latent.ts';
 
 export function parseDirectionsMeta(text: string, file: string): DirectionsMeta {
   return parseJsonFile(directionsMetaSchema, text, file, 'invalid directions metadata', 'directions-invalid');
 }
 
 /** Builds directions from .npy bytes and optional metadata, checked against the generator's latent layout. */
-export function readDirections(npyBytes: Uint8Array, npyFile: string, meta: DirectionsMeta | null, layout: LatentLayout, baseName: string): Direction[] {
+export function readDirections(npyBytes: Uint8Array, npyFile: string, meta: DirectionsMeta | null, layout: Pick<LatentLayout, 'size' | 'layers'>, baseName: string): Direction[] {
   const arr = decodeNpy(npyBytes, npyFile);
   const { size, layers } = layout;
   for (const v of arr.data) if (!Number.isFinite(v)) throw new PlumblineError('npy-invalid', `${npyFile}: contains NaN or infinite values`, { file: npyFile });

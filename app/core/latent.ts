@@ -4,10 +4,19 @@
 // the direction's spread over random samples (σ units).
 import { latentForSeed } from './random.ts';
 
-export interface LatentShape {
+/**
+ * A generator's latent layout, the one name for it everywhere: `layers` rows (W+; 1 for Z or W)
+ * of `size` values in `space`; `zSize` is the size of the Z input the mapping takes. Latent
+ * arithmetic needs only `layers` and `size`.
+ */
+export interface LatentLayout {
+  space: 'z' | 'w' | 'w+';
   layers: number;
   size: number;
+  zSize: number;
 }
+
+type RowsOf = Pick<LatentLayout, 'layers' | 'size'>;
 
 export interface EditVector {
   /** size values (one direction for every row) or layers·size values (per-row, W+). */
@@ -44,7 +53,7 @@ export function truncate(codes: Float32Array, centre: Float32Array, psi: number)
 }
 
 /** [N, size] → [N, layers, size] by repeating each code on every row. */
-export function broadcastLayers(codes: Float32Array, shape: LatentShape): Float32Array {
+export function broadcastLayers(codes: Float32Array, shape: RowsOf): Float32Array {
   const n = codes.length / shape.size;
   const out = new Float32Array(n * shape.layers * shape.size);
   for (let i = 0; i < n; i++) {
@@ -55,7 +64,7 @@ export function broadcastLayers(codes: Float32Array, shape: LatentShape): Float3
 }
 
 /** Adds edits in place to [N, layers, size] codes. */
-export function applyEdits(codes: Float32Array, shape: LatentShape, edits: EditVector[]): Float32Array {
+export function applyEdits(codes: Float32Array, shape: RowsOf, edits: EditVector[]): Float32Array {
   const { layers, size } = shape;
   const n = codes.length / (layers * size);
   for (const e of edits) {

@@ -8,7 +8,7 @@ import * as ort from 'onnxruntime-node';
 import { PlumblineError } from '../core/errors.ts';
 import { parseModelCard, type ModelCard } from '../core/model-card.ts';
 import { decodeModel, summarizeModel, type OnnxSummary, type TensorInterface } from '../core/onnx/inspect.ts';
-import { applyEdits, broadcastLayers, directionSigma, seedsToZ, truncate, type EditVector } from '../core/latent.ts';
+import { applyEdits, broadcastLayers, directionSigma, seedsToZ, truncate, type EditVector, type LatentLayout } from '../core/latent.ts';
 import { OutputValueError, tensorToRgba, type RgbaImage } from '../core/image.ts';
 import type { ModelInfo } from '../protocol/messages.ts';
 import { createSession, type SessionOptions } from './sessions.ts';
@@ -28,12 +28,6 @@ const FULL_CHECK_BATCHES = 4;
 const CHECK_STRIDE = 13;
 export const DEFAULT_BATCH = 16;
 
-export interface GeneratorLayout {
-  space: 'z' | 'w' | 'w+';
-  layers: number;
-  size: number;
-  zSize: number;
-}
 
 export interface RenderOutput {
   n: number;
@@ -50,7 +44,7 @@ interface Resolved {
   latentInput: string;
   imageOutput: string;
   attributesOutput: string | null;
-  layout: GeneratorLayout;
+  layout: LatentLayout;
   imageLayout: 'NCHW' | 'NHWC';
   range: [number, number];
   constants: Record<string, { data: Float32Array; dims: number[] }>;
@@ -68,7 +62,7 @@ function readBytes(file: string, what: string): Uint8Array {
 export class Generator {
   #synthesis: ort.InferenceSession | null;
   #mapping: ort.InferenceSession | null;
-  readonly layout: GeneratorLayout;
+  readonly layout: LatentLayout;
   readonly info: ModelInfo;
   readonly centre: Float32Array;
   /** W (or Z) samples [STAT_SAMPLES, size], centred on `centre`, for σ units. */

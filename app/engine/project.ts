@@ -77,7 +77,7 @@ export class Project {
     this.save();
   }
 
-  loadDirections(layout: LatentLayout): Direction[] {
+  loadDirections(layout: Pick<LatentLayout, 'size' | 'layers'>): Direction[] {
     return this.doc.directions.flatMap((entry) => {
       const npy = join(this.dir, entry.file);
       const json = npy.replace(/\.npy$/, '.json');

@@ -7,6 +7,7 @@ import { dirname, join, normalize, resolve, sep } from 'node:path';
 import { fileURLToPath, pathToFileURL } from 'node:url';
 import { DESKTOP_CHANNELS as C, desktopSchemas } from '../protocol/desktop.ts';
 import { APP_ORIGIN, guarded } from './ipc.ts';
+import { event } from '../protocol/messages.ts';
 
 const here = dirname(fileURLToPath(import.meta.url));
 const outDir = resolve(here, '..');
@@ -51,7 +52,9 @@ function startEngine(restarted: boolean): void {
   child.once('exit', (code) => {
     if (engine === child) engine = null;
     if (quitting) return;
-    win?.webContents.send(C.engineStopped, `engine exited with code ${code}`);
+    // The same protocol event the web shell sends: the renderer settles every pending request
+    // with 'engine-stopped' and recovers when the restarted engine says engine.ready.
+    win?.webContents.send(C.engineStopped, event('engine.stopped', { reason: `exited with code ${code}`, code, restarting: true }));
     const delay = RESTART_DELAYS[Math.min(engineRestarts++, RESTART_DELAYS.length - 1)];
     setTimeout(() => !quitting && startEngine(true), delay);
   });

@@ -25,8 +25,9 @@ contextBridge.exposeInMainWorld('plumbline', {
     ipcRenderer.on(C.menu, handler);
     return () => ipcRenderer.removeListener(C.menu, handler);
   },
-  onEngineStopped: (listener: (reason: string) => void) => {
-    const handler = (_event: unknown, reason: unknown) => listener(String(reason));
+  // Delivers main's engine.stopped protocol event; the page's engine client validates it.
+  onEngineStopped: (listener: (message: unknown) => void) => {
+    const handler = (_event: unknown, message: unknown) => listener(message);
     ipcRenderer.on(C.engineStopped, handler);
     return () => ipcRenderer.removeListener(C.engineStopped, handler);
   },

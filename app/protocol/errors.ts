@@ -41,7 +41,3 @@ export const errorDataSchema = z.object({
   file: z.string().optional(),
 });
 export type ErrorData = z.infer<typeof errorDataSchema>;
-
-export function isErrorCode(code: unknown): code is ErrorCode {
-  return typeof code === 'string' && Object.hasOwn(ERROR_CATALOGUE, code);
-}

@@ -291,12 +291,3 @@ export function request<M extends Method>(id: number, method: M, params: Params<
 export function event<E extends EventName>(name: E, data: EventData<E>): EventMessage {
   return { v: PROTOCOL_VERSION, type: 'event', event: name, data };
 }
-
-/** Buffers to transfer (not copy) when posting a message over a MessagePort. */
-export function transferables(value: unknown, out: ArrayBuffer[] = []): ArrayBuffer[] {
-  if (value instanceof Uint8Array) {
-    if (value.buffer instanceof ArrayBuffer && !out.includes(value.buffer)) out.push(value.buffer);
-  } else if (Array.isArray(value)) for (const v of value) transferables(v, out);
-  else if (value && typeof value === 'object') for (const v of Object.values(value)) transferables(v, out);
-  return out;
-}

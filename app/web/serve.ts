@@ -9,6 +9,7 @@ import { dirname, extname, join, normalize, resolve, sep } from 'node:path';
 import { fileURLToPath } from 'node:url';
 import { WebSocketServer, type WebSocket } from 'ws';
 import { decodeFrame, encodeFrame } from '../protocol/frames.ts';
+import { ENGINE_NAME } from '../protocol/version.ts';
 import { PROTOCOL_VERSION, event, parseMessage, type Message, type ResponseMessage } from '../protocol/messages.ts';
 
 const here = dirname(fileURLToPath(import.meta.url));
@@ -165,7 +166,7 @@ export async function startWebShell(options: WebShellOptions = {}): Promise<WebS
     wss.handleUpgrade(req, socket, head, (ws) => {
       const client: Client = { ws, id: nextClient++ };
       clients.add(client);
-      if (child) send(client, event('engine.ready', { engine: 'plumbline-engine', restarted: false }));
+      if (child) send(client, event('engine.ready', { engine: ENGINE_NAME, restarted: false }));
       ws.on('message', (data, isBinary) => {
         let m: Message;
         try {

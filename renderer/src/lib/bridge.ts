@@ -5,7 +5,8 @@ export interface DesktopBridge {
   chooseFile(kind: 'generator' | 'directions' | 'project'): Promise<string | null>;
   pathForFile(file: File): string;
   onMenu(listener: (command: string, arg?: string) => void): () => void;
-  onEngineStopped?(listener: (reason: string) => void): () => void;
+  /** Main's engine.stopped protocol event (Electron only: the MessagePort cannot say its engine died). */
+  onEngineStopped?(listener: (message: unknown) => void): () => void;
   recent(): Promise<string[]>;
   addRecent(path: string): Promise<void>;
   getSetting(key: 'theme' | 'threads'): Promise<unknown>;

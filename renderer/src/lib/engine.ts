@@ -17,6 +17,8 @@ export class EngineRequestError extends Error {
 interface Transport {
   send(m: Message): void;
   close(): void;
+  /** A MessagePort dies with its engine; the web shell's socket outlives it. */
+  diesWithEngine: boolean;
 }
 
 interface Pending {
@@ -54,6 +56,7 @@ export class EngineClient {
     this.#transport = {
       send: (m) => (ws.readyState === WebSocket.OPEN ? ws.send(encodeFrame(m) as Uint8Array<ArrayBuffer>) : queue.push(m)),
       close: () => ws.close(),
+      diesWithEngine: false,
     };
   }
 
@@ -61,7 +64,7 @@ export class EngineClient {
   connectPort(port: MessagePort): void {
     port.onmessage = (e) => this.#receive(e.data);
     port.start();
-    this.#transport = { send: (m) => port.postMessage(m), close: () => port.close() };
+    this.#transport = { send: (m) => port.postMessage(m), close: () => port.close(), diesWithEngine: true };
   }
 
   request<M extends Method>(method: M, params: Params<M>, onProgress?: Pending['onProgress']): Promise<Result<M>> {
@@ -94,6 +97,11 @@ export class EngineClient {
     this.#pending.clear();
   }
 
+  /** A protocol message from outside the transport (Electron main's engine.stopped), validated like any other. */
+  deliver(raw: unknown): void {
+    this.#receive(raw);
+  }
+
   #receive(raw: unknown): void {
     let m: Message;
     try {
@@ -107,7 +115,11 @@ export class EngineClient {
         const d = m.data as EventData<'job.progress'>;
         this.#pending.get(d.requestId)?.onProgress?.(d.done, d.total, d.label);
       }
-      if (m.event === 'engine.stopped') this.#failAll('the engine stopped');
+      if (m.event === 'engine.stopped') {
+        this.#failAll('the engine stopped');
+        // Until the restarted engine's port arrives, requests fail at once instead of waiting forever.
+        if (this.#transport?.diesWithEngine) this.#transport = null;
+      }
       this.#emit(m.event, m.data as never);
       return;
     }

@@ -91,10 +91,9 @@ export class Studio {
   #connectDesktop(): Promise<void> {
     // The preload forwards the engine's MessagePort with window.postMessage; after an engine
     // restart a fresh port arrives the same way.
-    desktop()?.onEngineStopped?.((reason) => {
-      this.engineState = 'restarting';
-      this.banner = { kind: 'error', text: `The engine stopped (${reason}). Restarting it; your work is kept.` };
-    });
+    // Main reports the engine's death with the web shell's protocol event; the client settles
+    // every pending request and the handlers in start() recover the same way.
+    desktop()?.onEngineStopped?.((message) => this.engine.deliver(message));
     return new Promise((resolve) => {
       window.addEventListener('message', (e: MessageEvent) => {
         if (e.source !== window || e.data !== 'plumbline:engine-port' || !e.ports[0]) return;
