@@ -17,7 +17,7 @@ import { addPackCommands } from './pack-commands.ts';
 class UsageError extends Error {}
 
 export const EXIT = { ok: 0, failure: 1, invalidInput: 2, cancelled: 130 } as const;
-const INPUT_ERRORS = new Set(['not-onnx', 'onnx-truncated', 'no-latent-input', 'bad-image-output', 'card-invalid', 'file-missing', 'npy-invalid', 'npy-shape', 'directions-invalid', 'latent-size-mismatch', 'bad-request', 'output-out-of-range', 'output-not-finite']);
+const INPUT_ERRORS = new Set(['not-onnx', 'onnx-truncated', 'no-latent-input', 'bad-image-output', 'card-invalid', 'file-missing', 'npy-invalid', 'npy-shape', 'directions-invalid', 'latent-size-mismatch', 'bad-request', 'output-out-of-range', 'output-not-finite', 'path-refused', 'not-a-file', 'would-overwrite', 'limit-exceeded']);
 
 let cancelled = false;
 process.on('SIGINT', () => {

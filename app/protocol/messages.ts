@@ -3,6 +3,7 @@
 // as Uint8Array values: transferred over MessagePorts, as binary frames over WebSockets (see
 // frames.ts), never as base64 text.
 import { z } from 'zod';
+import { directionNameSchema, variantLabelSchema } from './names.ts';
 
 export const PROTOCOL_VERSION = 1;
 
@@ -45,7 +46,7 @@ export const requestSchemas = {
     stripSeeds: z.array(seed).min(1).max(8).default([0, 1, 2]),
     stripStrengths: z.array(strength).min(1).max(9).default([-3, -1.5, 0, 1.5, 3]),
   }),
-  'directions.keep': z.object({ id: z.string().min(1), name: z.string().min(1).max(120).regex(/^[A-Za-z0-9_.-]+$/, 'letters, digits, _ . - only') }),
+  'directions.keep': z.object({ id: z.string().min(1), name: directionNameSchema }),
   'audit.run': z.object({
     directions: z.array(z.string().min(1)).min(1).max(64),
     probes: z.number().int().min(0).max(100_000).default(64),
@@ -66,7 +67,7 @@ export const requestSchemas = {
     seeds: z.array(seed).min(1).max(10_000),
     psi,
     /** Strengths keyed by direction id. */
-    settings: z.array(z.object({ label: z.string().regex(/^[A-Za-z0-9_.=+-]{1,60}$/, 'letters, digits and _ . = + - only'), strengths: z.record(z.string(), strength) })).min(1).max(200),
+    settings: z.array(z.object({ label: variantLabelSchema, strengths: z.record(z.string(), strength) })).min(1).max(200),
     out: z.string().min(1),
   }),
   'pack.import': z.object({ path: z.string().min(1) }),

@@ -196,7 +196,8 @@ export class Lab {
   /** Captures the workbench sliders as one setting of the variant set. */
   addSettingFromSliders(label: string): void {
     const strengths = Object.fromEntries(Object.entries(this.studio.strengths).filter(([, v]) => v !== 0));
-    const clean = label.replace(/[^A-Za-z0-9_.=+-]/g, '_').slice(0, 60) || `setting_${this.variantSettings.length}`;
+    // Same rule as the protocol's variantLabelSchema: one folder name, no leading or trailing dots.
+    const clean = label.replace(/[^A-Za-z0-9_.=+-]/g, '_').replace(/^\.+|\.+$/g, '').slice(0, 60).replace(/\.+$/, '') || `setting_${this.variantSettings.length}`;
     this.variantSettings = [...this.variantSettings.filter((s) => s.label !== clean), { label: clean, strengths }];
   }
 
