@@ -7,6 +7,7 @@ import { dirname, join, normalize, resolve, sep } from 'node:path';
 import { fileURLToPath, pathToFileURL } from 'node:url';
 import { DESKTOP_CHANNELS as C, desktopSchemas } from '../protocol/desktop.ts';
 import { APP_ORIGIN, guarded } from './ipc.ts';
+import { devToolsAllowed, hardenContents, hardenSession } from './guards.ts';
 
 const here = dirname(fileURLToPath(import.meta.url));
 const outDir = resolve(here, '..');
@@ -99,13 +100,12 @@ function createWindow(): void {
       nodeIntegrationInWorker: false,
       webSecurity: true,
       spellcheck: false,
+      devTools: devToolsAllowed(app.isPackaged),
     },
   });
   win.once('ready-to-show', () => win?.show());
-  win.webContents.on('will-navigate', (e, target) => {
-    if (new URL(target).origin !== APP_ORIGIN) e.preventDefault();
-  });
-  win.webContents.setWindowOpenHandler(() => ({ action: 'deny' }));
+  // Navigation, redirects, frames, new windows and webviews: app/main/guards.ts.
+  hardenContents(win.webContents);
   win.webContents.on('did-finish-load', () => connectWindow(false));
   win.on('closed', () => (win = null));
   void win.loadURL(`${APP_ORIGIN}/index.html`);
@@ -175,8 +175,7 @@ function registerIpc(): void {
 }
 
 app.whenReady().then(() => {
-  session.defaultSession.setPermissionRequestHandler((_wc, _permission, callback) => callback(false));
-  session.defaultSession.setPermissionCheckHandler(() => false);
+  hardenSession(session.defaultSession);
   nativeTheme.themeSource = store.get('theme');
   serveRenderer();
   registerIpc();
@@ -186,9 +185,7 @@ app.whenReady().then(() => {
   app.on('activate', () => BrowserWindow.getAllWindows().length === 0 && createWindow());
 });
 
-app.on('web-contents-created', (_e, contents) => {
-  contents.on('will-attach-webview', (e) => e.preventDefault());
-});
+app.on('web-contents-created', (_e, contents) => hardenContents(contents));
 app.on('before-quit', () => {
   quitting = true;
   engine?.kill();
