@@ -227,9 +227,9 @@ export async function startWebShell(options: WebShellOptions = {}): Promise<WebS
       clients.add(client);
       // Oversized frames and broken connections end this client only (ws closes it with 1009 / 1002).
       ws.on('error', (err) => {
+        // ws itself then closes the connection with the right code (1009 for a frame over the cap).
         log(`client ${client.id}: ${err.message}; closing that connection`);
         clients.delete(client);
-        ws.terminate();
       });
       if (child) send(client, event('engine.ready', { engine: 'plumbline-engine', restarted: false }));
       ws.on('message', (data, isBinary) => {
