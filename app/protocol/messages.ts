@@ -61,7 +61,8 @@ export const requestSchemas = {
   'lab.repair': z.object({ direction: z.string().min(1), against: z.array(z.string().min(1)).min(1).max(32), hold: z.union([z.literal('others'), z.array(z.string())]).default([]) }),
   'project.open': z.object({ path: z.string().min(1), create: z.boolean().default(false) }),
   'project.saveUi': z.object({ seed, psi, strengths: z.record(z.string(), strength), pinned: z.array(seed).max(10_000), tags: z.record(z.string(), z.enum(['has', 'lacks'])) }),
-  'pack.build': z.object({ out: z.string().min(1) }),
+  /** `out` is the absolute path the user chose; an existing file is replaced only with `overwrite`. */
+  'pack.build': z.object({ out: z.string().min(1), overwrite: z.boolean().default(false) }),
   'variants.render': z.object({
     name: z.string().regex(/^[A-Za-z0-9_.-]{1,80}$/, 'letters, digits, _ . - only'),
     seeds: z.array(seed).min(1).max(10_000),
@@ -191,10 +192,10 @@ export const resultSchemas = {
     z.object({ cancelled: z.literal(false), report: auditWireSchema, thumbnails: z.array(z.object({ direction: z.string(), seed, strength: z.number(), attribute: z.string(), leakage: z.number(), before: bytes, after: bytes })), savedAs: z.string().nullable() }),
   ]),
   'lab.repair': z.union([z.object({ cancelled: z.literal(true) }), z.object({ cancelled: z.literal(false), direction: directionInfoSchema, boundaries: z.array(z.object({ attribute: z.string(), accuracy: z.number(), role: z.string() })) })]),
-  'project.open': z.object({ path: z.string(), name: z.string(), generatorFingerprint: z.string().nullable(), generatorMatches: z.boolean(), directions: z.array(directionInfoSchema), audits: z.array(z.string()), ui: z.object({ seed, psi, strengths: z.record(z.string(), z.number()), pinned: z.array(seed), tags: z.record(z.string(), z.enum(['has', 'lacks'])) }).nullable() }),
+  'project.open': z.object({ path: z.string(), name: z.string(), generatorFingerprint: z.string().nullable(), generatorMatches: z.boolean(), directions: z.array(directionInfoSchema), audits: z.array(z.string()), ui: z.object({ seed, psi, strengths: z.record(z.string(), z.number()), pinned: z.array(seed), tags: z.record(z.string(), z.enum(['has', 'lacks'])) }).nullable(), /** Entries refused on open (bad names, files outside the project), each with its reason. */ refused: z.array(z.string()).optional() }),
   'project.saveUi': z.object({ savedAt: z.string() }),
   'project.review': z.object({ direction: z.string(), signOff: signOffSchema }),
-  'variants.render': z.union([z.object({ cancelled: z.literal(true) }), z.object({ cancelled: z.literal(false), out: z.string(), rendered: z.number(), reused: z.number(), contactSheet: bytes })]),
+  'variants.render': z.union([z.object({ cancelled: z.literal(true) }), z.object({ cancelled: z.literal(false), out: z.string(), rendered: z.number(), reused: z.number(), replaced: z.number().optional(), contactSheet: bytes })]),
   'pack.build': z.object({ file: z.string(), directions: z.array(z.string()), skipped: z.array(z.string()), bytes: z.number() }),
   'pack.import': z.object({ imported: z.array(z.string()), directions: z.array(directionInfoSchema) }),
 } satisfies Record<Method, z.ZodType>;

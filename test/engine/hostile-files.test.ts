@@ -200,3 +200,35 @@ test('temp files left by interrupted writes are removed when the project opens',
   assert.equal(existsSync(fresh), true, 'a write that may still be running is left alone');
   await host.dispose();
 });
+
+test('engine outputs go only where the user chose: relative paths refused, an unrelated file never replaced unasked', async () => {
+  const sandbox = tempDir();
+  const projectDir = join(sandbox, 'project');
+  const host = await hostWithProject(projectDir);
+  await call(host, 'directions.open', { path: directionFiles(tempDir(), 'set', ['crest']) });
+  const notes = join(sandbox, 'notes.txt');
+  writeFileSync(notes, 'my notes');
+  await assert.rejects(call(host, 'pack.build', { out: notes, overwrite: false }), (e: any) => e.code === 'would-overwrite' && e.message.startsWith(notes));
+  assert.equal(readFileSync(notes, 'utf8'), 'my notes');
+  await assert.rejects(call(host, 'pack.build', { out: 'relative.plpack', overwrite: false }), (e: any) => e.code === 'path-refused');
+  await assert.rejects(call(host, 'variants.render', { name: 'v', seeds: [1], psi: 0.7, settings: [{ label: 'base', strengths: {} }], out: 'relative-folder' }), (e: any) => e.code === 'path-refused');
+  await assert.rejects(call(host, 'model.open', { path: 'relative.card.json' }), (e: any) => e.code === 'path-refused');
+  await assert.rejects(call(host, 'directions.open', { path: 'relative.npy' }), (e: any) => e.code === 'path-refused');
+  await assert.rejects(call(host, 'project.open', { path: 'relative-project', create: true }), (e: any) => e.code === 'path-refused');
+  assert.equal(existsSync(join(process.cwd(), 'relative-project')), false, 'nothing created in the engine\'s working folder');
+  await host.dispose();
+});
+
+test('a project reports the entries it refused on open', async () => {
+  const projectDir = join(tempDir(), 'project');
+  (await hostWithProject(projectDir)).dispose();
+  const doc = JSON.parse(readFileSync(join(projectDir, 'project.json'), 'utf8'));
+  doc.directions.push({ name: '../../victimcfg', file: 'directions/../../victimcfg.npy' });
+  writeFileSync(join(projectDir, 'project.json'), JSON.stringify(doc));
+  const host = new EngineHost({ threads: 1 });
+  await call(host, 'model.open', { path: card });
+  const opened = await call(host, 'project.open', { path: projectDir, create: false });
+  assert.equal(opened.refused.length, 1);
+  assert.match(opened.refused[0], /refused direction '\.\.\/\.\.\/victimcfg': the name may use only/);
+  await host.dispose();
+});
