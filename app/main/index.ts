@@ -70,7 +70,12 @@ function serveRenderer(): void {
   protocol.handle('app', async (request) => {
     const url = new URL(request.url);
     if (url.host !== 'plumbline') return new Response('not found', { status: 404 });
-    const rel = decodeURIComponent(url.pathname === '/' ? '/index.html' : url.pathname).replace(/^\/+/, '');
+    let rel: string;
+    try {
+      rel = decodeURIComponent(url.pathname === '/' ? '/index.html' : url.pathname).replace(/^\/+/, '');
+    } catch {
+      return new Response('malformed URL', { status: 400 }); // '%' without two hex digits
+    }
     const file = normalize(join(rendererDir, rel));
     // Refuse anything that escapes the renderer folder (the API's own example does not check).
     if (!file.startsWith(rendererDir + sep) || !existsSync(file) || !statSync(file).isFile()) return new Response('not found', { status: 404 });
