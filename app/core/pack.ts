@@ -12,6 +12,7 @@ import yauzl from 'yauzl';
 import yazl from 'yazl';
 import { z } from 'zod';
 import { directionNameKey, directionNameSchema } from '../protocol/names.ts';
+import { PlumblineError, type ErrorCode } from './errors.ts';
 
 export const PACK_FORMAT = 'plumbline.pack';
 export const PACK_VERSION = 1;
@@ -23,9 +24,22 @@ export type PackFailure = 'archive' | 'hostile' | 'hash' | 'version' | 'generato
 /** The signature entry: not listed in the manifest, since it signs the manifest itself. */
 export const SIGNATURE_ENTRY = 'manifest.sig';
 
-export class PackError extends Error {
-  constructor(readonly failure: PackFailure, message: string) {
-    super(message);
+/** Each failure class has its own code in the protocol's catalogue, so the app can tell them apart too. */
+const PACK_ERROR_CODES: Record<PackFailure, ErrorCode> = {
+  archive: 'pack-unreadable',
+  hostile: 'pack-unsafe',
+  hash: 'pack-tampered',
+  version: 'pack-version',
+  generator: 'pack-wrong-generator',
+  range: 'pack-invalid-direction',
+  missing: 'pack-incomplete',
+  signature: 'pack-signature',
+};
+
+export class PackError extends PlumblineError {
+  constructor(readonly failure: PackFailure, message: string, extra: { file?: string } = {}) {
+    super(PACK_ERROR_CODES[failure], message, extra);
+    this.name = 'PackError';
   }
 }
 
