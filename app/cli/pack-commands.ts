@@ -1,12 +1,13 @@
 // `plumbline pack`, `verify`, `apply` and `import`.
 import type { Command } from 'commander';
-import { existsSync, readFileSync } from 'node:fs';
 import { join, resolve } from 'node:path';
-import { createHash } from 'node:crypto';
+import { createHash, createPrivateKey, createPublicKey, type KeyObject } from 'node:crypto';
+import { READ_LIMITS, chosenOutputFile, readRegularFile, readTextFile } from '../core/path-policy.ts';
+import { DIRECTION_NAME_RULE, isDirectionName } from '../protocol/names.ts';
 import { writeFileAtomic } from '../core/atomic-write.ts';
 import { encodePng } from '../core/image.ts';
 import { applyEdits, directionEdit } from '../core/latent.ts';
-import { PackError, type PackFailure } from '../core/pack.ts';
+import { PackError, keyIdOf, type PackFailure } from '../core/pack.ts';
 import { ERROR_CATALOGUE, PlumblineError } from '../core/errors.ts';
 import { Generator } from '../engine/generator.ts';
 import { demoCardPath } from '../engine/workspace.ts';
@@ -19,20 +20,35 @@ import { driveSteps } from '../engine/handlers/context.ts';
 import { loadDirections, openWorkspace, type CliContext } from './lab-commands.ts';
 
 /** One exit code per failure class, so pipelines can tell them apart (docs/preset-pack.md). */
-export const PACK_EXIT: Record<PackFailure, number> = { archive: 3, hostile: 4, hash: 5, version: 6, generator: 7, range: 8, missing: 9 };
+export const PACK_EXIT: Record<PackFailure, number> = { archive: 3, hostile: 4, hash: 5, version: 6, generator: 7, range: 8, missing: 9, signature: 10 };
 
 function readFile(path: string): Uint8Array {
-  const f = resolve(path);
-  if (!existsSync(f)) throw new PlumblineError('file-missing', `${f}: pack not found`, { file: f });
-  return new Uint8Array(readFileSync(f));
+  return readRegularFile(path, 'pack', READ_LIMITS.packBytes);
 }
 
-/** Opens the generator (the demo unless --model), verifies the pack against it, runs `use`, and releases the generator. */
-async function withVerifiedPack(o: { pack: string; model?: string }, use: (v: VerifyResult, gen: Generator) => Promise<void>): Promise<void> {
+/** Ed25519 keys in PEM (as `openssl genpkey -algorithm ed25519` writes them); errors never quote the key. */
+function readKey(path: string, kind: 'private' | 'public'): KeyObject {
+  const text = readTextFile(path, `${kind} key`, 64 * 1024);
+  let key: KeyObject;
+  try {
+    key = kind === 'private' ? createPrivateKey(text) : createPublicKey(text);
+  } catch {
+    throw new PlumblineError('bad-request', `${resolve(path)}: not a PEM ${kind} key`, { file: resolve(path) });
+  }
+  if (key.asymmetricKeyType !== 'ed25519') throw new PlumblineError('bad-request', `${resolve(path)}: a ${key.asymmetricKeyType} key; packs are signed with Ed25519 keys`, { file: resolve(path) });
+  return key;
+}
+
+const trusted = (paths: string[] = []) => paths.map((p) => readKey(p, 'public'));
+const collect = (v: string, prev: string[]) => [...prev, v];
+
+/** Opens the generator (the demo unless --model), verifies the pack against it (and its signature with --trust), runs `use`, and releases the generator. */
+async function withVerifiedPack(o: { pack: string; model?: string; trust?: string[] }, use: (v: VerifyResult, gen: Generator) => Promise<void>): Promise<void> {
   const bytes = readFile(o.pack);
+  const trust = trusted(o.trust);
   const gen = await Generator.open(resolve(o.model ?? demoCardPath()));
   try {
-    await use(await verifyPack(bytes, resolve(o.pack), gen), gen);
+    await use(await verifyPack(bytes, resolve(o.pack), gen, { trust }), gen);
   } finally {
     await gen.dispose();
   }
@@ -58,14 +74,18 @@ export function addPackCommands(program: Command, ctx: CliContext): void {
     .requiredOption('--project <dir>', 'project folder')
     .option('-m, --model <file>', 'the generator the project was audited on (model card or .onnx); default: the bundled demo')
     .requiredOption('-o, --out <file.plpack>', 'pack to write')
+    .option('--overwrite', 'replace --out if it exists')
+    .option('--sign <key.pem>', 'sign the manifest with this Ed25519 private key (PEM)')
     .action(async (o) => withPackErrors(async () => {
+      const out = chosenOutputFile(o.out, 'the pack', { overwrite: !!o.overwrite, relativeTo: process.cwd() });
+      const signWith = o.sign ? readKey(o.sign, 'private') : undefined;
       const gen = await Generator.open(resolve(o.model ?? demoCardPath()));
       try {
-        const { bytes, manifest, skipped } = await buildPack(gen, o.project);
-        writeFileAtomic(resolve(o.out), bytes);
+        const { bytes, manifest, skipped } = await buildPack(gen, o.project, { signWith });
+        writeFileAtomic(out, bytes);
         for (const d of manifest.directions) process.stdout.write(`packed ${d.name.padEnd(24)} ${d.audit.verdict.padEnd(7)} safe ${d.safeRange[0]}…${d.safeRange[1]} σ  approved by ${d.signOff.reviewer}\n`);
         for (const s of skipped) process.stdout.write(`skipped ${s}\n`);
-        process.stdout.write(`wrote ${resolve(o.out)} (${bytes.length} bytes) for generator ${manifest.generator.fingerprint.slice(0, 16)}…\n`);
+        process.stdout.write(`wrote ${out} (${bytes.length} bytes) for generator ${manifest.generator.fingerprint.slice(0, 16)}…${signWith ? `, signed by key ${keyIdOf(createPublicKey(signWith))}` : ''}\n`);
       } finally {
         await gen.dispose();
       }
@@ -76,8 +96,10 @@ export function addPackCommands(program: Command, ctx: CliContext): void {
     .description('check a pack: archive safety, hashes, format version, generator fingerprint and ranges')
     .requiredOption('--pack <file>', 'the pack')
     .option('-m, --model <file>', 'the generator production will use; default: the bundled demo')
+    .option('--trust <key.pem>', 'require a signature by this Ed25519 public key (PEM); repeatable', collect, [] as string[])
     .action(async (o) => withPackErrors(() => withVerifiedPack(o, async (r, gen) => {
-      process.stdout.write(`ok: ${r.directions.length} direction(s), ${r.pack.manifest.entries.length} entries with matching SHA-256, format ${r.pack.manifest.version}, generator ${gen.info.name} (${gen.info.fingerprint.slice(0, 16)}…)\n`);
+      const signed = r.signature.status === 'trusted' ? `signed by trusted key ${r.signature.keyId}` : r.signature.status === 'signed' ? `signed by key ${r.signature.keyId} (not checked against a trusted key: pass --trust)` : 'unsigned';
+      process.stdout.write(`ok: ${r.directions.length} direction(s), ${r.pack.manifest.entries.length} entries with matching SHA-256, format ${r.pack.manifest.version}, generator ${gen.info.name} (${gen.info.fingerprint.slice(0, 16)}…), σ and safe ranges recomputed, ${signed}\n`);
       for (const d of r.directions) process.stdout.write(`  ${d.name.padEnd(24)} safe ${d.safeRange[0]}…${d.safeRange[1]} σ\n`);
     })));
 
@@ -91,6 +113,7 @@ export function addPackCommands(program: Command, ctx: CliContext): void {
     .option('--psi <number>', 'truncation ψ (default: the generator card’s)')
     .option('--preview <name>', "re-render a direction's pack preview exactly, for comparison")
     .option('--force', 'allow strengths outside the audited safe range (says so in the manifest)')
+    .option('--trust <key.pem>', 'require a signature by this Ed25519 public key (PEM); repeatable', collect, [] as string[])
     .requiredOption('-o, --out <dir>', 'output folder')
     .action(async (o) => withPackErrors(() => withVerifiedPack(o, async (v, gen) => {
       const out = resolve(o.out);
@@ -110,6 +133,7 @@ export function addPackCommands(program: Command, ctx: CliContext): void {
       const sets = (o.set as string[]).map((s) => {
         const m = /^([A-Za-z0-9_.-]+)=(-?\d+(?:\.\d+)?)$/.exec(s);
         if (!m) throw ctx.usage(`--set '${s}' must look like name=strength, e.g. crest_size=1.5`);
+        if (!isDirectionName(m[1])) throw ctx.usage(`--set '${s}': '${m[1]}' is not a direction name (${DIRECTION_NAME_RULE})`);
         const d = v.directions.find((x) => x.name === m[1]);
         if (!d) throw ctx.usage(`--set: the pack has no direction '${m[1]}'; it holds ${v.directions.map((x) => x.name).join(', ')}`);
         return { d, strength: Number(m[2]) };
@@ -148,21 +172,21 @@ export function addPackCommands(program: Command, ctx: CliContext): void {
     .option('-d, --directions <file>', 'directions (.npy with .json sidecar)')
     .option('--pack <file>', 'a preset pack instead of --directions (its safe ranges are enforced)')
     .option('--force', 'allow strengths outside a pack’s safe range')
+    .option('--trust <key.pem>', 'with --pack: require a signature by this Ed25519 public key (PEM); repeatable', collect, [] as string[])
     .requiredOption('-o, --out <dir>', 'output folder; rerun the same command to resume')
     .action(async (o) => withPackErrors(async () => {
       if (!o.directions === !o.pack) throw ctx.usage('give exactly one of --directions or --pack');
       const recipeFile = resolve(o.recipe);
-      if (!existsSync(recipeFile)) throw new PlumblineError('file-missing', `${recipeFile}: recipe not found`, { file: recipeFile });
-      const recipe = parseRecipe(readFileSync(recipeFile, 'utf8'), recipeFile);
+      const recipe = parseRecipe(readTextFile(recipeFile, 'recipe'), recipeFile);
       const workspace = await openWorkspace(o.model, undefined);
       try {
         const gen = workspace.requireGenerator();
         let dirs: VariantDirection[];
-        if (o.pack) dirs = (await verifyPack(readFile(o.pack), resolve(o.pack), gen)).directions;
+        if (o.pack) dirs = (await verifyPack(readFile(o.pack), resolve(o.pack), gen, { trust: trusted(o.trust) })).directions;
         else dirs = loadDirections(workspace, o.directions);
         const steps = renderVariants(gen, recipe, dirs, resolve(o.out), { force: o.force });
         const done = await runCliJob(ctx, workspace, 'variants', 'stopped; run the same command again to resume', (job) => driveSteps(steps, job));
-        if (done) process.stdout.write(`${recipe.name}: ${done.rendered} rendered, ${done.reused} kept from an earlier run; manifest.json and contact-sheet.png in ${resolve(o.out)}\n`);
+        if (done) process.stdout.write(`${recipe.name}: ${done.rendered} rendered${done.replaced ? ` (${done.replaced} replaced: their recipe entry changed)` : ''}, ${done.reused} kept from an earlier run; manifest.json and contact-sheet.png in ${resolve(o.out)}\n`);
       } finally {
         await workspace.dispose();
       }
@@ -174,10 +198,12 @@ export function addPackCommands(program: Command, ctx: CliContext): void {
     .requiredOption('--pack <file>', 'the pack')
     .requiredOption('--project <dir>', 'project folder (created if missing)')
     .option('-m, --model <file>', 'the generator; default: the bundled demo')
+    .option('--trust <key.pem>', 'require a signature by this Ed25519 public key (PEM); repeatable', collect, [] as string[])
     .action(async (o) => withPackErrors(() => withVerifiedPack(o, async (v, gen) => {
       const project = Project.open(o.project, true, { name: gen.info.name, fingerprint: gen.info.fingerprint });
+      for (const r of project.refused) process.stderr.write(`warning: ${r}\n`);
       for (const d of v.directions) {
-        // Names were checked against ^[A-Za-z0-9_.-]+$, so files land inside the project's directions/ only.
+        // Names follow app/protocol/names.ts (one path segment), and saveDirection checks the path again.
         project.saveDirection({ ...d, source: { ...d.source, importedFrom: v.pack.manifest.project } }, gen.layout.space);
         process.stdout.write(`imported ${d.name}\n`);
       }

@@ -6,11 +6,12 @@ import { z } from 'zod';
 import { PlumblineError } from './errors.ts';
 import { decodeNpy } from './npy.ts';
 import { parseJsonFile } from './json-file.ts';
+import { directionNameKey, directionNameSchema, toDirectionName } from '../protocol/names.ts';
 
 export const DIRECTIONS_FORMAT = 'plumbline.directions';
 
 const entrySchema = z.object({
-  name: z.string().min(1).max(120),
+  name: directionNameSchema,
   target: z.string().min(1).nullable().default(null),
   layers: z.tuple([z.number().int().min(0), z.number().int().min(1)]).nullable().default(null),
   perLayer: z.boolean().default(false),
@@ -80,9 +81,11 @@ export function readDirections(npyBytes: Uint8Array, npyFile: string, meta: Dire
     for (const x of raw) n += x * x;
     if (!(n > 0)) throw new PlumblineError('npy-invalid', `${npyFile}: direction ${k} is all zeros`, { file: npyFile });
     const norm = Math.sqrt(n);
-    const name = e?.name ?? (vectors.length === 1 ? baseName : `${baseName}_${k}`);
-    if (seen.has(name)) throw new PlumblineError('directions-invalid', `${npyFile}: two directions are named '${name}'`, { file: npyFile });
-    seen.add(name);
+    // Without a sidecar the name comes from the file name, made safe to use as one itself.
+    const name = e?.name ?? toDirectionName(vectors.length === 1 ? baseName : `${baseName}_${k}`);
+    // Names become file names: 'Crest' and 'crest' are one file on macOS and Windows.
+    if (seen.has(directionNameKey(name))) throw new PlumblineError('directions-invalid', `${npyFile}: two directions are named '${name}' (names are compared ignoring case)`, { file: npyFile });
+    seen.add(directionNameKey(name));
     const lr = e?.layers ?? null;
     if (lr && (lr[0] >= lr[1] || lr[1] > layers)) {
       throw new PlumblineError('directions-invalid', `${npyFile}: direction '${name}' has layer range [${lr[0]}, ${lr[1]}) but this generator has ${layers} layer(s)`, { file: npyFile });

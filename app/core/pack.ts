@@ -4,12 +4,14 @@
 //   directions/<name>.npy|.json    each approved direction with its metadata
 //   previews/<name>.png            seeds × strengths preview, reproducible with `plumbline apply`
 //   report.html                    self-contained report (nothing fetched from anywhere)
+//   manifest.sig                   optional Ed25519 signature of manifest.json's exact bytes
 // Reading never trusts the archive: names, sizes, counts, ratios and hashes are all checked, and
 // nothing is extracted to disk.
-import { createHash } from 'node:crypto';
+import { createHash, createPublicKey, sign as signBytes, verify as verifyBytes, type KeyObject } from 'node:crypto';
 import yauzl from 'yauzl';
 import yazl from 'yazl';
 import { z } from 'zod';
+import { directionNameKey, directionNameSchema } from '../protocol/names.ts';
 import { PlumblineError, type ErrorCode } from './errors.ts';
 
 export const PACK_FORMAT = 'plumbline.pack';
@@ -17,7 +19,10 @@ export const PACK_VERSION = 1;
 /** Caps against zip bombs and hostile archives. */
 export const PACK_LIMITS = { entries: 2000, entryBytes: 64 * 1024 * 1024, totalBytes: 512 * 1024 * 1024, ratio: 200 };
 
-export type PackFailure = 'archive' | 'hostile' | 'hash' | 'version' | 'generator' | 'range' | 'missing';
+export type PackFailure = 'archive' | 'hostile' | 'hash' | 'version' | 'generator' | 'range' | 'missing' | 'signature';
+
+/** The signature entry: not listed in the manifest, since it signs the manifest itself. */
+export const SIGNATURE_ENTRY = 'manifest.sig';
 
 /** Each failure class has its own code in the protocol's catalogue, so the app can tell them apart too. */
 const PACK_ERROR_CODES: Record<PackFailure, ErrorCode> = {
@@ -28,6 +33,7 @@ const PACK_ERROR_CODES: Record<PackFailure, ErrorCode> = {
   generator: 'pack-wrong-generator',
   range: 'pack-invalid-direction',
   missing: 'pack-incomplete',
+  signature: 'pack-signature',
 };
 
 export class PackError extends PlumblineError {
@@ -39,8 +45,22 @@ export class PackError extends PlumblineError {
 
 const interval = z.object({ value: z.number().nullable(), low: z.number().nullable(), high: z.number().nullable() });
 
+/**
+ * What the safe range was derived from: the audit's leakage and path-length curves and its
+ * thresholds. `verify` recomputes the safe range from these, so a range edited by hand disagrees.
+ */
+export const evidenceSchema = z.object({
+  auditGenerator: z.string().regex(/^[0-9a-f]{64}$/),
+  strengths: z.array(z.number()).min(2).max(1000),
+  leakageCurve: z.array(z.number().nullable()).max(1000),
+  leakPass: z.number().positive(),
+  pathLength: z.object({ strengths: z.array(z.number()).max(1000), mean: z.array(z.number()).max(1000) }),
+  spikeRatio: z.number().min(1),
+});
+export type PackEvidence = z.infer<typeof evidenceSchema>;
+
 export const packDirectionSchema = z.object({
-  name: z.string().regex(/^[A-Za-z0-9_.-]{1,120}$/),
+  name: directionNameSchema,
   npy: z.string(),
   meta: z.string(),
   preview: z.string().nullable(),
@@ -51,6 +71,8 @@ export const packDirectionSchema = z.object({
   audit: z.object({ verdict: z.enum(['pass', 'review', 'fail']), reason: z.string(), leakage: interval, pathLength: interval, probes: z.number().int(), file: z.string().nullable() }),
   signOff: z.object({ status: z.literal('approved'), reviewer: z.string(), at: z.string(), note: z.string() }),
   previewSpec: z.object({ seeds: z.array(z.number().int().min(0)), strengths: z.array(z.number()), psi: z.number() }).nullable(),
+  /** Absent in packs from before evidence was recorded; such packs fail verify (nothing to check the range against). */
+  evidence: evidenceSchema.optional(),
 });
 
 export const manifestSchema = z.object({
@@ -77,13 +99,35 @@ export function safeEntryName(name: string): boolean {
   return name.split('/').every((part) => part !== '..' && part !== '.' && part !== '');
 }
 
-export function writePack(files: { path: string; bytes: Uint8Array }[], manifest: Omit<PackManifest, 'entries'>): Promise<Uint8Array> {
-  for (const f of files) if (!safeEntryName(f.path)) throw new PackError('hostile', `refusing to write unsafe entry name '${f.path}'`);
+/** The signature entry's content. The public key travels with it; trust comes from comparing it with a key the user holds. */
+const signatureSchema = z.object({ algorithm: z.literal('ed25519'), publicKey: z.string().max(200), signature: z.string().max(200) });
+
+export interface PackSignature {
+  /** SPKI DER of the signing key, base64. */
+  publicKey: string;
+  /** First 16 hex digits of SHA-256 over the SPKI DER: how people tell keys apart. */
+  keyId: string;
+  valid: boolean;
+}
+
+export const keyIdOf = (publicKey: KeyObject) => sha256(new Uint8Array(publicKey.export({ type: 'spki', format: 'der' }))).slice(0, 16);
+
+export function writePack(files: { path: string; bytes: Uint8Array }[], manifest: Omit<PackManifest, 'entries'>, options: { signWith?: KeyObject } = {}): Promise<Uint8Array> {
+  for (const f of files) if (!safeEntryName(f.path) || f.path === SIGNATURE_ENTRY || f.path === 'manifest.json') throw new PackError('hostile', `refusing to write unsafe entry name '${f.path}'`);
   const entries = files.map((f) => ({ path: f.path, size: f.bytes.length, sha256: sha256(f.bytes) }));
   const full: PackManifest = { ...manifest, entries };
   const zip = new yazl.ZipFile();
   const fixed = new Date('2000-01-01T00:00:00Z'); // reproducible archives: fixed timestamps
-  zip.addBuffer(Buffer.from(JSON.stringify(full, null, 2) + '\n'), 'manifest.json', { mtime: fixed, mode: 0o100644 });
+  const manifestBytes = Buffer.from(JSON.stringify(full, null, 2) + '\n');
+  zip.addBuffer(manifestBytes, 'manifest.json', { mtime: fixed, mode: 0o100644 });
+  if (options.signWith) {
+    const key = options.signWith;
+    if (key.asymmetricKeyType !== 'ed25519' || key.type !== 'private') throw new PackError('signature', 'signing needs an Ed25519 private key');
+    // Ed25519 signs the message itself (no separate digest): pass null as the algorithm.
+    const signature = signBytes(null, manifestBytes, key).toString('base64');
+    const publicKey = Buffer.from(createPublicKey(key).export({ type: 'spki', format: 'der' })).toString('base64');
+    zip.addBuffer(Buffer.from(JSON.stringify({ algorithm: 'ed25519', publicKey, signature }, null, 2) + '\n'), SIGNATURE_ENTRY, { mtime: fixed, mode: 0o100644 });
+  }
   for (const f of files) zip.addBuffer(Buffer.from(f.bytes), f.path, { mtime: fixed, mode: 0o100644, compress: !f.path.endsWith('.png') });
   zip.end();
   return new Promise((resolve, reject) => {
@@ -97,6 +141,8 @@ export function writePack(files: { path: string; bytes: Uint8Array }[], manifest
 export interface ReadPack {
   manifest: PackManifest;
   files: Map<string, Uint8Array>;
+  /** Present when the pack carries manifest.sig; `valid` says whether it signs these manifest bytes. */
+  signature: PackSignature | null;
 }
 
 /** Reads and checks a pack entirely in memory. Throws PackError with a failure class. */
@@ -181,9 +227,32 @@ export function readPack(bytes: Uint8Array, label = 'the pack'): Promise<ReadPac
           if (f.length !== e.size) return fail('hash', `'${e.path}' is ${f.length} bytes, the manifest says ${e.size}`);
           if (sha256(f) !== e.sha256) return fail('hash', `'${e.path}' does not match its SHA-256 in the manifest (tampered or corrupted)`);
         }
-        for (const name of files.keys()) if (name !== 'manifest.json' && !listed.has(name)) return fail('hash', `'${name}' is in the archive but not in the manifest`);
+        for (const name of files.keys()) if (name !== 'manifest.json' && name !== SIGNATURE_ENTRY && !listed.has(name)) return fail('hash', `'${name}' is in the archive but not in the manifest`);
+        const names = new Set<string>();
+        for (const d of m.data.directions) {
+          if (names.has(directionNameKey(d.name))) return fail('hostile', `two directions are named '${d.name}' (names are compared ignoring case)`);
+          names.add(directionNameKey(d.name));
+        }
         for (const d of m.data.directions) for (const p of [d.npy, d.meta, ...(d.preview ? [d.preview] : [])]) if (!listed.has(p)) return fail('missing', `direction '${d.name}' refers to '${p}', which the manifest does not list`);
-        resolve({ manifest: m.data, files });
+        let signature: PackSignature | null = null;
+        const sig = files.get(SIGNATURE_ENTRY);
+        if (sig) {
+          let parsed: z.infer<typeof signatureSchema>;
+          try {
+            parsed = signatureSchema.parse(JSON.parse(new TextDecoder().decode(sig)));
+          } catch {
+            return fail('signature', `${SIGNATURE_ENTRY} is not a valid signature record`);
+          }
+          try {
+            const key = createPublicKey({ key: Buffer.from(parsed.publicKey, 'base64'), format: 'der', type: 'spki' });
+            if (key.asymmetricKeyType !== 'ed25519') return fail('signature', `${SIGNATURE_ENTRY} names a key that is not Ed25519`);
+            const valid = verifyBytes(null, raw, key, Buffer.from(parsed.signature, 'base64'));
+            signature = { publicKey: parsed.publicKey, keyId: keyIdOf(key), valid };
+          } catch {
+            return fail('signature', `${SIGNATURE_ENTRY} holds a public key that cannot be read`);
+          }
+        }
+        resolve({ manifest: m.data, files, signature });
       });
       zip.readEntry();
     });

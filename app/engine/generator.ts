@@ -1,14 +1,19 @@
 // A loaded generator: owns its onnxruntime sessions (synthesis and optional mapping), knows its
 // latent layout, truncation centre and attribute outputs, renders batches and checks what comes
 // out. The only module besides sessions.ts that touches onnxruntime.
-import { readFileSync, existsSync, statSync } from 'node:fs';
 import { createHash } from 'node:crypto';
 import { basename, dirname, resolve } from 'node:path';
 import * as ort from 'onnxruntime-node';
 import { PlumblineError } from '../core/errors.ts';
 import { parseModelCard, type ModelCard } from '../core/model-card.ts';
 import { decodeModel, summarizeModel, type OnnxSummary, type TensorInterface } from '../core/onnx/inspect.ts';
+<<<<<<< HEAD
 import { applyEdits, broadcastLayers, directionSigma, seedsToZ, truncate, type EditVector, type LatentLayout } from '../core/latent.ts';
+=======
+import { GENERATOR_LIMITS, checkGraphShapes, checkImageCaps, checkLatentCaps, type GeneratorLimits } from '../core/onnx/caps.ts';
+import { READ_LIMITS, readRegularFile, resolveInside } from '../core/path-policy.ts';
+import { applyEdits, broadcastLayers, directionSigma, seedsToZ, truncate, type EditVector } from '../core/latent.ts';
+>>>>>>> hostile
 import { OutputValueError, tensorToRgba, type RgbaImage } from '../core/image.ts';
 import type { ModelInfo } from '../protocol/messages.ts';
 import { createSession, type SessionOptions } from './sessions.ts';
@@ -53,10 +58,9 @@ interface Resolved {
   assumptions: string[];
 }
 
-function readBytes(file: string, what: string): Uint8Array {
-  if (!existsSync(file)) throw new PlumblineError('file-missing', `${file}: ${what} not found`, { file });
-  if (statSync(file).isDirectory()) throw new PlumblineError('file-missing', `${file}: ${what} is a folder, not a file`, { file });
-  return new Uint8Array(readFileSync(file));
+/** Regular files only (never a folder, FIFO or device), under the model size cap. */
+function readBytes(file: string, what: string, maxBytes = READ_LIMITS.modelBytes): Uint8Array {
+  return readRegularFile(file, what, maxBytes);
 }
 
 export class Generator {
@@ -70,10 +74,12 @@ export class Generator {
   readonly attributeNames: string[];
   readonly card: ModelCard | null;
   readonly #r: Resolved;
+  readonly #limits: GeneratorLimits;
   batchSize = DEFAULT_BATCH;
 
-  private constructor(r: Resolved, synthesis: ort.InferenceSession, mapping: ort.InferenceSession | null, info: ModelInfo, centre: Float32Array, samples: Float32Array) {
+  private constructor(r: Resolved, synthesis: ort.InferenceSession, mapping: ort.InferenceSession | null, info: ModelInfo, centre: Float32Array, samples: Float32Array, limits: GeneratorLimits) {
     this.#r = r;
+    this.#limits = limits;
     this.#synthesis = synthesis;
     this.#mapping = mapping;
     this.layout = r.layout;
@@ -84,18 +90,32 @@ export class Generator {
     this.attributeNames = r.card?.attributes.map((a) => a.name) ?? [];
   }
 
-  static async open(path: string, options: SessionOptions & { mappingPath?: string; demoDirections?: string | null } = {}): Promise<Generator> {
+  static async open(path: string, options: SessionOptions & { mappingPath?: string; demoDirections?: string | null; limits?: Partial<GeneratorLimits> } = {}): Promise<Generator> {
+    const limits: GeneratorLimits = { ...GENERATOR_LIMITS, ...options.limits };
     const file = resolve(path);
     const isCard = file.toLowerCase().endsWith('.json');
     const r = isCard ? resolveCard(file) : resolveBare(file, options.mappingPath ? resolve(options.mappingPath) : null);
     const synthBytes = readBytes(r.synthesisFile, 'synthesis model');
-    const synthSummary = summarizeModel(decodeModel(synthBytes, r.synthesisFile));
+    const synthModel = decodeModel(synthBytes, r.synthesisFile);
+    const synthSummary = summarizeModel(synthModel);
+    // Caps before anything is allocated for the model: stated sizes first, then constant shapes.
+    if (r.card) checkLatentCaps(r.cardFile!, 'the model card', r.layout.layers, r.layout.size, limits);
     checkInterface(r, synthSummary);
+    checkLatentCaps(r.synthesisFile, `latent input '${r.latentInput}'`, r.layout.layers, r.layout.size, limits);
+    checkGraphShapes(synthModel, r.synthesisFile, limits);
+    const out = synthSummary.outputs.find((o) => o.name === r.imageOutput);
+    if (out?.dims?.length === 4) {
+      const [h, w] = r.imageLayout === 'NCHW' ? [out.dims[2], out.dims[3]] : [out.dims[1], out.dims[2]];
+      if (fixed(h) && fixed(w)) checkImageCaps(r.synthesisFile, `image output '${out.name}'`, h, w, limits);
+    }
     let mapBytes: Uint8Array | null = null;
     if (r.mappingFile) {
       mapBytes = readBytes(r.mappingFile, 'mapping network');
-      const ms = summarizeModel(decodeModel(mapBytes, r.mappingFile));
+      const mapModel = decodeModel(mapBytes, r.mappingFile);
+      const ms = summarizeModel(mapModel);
       checkMapping(r, ms);
+      checkLatentCaps(r.mappingFile, 'the mapping network input', 1, r.layout.zSize, limits);
+      checkGraphShapes(mapModel, r.mappingFile, limits);
     }
     const synthesis = await createSession(synthBytes, r.synthesisFile, options);
     let mapping: ort.InferenceSession | null = null;
@@ -117,7 +137,7 @@ export class Generator {
     if (r.cardBytes) part('card', r.cardBytes);
     const fingerprint = hash.digest('hex');
 
-    const gen = new Generator(r, synthesis, mapping, {} as ModelInfo, new Float32Array(r.layout.size), new Float32Array(0));
+    const gen = new Generator(r, synthesis, mapping, {} as ModelInfo, new Float32Array(r.layout.size), new Float32Array(0), limits);
     try {
       // Statistics: W samples from the mapping (or Z samples), centre from the card or their mean.
       const z = seedsToZ(Array.from({ length: STAT_SAMPLES }, (_, i) => STAT_SEED_BASE + i), r.layout.zSize);
@@ -136,7 +156,10 @@ export class Generator {
       (gen as { centre: Float32Array }).centre = centre;
       (gen as { centredSamples: Float32Array }).centredSamples = centred;
 
-      // A probe render checks shape, range and finiteness before anyone relies on the model.
+      // A probe render checks shape, size, range and finiteness before anyone relies on the
+      // model: one image first (the pixel cap then holds at the smallest allocation), then two
+      // (the batch dimension must be dynamic).
+      await gen.renderSeeds([0], 1, []);
       await gen.renderSeeds([0, 1], 1, []);
       const { width, height } = gen.imageSize();
       const files = [r.cardFile, r.synthesisFile, r.mappingFile].filter((f): f is string => !!f);
@@ -155,7 +178,7 @@ export class Generator {
         defaultPsi: r.card?.truncation.defaultPsi ?? 0.7,
         attributes: r.card?.attributes ?? [],
         assumptions: r.assumptions,
-        demoDirections: options.demoDirections ?? (r.card?.directions && r.cardFile ? resolve(dirname(r.cardFile), r.card.directions) : null),
+        demoDirections: options.demoDirections ?? (r.card?.directions && r.cardFile ? resolveInside(dirname(r.cardFile), r.card.directions, 'directions', r.cardFile) : null),
         caution: r.card?.caution ?? null,
       };
       return gen;
@@ -297,6 +320,8 @@ export class Generator {
     const channels = this.#r.imageLayout === 'NCHW' ? dims[1] : dims[3];
     if (channels !== 3) throw new PlumblineError('bad-image-output', `${file}: image output '${this.#r.imageOutput}' has ${channels} channels (shape [${dims.join(', ')}], ${this.#r.imageLayout}); expected 3 (RGB)`, { file });
     if (dims[0] !== m) throw new PlumblineError('bad-image-output', `${file}: image output batch is ${dims[0]}, expected ${m} (is the batch dimension dynamic?)`, { file });
+    const [h, w] = this.#r.imageLayout === 'NCHW' ? [dims[2], dims[3]] : [dims[1], dims[2]];
+    checkImageCaps(file, `image output '${this.#r.imageOutput}'`, h, w, this.#limits);
     this.#shape = [...dims];
     const [lo, hi] = this.#r.range;
     const slack = (hi - lo) * RANGE_SLACK;
@@ -361,7 +386,7 @@ export class Generator {
 }
 
 function resolveCard(cardFile: string): Resolved {
-  const bytes = readBytes(cardFile, 'model card');
+  const bytes = readBytes(cardFile, 'model card', READ_LIMITS.jsonBytes);
   const card = parseModelCard(new TextDecoder().decode(bytes), cardFile);
   const dir = dirname(cardFile);
   const s = card.synthesis;
@@ -370,8 +395,9 @@ function resolveCard(cardFile: string): Resolved {
     card,
     cardBytes: bytes,
     cardFile,
-    synthesisFile: resolve(dir, s.file),
-    mappingFile: card.mapping ? resolve(dir, card.mapping.file) : null,
+    // Paths in a card are relative to its folder and stay inside it (docs/model-card.md).
+    synthesisFile: resolveInside(dir, s.file, 'synthesis.file', cardFile),
+    mappingFile: card.mapping ? resolveInside(dir, card.mapping.file, 'mapping.file', cardFile) : null,
     latentInput: s.latentInput,
     imageOutput: s.output,
     attributesOutput: s.attributesOutput ?? null,

@@ -1,6 +1,7 @@
 // Variant sets: a named recipe (base seeds × direction settings at one truncation) rendered as
 // a resumable batch job into a folder of PNGs, a manifest that reproduces every image bit for
-// bit, and a labelled contact sheet.
+// bit, and a labelled contact sheet. Resuming keeps an image only when the recipe entry that
+// made it is unchanged: each image carries a key hashing everything that determines its pixels.
 import { existsSync, readFileSync } from 'node:fs';
 import { join } from 'node:path';
 import { createHash } from 'node:crypto';
@@ -11,6 +12,8 @@ import { encodePng, encodePngAsync, type RgbaImage } from '../core/image.ts';
 import { applyEdits, directionEdit } from '../core/latent.ts';
 import { PlumblineError } from '../core/errors.ts';
 import { parseJsonFile } from '../core/json-file.ts';
+import { chosenOutputFolder, readTextFile } from '../core/path-policy.ts';
+import { variantLabelSchema } from '../protocol/names.ts';
 import { drawText, GLYPH_HEIGHT } from '../core/label-font.ts';
 import type { Generator } from './generator.ts';
 
@@ -20,7 +23,7 @@ export const recipeSchema = z.object({
   name: z.string().regex(/^[A-Za-z0-9_.-]{1,80}$/),
   seeds: z.array(z.number().int().min(0).max(0xffffffff)).min(1).max(10_000),
   psi: z.number().min(0).max(2).default(0.7),
-  settings: z.array(z.object({ label: z.string().regex(/^[A-Za-z0-9_.=+-]{1,60}$/), strengths: z.record(z.string(), z.number().min(-20).max(20)) })).min(1).max(1000),
+  settings: z.array(z.object({ label: variantLabelSchema, strengths: z.record(z.string(), z.number().min(-20).max(20)) })).min(1).max(1000),
 });
 export type Recipe = z.infer<typeof recipeSchema>;
 
@@ -38,8 +41,31 @@ export function parseRecipe(text: string, file: string): Recipe {
   return parseJsonFile(recipeSchema, text, file, 'invalid variant recipe');
 }
 
-/** Renders a recipe; yields progress between batches. Existing images with matching hashes are kept (resume). */
-export async function* renderVariants(gen: Generator, recipe: Recipe, directions: VariantDirection[], out: string, options: { force?: boolean } = {}): AsyncGenerator<{ done: number; total: number; label: string }, { manifest: object; rendered: number; reused: number }, void> {
+/**
+ * What determines one image's pixels: generator, seed, ψ and every direction used with its
+ * vector hash, σ and strength. Two runs that agree on this render the same bytes.
+ */
+export function imageKey(fingerprint: string, seed: number, psi: number, strengths: Record<string, number>, byName: Map<string, VariantDirection>): string {
+  const used = Object.keys(strengths).sort().map((name) => {
+    const d = byName.get(name)!;
+    return [name, strengths[name], hashOf(d), d.sigma];
+  });
+  return createHash('sha256').update(JSON.stringify({ v: 1, fingerprint, seed, psi, used })).digest('hex');
+}
+
+const previousSchema = z.object({
+  format: z.literal('plumbline.variants'),
+  generator: z.object({ fingerprint: z.string() }).optional(),
+  images: z.array(z.object({ file: z.string(), sha256: z.string(), key: z.string().optional() })).default([]),
+});
+
+/**
+ * Renders a recipe; yields progress between batches. An existing image is kept (resume) only when
+ * its file matches its hash and its key matches this recipe's entry; otherwise it is rendered
+ * again and counted as replaced.
+ */
+export async function* renderVariants(gen: Generator, recipe: Recipe, directions: VariantDirection[], outFolder: string, options: { force?: boolean } = {}): AsyncGenerator<{ done: number; total: number; label: string }, { manifest: object; rendered: number; reused: number; replaced: number }, void> {
+  const out = chosenOutputFolder(outFolder, 'the variant-set folder');
   const byName = new Map(directions.map((d) => [d.name, d]));
   for (const s of recipe.settings)
     for (const [name, strength] of Object.entries(s.strengths)) {
@@ -48,16 +74,18 @@ export async function* renderVariants(gen: Generator, recipe: Recipe, directions
       if (d.safeRange && !options.force && (strength < d.safeRange[0] || strength > d.safeRange[1])) throw new PlumblineError('bad-request', `setting '${s.label}': ${name}=${strength} is outside its audited safe range ${d.safeRange[0]}…${d.safeRange[1]} (use --force to render anyway)`);
     }
   const manifestFile = join(out, 'manifest.json');
-  const previous = existsSync(manifestFile) ? (JSON.parse(readFileSync(manifestFile, 'utf8')) as { generator?: { fingerprint: string }; images?: { file: string; sha256: string }[] }) : null;
+  // A manifest.json that is not ours is someone else's file: never overwrite it.
+  const previous = existsSync(manifestFile) ? parseJsonFile(previousSchema, readTextFile(manifestFile, 'variant-set manifest'), manifestFile, 'not a variant-set manifest (choose another folder)', 'would-overwrite') : null;
   if (previous?.generator && previous.generator.fingerprint !== gen.info.fingerprint) throw new PlumblineError('bad-request', `${manifestFile}: this folder holds variants of another generator; choose another --out`);
-  const known = new Map((previous?.images ?? []).map((i) => [i.file, i.sha256]));
+  const known = new Map(previous?.images.map((i) => [i.file, i]) ?? []);
   const per = gen.layout.layers * gen.layout.size;
   const base = await gen.codesForSeeds(recipe.seeds, recipe.psi);
-  const jobs = recipe.settings.flatMap((s) => recipe.seeds.map((seed, i) => ({ s, seed, i, file: `${s.label}/seed-${String(seed).padStart(6, '0')}.png` })));
-  const images: { file: string; seed: number; setting: string; sha256: string }[] = [];
+  const jobs = recipe.settings.flatMap((s) => recipe.seeds.map((seed, i) => ({ s, seed, i, file: `${s.label}/seed-${String(seed).padStart(6, '0')}.png`, key: imageKey(gen.info.fingerprint, seed, recipe.psi, s.strengths, byName) })));
+  const images: { file: string; seed: number; setting: string; sha256: string; key: string }[] = [];
   const thumbs = new Map<string, RgbaImage>();
   let rendered = 0;
   let reused = 0;
+  let replaced = 0;
   const writes: Promise<void>[] = [];
   const writeManifest = (complete: boolean) =>
     writeFileAtomic(manifestFile, JSON.stringify({
@@ -72,9 +100,14 @@ export async function* renderVariants(gen: Generator, recipe: Recipe, directions
     }, null, 2) + '\n');
   for (let at = 0; at < jobs.length; at += gen.batchSize) {
     const chunk = jobs.slice(at, at + gen.batchSize);
-    const pending = chunk.filter((j) => !(known.has(j.file) && existsSync(join(out, j.file)) && sha(readFileSync(join(out, j.file))) === known.get(j.file)));
+    const keep = (j: (typeof jobs)[number]) => {
+      const k = known.get(j.file);
+      return !!k && k.key === j.key && existsSync(join(out, j.file)) && sha(readFileSync(join(out, j.file))) === k.sha256;
+    };
+    const pending = chunk.filter((j) => !keep(j));
+    for (const j of pending) if (existsSync(join(out, j.file))) replaced++;
     for (const j of chunk.filter((x) => !pending.includes(x))) {
-      images.push({ file: j.file, seed: j.seed, setting: j.s.label, sha256: known.get(j.file)! });
+      images.push({ file: j.file, seed: j.seed, setting: j.s.label, sha256: known.get(j.file)!.sha256, key: j.key });
       if (j.i < 8) {
         const png = decode(readFileSync(join(out, j.file)));
         thumbs.set(j.file, { width: png.width, height: png.height, data: new Uint8ClampedArray(png.data) });
@@ -95,7 +128,7 @@ export async function* renderVariants(gen: Generator, recipe: Recipe, directions
         // Compression runs on zlib's threads while the next batch renders; writes follow.
         writes.push(encodePngAsync(img).then((png) => {
           writeFileAtomic(join(out, j.file), png, { durable: false });
-          images.push({ file: j.file, seed: j.seed, setting: j.s.label, sha256: sha(png) });
+          images.push({ file: j.file, seed: j.seed, setting: j.s.label, sha256: sha(png), key: j.key });
           rendered++;
         }));
       });
@@ -109,7 +142,7 @@ export async function* renderVariants(gen: Generator, recipe: Recipe, directions
   images.sort((a, b) => a.file.localeCompare(b.file));
   writeManifest(true);
   writeFileAtomic(join(out, 'contact-sheet.png'), encodePng(contactSheet(recipe, thumbs)));
-  return { manifest: JSON.parse(readFileSync(manifestFile, 'utf8')), rendered, reused };
+  return { manifest: JSON.parse(readFileSync(manifestFile, 'utf8')), rendered, reused, replaced };
 }
 
 const sha = (b: Uint8Array) => createHash('sha256').update(b).digest('hex');

@@ -1,11 +1,12 @@
 // The engine's state, one per process (and one per CLI command): the open generator, the
 // direction registry (loaded, discovered, kept) and the open project. Handlers and the CLI work
 // through it, so a direction's σ, its edit and its saving to the project happen in one place.
-import { existsSync, readFileSync } from 'node:fs';
-import { basename, dirname, join, resolve } from 'node:path';
+import { dirname, join, resolve } from 'node:path';
 import { fileURLToPath } from 'node:url';
 import { PlumblineError } from '../core/errors.ts';
-import { readDirections, parseDirectionsMeta, type Direction } from '../core/directions.ts';
+import type { Direction } from '../core/directions.ts';
+import { directionNameKey } from '../protocol/names.ts';
+import { readDirectionSet } from './direction-sources.ts';
 import { directionEdit, type EditVector } from '../core/latent.ts';
 import type { DirectionInfo, Params, Outcome } from '../protocol/messages.ts';
 import { Generator } from './generator.ts';
@@ -70,16 +71,8 @@ export class Workspace {
   /** Reads a directions file (.npy with an optional .json sidecar, or the sidecar itself). */
   openDirections(path: string): Outcome<'directions.open'> {
     const gen = this.requireGenerator();
-    const file = resolve(path);
-    const npyFile = file.endsWith('.json') ? null : file;
-    let metaFile = file.endsWith('.json') ? file : file.replace(/\.npy$/i, '.json');
-    let meta = null;
-    if (existsSync(metaFile)) {
-      meta = parseDirectionsMeta(readFileSync(metaFile, 'utf8'), metaFile);
-    } else metaFile = '';
-    const dataFile = npyFile ?? (meta?.file ? resolve(dirname(file), meta.file) : file.replace(/\.json$/i, '.npy'));
-    if (!existsSync(dataFile)) throw new PlumblineError('file-missing', `${dataFile}: directions array not found`, { file: dataFile });
-    const dirs = readDirections(new Uint8Array(readFileSync(dataFile)), dataFile, meta, gen.layout, basename(dataFile, '.npy'));
+    // Through the path policy: regular files only, caps, everything checked before anything registers.
+    const { file: dataFile, directions: dirs } = readDirectionSet(path, gen.layout);
     const loaded = dirs.map((d) => this.register(d, true));
     for (const d of loaded) this.save(d);
     return { file: dataFile, directions: loaded.map((d) => this.info(d)) };
@@ -107,10 +100,18 @@ export class Workspace {
 
   keep(id: string, name: string): LoadedDirection {
     const d = this.direction(id);
-    if (this.kept().some((x) => x.name === name && x.id !== d.id)) throw new PlumblineError('bad-request', `a kept direction is already named '${name}'`);
+    // Names become file names; 'Crest' and 'crest' are one file on macOS and Windows.
+    const taken = this.kept().find((x) => directionNameKey(x.name) === directionNameKey(name) && x.id !== d.id);
+    if (taken) throw new PlumblineError('bad-request', `a kept direction is already named '${taken.name}' (names are compared ignoring case)`);
+    const before = { name: d.name, kept: d.kept };
     d.name = name;
     d.kept = true;
-    this.save(d);
+    try {
+      this.save(d);
+    } catch (err) {
+      Object.assign(d, before);
+      throw err;
+    }
     return d;
   }
 
@@ -168,6 +169,7 @@ export class Workspace {
       directions: this.kept().map((d) => this.info(d)),
       audits: project.audits(),
       ui: project.doc.ui,
+      refused: [...project.refused],
     };
   }
 

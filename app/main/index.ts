@@ -7,7 +7,11 @@ import { dirname, join, normalize, resolve, sep } from 'node:path';
 import { fileURLToPath, pathToFileURL } from 'node:url';
 import { DESKTOP_CHANNELS as C, desktopSchemas } from '../protocol/desktop.ts';
 import { APP_ORIGIN, guarded } from './ipc.ts';
+<<<<<<< HEAD
 import { event } from '../protocol/messages.ts';
+=======
+import { devToolsAllowed, hardenContents, hardenSession } from './guards.ts';
+>>>>>>> hostile
 
 const here = dirname(fileURLToPath(import.meta.url));
 const outDir = resolve(here, '..');
@@ -72,7 +76,12 @@ function serveRenderer(): void {
   protocol.handle('app', async (request) => {
     const url = new URL(request.url);
     if (url.host !== 'plumbline') return new Response('not found', { status: 404 });
-    const rel = decodeURIComponent(url.pathname === '/' ? '/index.html' : url.pathname).replace(/^\/+/, '');
+    let rel: string;
+    try {
+      rel = decodeURIComponent(url.pathname === '/' ? '/index.html' : url.pathname).replace(/^\/+/, '');
+    } catch {
+      return new Response('malformed URL', { status: 400 }); // '%' without two hex digits
+    }
     const file = normalize(join(rendererDir, rel));
     // Refuse anything that escapes the renderer folder (the API's own example does not check).
     if (!file.startsWith(rendererDir + sep) || !existsSync(file) || !statSync(file).isFile()) return new Response('not found', { status: 404 });
@@ -102,13 +111,12 @@ function createWindow(): void {
       nodeIntegrationInWorker: false,
       webSecurity: true,
       spellcheck: false,
+      devTools: devToolsAllowed(app.isPackaged),
     },
   });
   win.once('ready-to-show', () => win?.show());
-  win.webContents.on('will-navigate', (e, target) => {
-    if (new URL(target).origin !== APP_ORIGIN) e.preventDefault();
-  });
-  win.webContents.setWindowOpenHandler(() => ({ action: 'deny' }));
+  // Navigation, redirects, frames, new windows and webviews: app/main/guards.ts.
+  hardenContents(win.webContents);
   win.webContents.on('did-finish-load', () => connectWindow(false));
   win.on('closed', () => (win = null));
   void win.loadURL(`${APP_ORIGIN}/index.html`);
@@ -178,8 +186,7 @@ function registerIpc(): void {
 }
 
 app.whenReady().then(() => {
-  session.defaultSession.setPermissionRequestHandler((_wc, _permission, callback) => callback(false));
-  session.defaultSession.setPermissionCheckHandler(() => false);
+  hardenSession(session.defaultSession);
   nativeTheme.themeSource = store.get('theme');
   serveRenderer();
   registerIpc();
@@ -189,9 +196,7 @@ app.whenReady().then(() => {
   app.on('activate', () => BrowserWindow.getAllWindows().length === 0 && createWindow());
 });
 
-app.on('web-contents-created', (_e, contents) => {
-  contents.on('will-attach-webview', (e) => e.preventDefault());
-});
+app.on('web-contents-created', (_e, contents) => hardenContents(contents));
 app.on('before-quit', () => {
   quitting = true;
   engine?.kill();

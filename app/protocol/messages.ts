@@ -3,6 +3,7 @@
 // as Uint8Array values: transferred over MessagePorts, as binary frames over WebSockets (see
 // frames.ts), never as base64 text.
 import { z } from 'zod';
+import { directionNameSchema, variantLabelSchema } from './names.ts';
 
 export const PROTOCOL_VERSION = 1;
 
@@ -139,7 +140,7 @@ export const methods = {
   'model.open': declare('control', z.object({ path: z.string().min(1), mappingPath: z.string().min(1).optional() }), modelInfoSchema),
   'directions.open': declare('control', z.object({ path: z.string().min(1) }), z.object({ file: z.string(), directions: z.array(directionInfoSchema) })),
   'directions.list': declare('control', z.object({}), z.object({ directions: z.array(directionInfoSchema) })),
-  'directions.keep': declare('control', z.object({ id: z.string().min(1), name: z.string().min(1).max(120).regex(/^[A-Za-z0-9_.-]+$/, 'letters, digits, _ . - only') }), directionInfoSchema),
+  'directions.keep': declare('control', z.object({ id: z.string().min(1), name: directionNameSchema }), directionInfoSchema),
   'preview.render': declare('preview', z.object({ seed, psi, edits: z.array(editSchema).max(64) }), z.union([
     z.object({ superseded: z.literal(true) }),
     z.object({ superseded: z.literal(false), seed, image: imageSchema, attributes: z.array(z.number()), millis: z.number() }),
@@ -175,7 +176,7 @@ export const methods = {
   'lab.repair': declare('job', z.object({ direction: z.string().min(1), against: z.array(z.string().min(1)).min(1).max(32), hold: z.union([z.literal('others'), z.array(z.string())]).default([]) }),
     z.object({ direction: directionInfoSchema, boundaries: z.array(z.object({ attribute: z.string(), accuracy: z.number(), role: z.string() })) })),
   'project.open': declare('control', z.object({ path: z.string().min(1), create: z.boolean().default(false) }),
-    z.object({ path: z.string(), name: z.string(), generatorFingerprint: z.string().nullable(), generatorMatches: z.boolean(), directions: z.array(directionInfoSchema), audits: z.array(z.string()), ui: uiStateSchema.nullable() })),
+    z.object({ path: z.string(), name: z.string(), generatorFingerprint: z.string().nullable(), generatorMatches: z.boolean(), directions: z.array(directionInfoSchema), audits: z.array(z.string()), ui: uiStateSchema.nullable(), /** Entries refused on open (bad names, files outside the project), each with its reason. */ refused: z.array(z.string()).optional() })),
   'project.saveUi': declare('control', uiStateSchema, z.object({ savedAt: z.string() })),
   'project.review': declare('control', z.object({ direction: z.string().min(1), status: z.enum(['draft', 'in-review', 'approved', 'rejected']), reviewer: z.string().min(1).max(120), note: z.string().max(4000).default('') }),
     z.object({ direction: z.string(), signOff: signOffSchema })),
@@ -184,10 +185,11 @@ export const methods = {
     seeds: z.array(seed).min(1).max(10_000),
     psi,
     /** Strengths keyed by direction id. */
-    settings: z.array(z.object({ label: z.string().regex(/^[A-Za-z0-9_.=+-]{1,60}$/, 'letters, digits and _ . = + - only'), strengths: z.record(z.string(), strength) })).min(1).max(200),
+    settings: z.array(z.object({ label: variantLabelSchema, strengths: z.record(z.string(), strength) })).min(1).max(200),
     out: z.string().min(1),
-  }), z.object({ out: z.string(), rendered: z.number(), reused: z.number(), contactSheet: bytes })),
-  'pack.build': declare('control', z.object({ out: z.string().min(1) }), z.object({ file: z.string(), directions: z.array(z.string()), skipped: z.array(z.string()), bytes: z.number() })),
+  }), z.object({ out: z.string(), rendered: z.number(), reused: z.number(), replaced: z.number().optional(), contactSheet: bytes })),
+  /** `out` is the absolute path the user chose; an existing file is replaced only with `overwrite`. */
+  'pack.build': declare('control', z.object({ out: z.string().min(1), overwrite: z.boolean().optional() }), z.object({ file: z.string(), directions: z.array(z.string()), skipped: z.array(z.string()), bytes: z.number() })),
   'pack.import': declare('control', z.object({ path: z.string().min(1) }), z.object({ imported: z.array(z.string()), directions: z.array(directionInfoSchema) })),
 } as const;
 

@@ -1,6 +1,9 @@
 // The web shell: serves the built renderer on 127.0.0.1 only and bridges a WebSocket to an
 // engine host in a child process. A random token, required on the socket and checked in
 // constant time, keeps other local pages and users out; the socket also checks Origin.
+// Nothing a client sends can stop the shell: malformed URLs, foreign Host headers (DNS
+// rebinding), cross-site requests, oversized frames and socket errors are answered with an
+// error status or by closing that one client; the shell and its engine keep running.
 import { createServer, type IncomingMessage, type ServerResponse } from 'node:http';
 import { fork, type ChildProcess } from 'node:child_process';
 import { randomBytes, timingSafeEqual } from 'node:crypto';
@@ -16,6 +19,35 @@ const here = dirname(fileURLToPath(import.meta.url));
 const root = resolve(here, '..', '..');
 const MIME: Record<string, string> = { '.html': 'text/html; charset=utf-8', '.js': 'text/javascript', '.css': 'text/css', '.svg': 'image/svg+xml', '.png': 'image/png', '.json': 'application/json', '.woff2': 'font/woff2' };
 const RESTART_DELAYS = [200, 1000, 3000, 10000];
+/** Largest engine frame a client may send: requests are small JSON; images only flow the other way. */
+export const MAX_FRAME_BYTES = 16 * 1024 * 1024;
+/** Host names a browser uses for this machine's loopback address; anything else is DNS rebinding or a proxy. */
+const LOOPBACK_NAMES = ['127.0.0.1', 'localhost'];
+
+/** The Host header if it names the loopback address on our port, else null. */
+export function loopbackHost(host: string | undefined, port: number): string | null {
+  if (!host) return null;
+  const h = host.toLowerCase();
+  return LOOPBACK_NAMES.some((n) => h === `${n}:${port}`) ? h : null;
+}
+
+/** The request path, or null when it cannot be parsed (never throws: '%' or '//[' are just bad requests). */
+export function requestPath(raw: string | undefined): { pathname: string; searchParams: URLSearchParams; decoded: string } | null {
+  if (!raw || !raw.startsWith('/')) return null;
+  try {
+    // Parse as a path on a fixed origin: '//x' is a path here, not a host.
+    const url = new URL(`http://127.0.0.1${raw}`);
+    return { pathname: url.pathname, searchParams: url.searchParams, decoded: decodeURIComponent(url.pathname) };
+  } catch {
+    return null;
+  }
+}
+
+/** Fetch metadata (sent by every current browser): requests from other sites, other ports included, are refused. */
+const crossSite = (req: IncomingMessage) => {
+  const site = req.headers['sec-fetch-site'];
+  return site === 'cross-site' || site === 'same-site';
+};
 
 export interface WebShellOptions {
   port?: number;
@@ -104,22 +136,41 @@ export async function startWebShell(options: WebShellOptions = {}): Promise<WebS
   };
   startEngine();
 
-  const csp = (port: number) =>
+  const csp = (host: string) =>
     [
       "default-src 'none'",
       "script-src 'self'",
       "style-src 'self' 'unsafe-inline'",
       "img-src 'self' data: blob:",
       "font-src 'self'",
-      `connect-src ws://127.0.0.1:${port}`,
+      `connect-src ws://${host}`,
       "base-uri 'none'",
       "form-action 'none'",
       "frame-ancestors 'none'",
       "object-src 'none'",
     ].join('; ');
 
+  const refuse = (res: ServerResponse, status: number, why: string) => {
+    if (!res.headersSent) res.writeHead(status, { 'content-type': 'text/plain', 'cache-control': 'no-store' });
+    res.end(why);
+  };
+
   const server = createServer((req: IncomingMessage, res: ServerResponse) => {
-    const url = new URL(req.url ?? '/', 'http://127.0.0.1');
+    try {
+      serve(req, res);
+    } catch (err) {
+      log(`request failed: ${(err as Error).message}`);
+      refuse(res, 500, 'internal error');
+    }
+  });
+
+  const serve = (req: IncomingMessage, res: ServerResponse) => {
+    const port = (server.address() as { port: number }).port;
+    const host = loopbackHost(req.headers.host, port);
+    if (!host) return refuse(res, 400, 'bad Host header: open the URL the shell printed');
+    if (crossSite(req)) return refuse(res, 403, 'cross-site requests are refused');
+    const url = requestPath(req.url);
+    if (!url) return refuse(res, 400, 'malformed URL');
     if (options.testHooks && req.method === 'POST' && url.pathname === '/__test/kill-engine' && tokenOk(url.searchParams.get('token'))) {
       child?.kill('SIGKILL');
       res.writeHead(204).end();
@@ -129,21 +180,26 @@ export async function startWebShell(options: WebShellOptions = {}): Promise<WebS
       res.writeHead(405).end();
       return;
     }
-    const rel = url.pathname === '/' ? 'index.html' : decodeURIComponent(url.pathname).replace(/^\/+/, '');
+    const rel = url.pathname === '/' ? 'index.html' : url.decoded.replace(/^\/+/, '');
+    if (rel.includes('\0')) return refuse(res, 400, 'malformed URL');
     const file = normalize(join(rendererDir, rel));
     if (!file.startsWith(rendererDir + sep) || !existsSync(file) || !statSync(file).isFile()) {
       res.writeHead(404, { 'content-type': 'text/plain' }).end('not found');
       return;
     }
-    const port = (server.address() as { port: number }).port;
     res.writeHead(200, {
       'content-type': MIME[extname(file)] ?? 'application/octet-stream',
-      'content-security-policy': csp(port),
+      'content-security-policy': csp(host),
       'x-content-type-options': 'nosniff',
       'cache-control': 'no-store',
       'referrer-policy': 'no-referrer',
     });
     res.end(req.method === 'HEAD' ? undefined : readFileSync(file));
+  };
+  // Unparseable requests (bad headers, oversized headers): answer 400 on that connection only.
+  server.on('clientError', (_err, socket) => {
+    if (socket.writable) socket.end('HTTP/1.1 400 Bad Request\r\nconnection: close\r\n\r\n');
+    else socket.destroy();
   });
 
   const tokenOk = (given: string | null) => {
@@ -153,19 +209,29 @@ export async function startWebShell(options: WebShellOptions = {}): Promise<WebS
     return a.length === b.length && timingSafeEqual(a, b);
   };
 
-  const wss = new WebSocketServer({ noServer: true, maxPayload: 16 * 1024 * 1024 });
+  const wss = new WebSocketServer({ noServer: true, maxPayload: MAX_FRAME_BYTES });
+  wss.on('error', (err) => log(`socket server error: ${err.message}`));
   server.on('upgrade', (req, socket, head) => {
-    const url = new URL(req.url ?? '/', 'http://127.0.0.1');
+    socket.on('error', () => socket.destroy());
+    const url = requestPath(req.url);
     const port = (server.address() as { port: number }).port;
-    const originOk = req.headers.origin === `http://127.0.0.1:${port}`;
-    if (url.pathname !== '/engine' || !tokenOk(url.searchParams.get('token')) || !originOk) {
-      socket.write('HTTP/1.1 403 Forbidden\r\n\r\n');
+    const host = loopbackHost(req.headers.host, port);
+    // The page's own origin, under the loopback name the user opened it with.
+    const originOk = !!host && req.headers.origin === `http://${host}`;
+    if (!url || url.pathname !== '/engine' || !tokenOk(url.searchParams.get('token')) || !originOk) {
+      if (socket.writable) socket.write('HTTP/1.1 403 Forbidden\r\n\r\n');
       socket.destroy();
       return;
     }
     wss.handleUpgrade(req, socket, head, (ws) => {
       const client: Client = { ws, id: nextClient++ };
       clients.add(client);
+      // Oversized frames and broken connections end this client only (ws closes it with 1009 / 1002).
+      ws.on('error', (err) => {
+        // ws itself then closes the connection with the right code (1009 for a frame over the cap).
+        log(`client ${client.id}: ${err.message}; closing that connection`);
+        clients.delete(client);
+      });
       if (child) send(client, event('engine.ready', { engine: ENGINE_NAME, restarted: false }));
       ws.on('message', (data, isBinary) => {
         let m: Message;

@@ -6,6 +6,7 @@
 // arrays, and verdict.ts turns these numbers into words.
 import { ProbeBootstrap, RunningMoments } from '../stats.ts';
 import type { AuditSettings } from './settings.ts';
+import { safeRangeFromCurves } from './safe-range.ts';
 
 export interface Interval {
   value: number;
@@ -131,17 +132,16 @@ export function directionStatistics(m: DirectionMeasurements, plan: StatisticsGr
     const i = pplGrid.indexOf(s);
     return i >= 0 && calmMedian > 0 && pplMeans[i] > settings.pathLength.spikeRatio * calmMedian;
   };
-  // Safe range: widest interval around 0 where leakage stays under the pass threshold and path length does not spike.
-  const safeSide = (sign: 1 | -1) => {
-    let edge = 0;
-    for (const s of grid.filter((x) => x * sign > 0).sort((a, b) => Math.abs(a) - Math.abs(b))) {
-      const l = leakageCurve[grid.indexOf(s)]!;
-      if (!(l < settings.leakPass) || spikeAt(s)) break;
-      edge = s;
-    }
-    return edge;
-  };
-  const safeRange: [number, number] = [safeSide(-1), safeSide(1)];
+  // Safe range: widest interval around 0 where leakage stays under the pass threshold and path
+  // length does not spike — one rule (safe-range.ts), applied to the curves exactly as the report
+  // states them, so anyone holding the report (or a pack's evidence) recomputes the same range.
+  const safeRange = safeRangeFromCurves({
+    strengths: grid,
+    leakageCurve: leakageCurve.map((l) => (l === null ? null : Number.isFinite(l) ? significant(l) : null)),
+    leakPass: settings.leakPass,
+    pathLength: { strengths: pplGrid, mean: pplMeans.map((v) => significant(v)) },
+    spikeRatio: settings.pathLength.spikeRatio,
+  });
   // Breaking: behaviour that changes along the slider — a path-length spike, or leakage that
   // starts clean and crosses the fail threshold further out (a direction leaky from the start
   // is leaky, not broken).

@@ -30,8 +30,8 @@ export function decodeModel(bytes: Uint8Array, file: string): onnxProto.onnx.Mod
   if (bytes.length === 0) throw new PlumblineError('not-onnx', `${file}: the file is empty, not an ONNX model`, { file });
   // Every ONNX writer emits ir_version (field 1, varint) first, so a model starts with byte 0x08.
   if (bytes[0] !== 0x08) {
-    const head = Array.from(bytes.subarray(0, 8), (b) => b.toString(16).padStart(2, '0')).join(' ');
-    throw new PlumblineError('not-onnx', `${file}: not an ONNX model (an ONNX file starts with its IR version, byte 08; this one starts ${head})`, { file });
+    // Say what was expected, never what the file holds: a mistaken path may be a private file.
+    throw new PlumblineError('not-onnx', `${file}: not an ONNX model (an ONNX file starts with its IR version, byte 08; this one does not)`, { file });
   }
   let model: onnxProto.onnx.ModelProto;
   try {

@@ -1,6 +1,7 @@
 // Handlers for opening a generator. Jobs rendering with the previous generator are cancelled.
 import { demoCardPath } from '../workspace.ts';
 import type { AreaHandlers } from './context.ts';
+import { requestPath } from '../request-paths.ts';
 
 export const modelHandlers: AreaHandlers<'model.openDemo' | 'model.open'> = {
   'model.openDemo': async (_p, { workspace, jobs }) => {
@@ -9,7 +10,7 @@ export const modelHandlers: AreaHandlers<'model.openDemo' | 'model.open'> = {
     return info;
   },
   'model.open': async (p, { workspace, jobs }) => {
-    const info = await workspace.openModel(p.path, p.mappingPath);
+    const info = await workspace.openModel(requestPath(p.path, 'the generator'), p.mappingPath === undefined ? undefined : requestPath(p.mappingPath, 'the mapping network'));
     jobs.cancelAll();
     return info;
   },

@@ -3,9 +3,10 @@
 import { PlumblineError } from '../../core/errors.ts';
 import { vectorHash } from '../project.ts';
 import type { AreaHandlers } from './context.ts';
+import { requestPath } from '../request-paths.ts';
 
 export const projectHandlers: AreaHandlers<'project.open' | 'project.saveUi' | 'project.review'> = {
-  'project.open': (p, { workspace }) => workspace.openProject(p),
+  'project.open': (p, { workspace }) => workspace.openProject({ ...p, path: requestPath(p.path, 'the project folder') }),
   'project.saveUi': (p, { workspace }) => ({ savedAt: workspace.requireProject('saving the interface state').saveUi(p) }),
   'project.review': (p, { workspace }) => {
     const project = workspace.requireProject('sign-off (its review log keeps the history)');

@@ -98,6 +98,7 @@ export class Lab {
       this.studio.onRecover = () => this.openProject(path, false);
       await this.refreshDirections(p.directions);
       if (p.ui) this.studio.restoreUi(p.ui);
+      if (p.refused?.length) this.studio.banner = { kind: 'warning', text: `Opened with ${p.refused.length} entr${p.refused.length === 1 ? 'y' : 'ies'} refused: ${p.refused.join('; ')}` };
       if (!p.generatorMatches) this.studio.banner = { kind: 'warning', text: `This project was made with another generator (fingerprint ${p.generatorFingerprint?.slice(0, 12)}…). Its directions and sign-offs may not hold for ${this.studio.model?.name}.` };
     });
     if (ok) await Promise.all([this.studio.refreshGrid(), this.studio.requestPreview()]);
@@ -196,7 +197,8 @@ export class Lab {
   /** Captures the workbench sliders as one setting of the variant set. */
   addSettingFromSliders(label: string): void {
     const strengths = Object.fromEntries(Object.entries(this.studio.strengths).filter(([, v]) => v !== 0));
-    const clean = label.replace(/[^A-Za-z0-9_.=+-]/g, '_').slice(0, 60) || `setting_${this.variantSettings.length}`;
+    // Same rule as the protocol's variantLabelSchema: one folder name, no leading or trailing dots.
+    const clean = label.replace(/[^A-Za-z0-9_.=+-]/g, '_').replace(/^\.+|\.+$/g, '').slice(0, 60).replace(/\.+$/, '') || `setting_${this.variantSettings.length}`;
     this.variantSettings = [...this.variantSettings.filter((s) => s.label !== clean), { label: clean, strengths }];
   }
 
@@ -233,7 +235,14 @@ export class Lab {
 
   async buildPack(out: string): Promise<void> {
     await this.#guard(`Building pack ${out}`, async () => {
-      const r = await this.engine.request('pack.build', { out });
+      let r;
+      try {
+        r = await this.engine.request('pack.build', { out, overwrite: false });
+      } catch (err) {
+        // The engine never replaces a file nobody chose to replace: ask, then say so explicitly.
+        if (!(err instanceof EngineRequestError && err.code === 'would-overwrite' && globalThis.confirm?.(`${err.message}\n\nReplace ${out}?`))) throw err;
+        r = await this.engine.request('pack.build', { out, overwrite: true });
+      }
       this.studio.banner = { kind: 'info', text: `Wrote ${r.file} with ${r.directions.join(', ')} (${Math.round(r.bytes / 1024)} KiB).${r.skipped.length ? ` Not included: ${r.skipped.join('; ')}.` : ''}` };
     });
   }
