@@ -7,13 +7,9 @@ import * as ort from 'onnxruntime-node';
 import { PlumblineError } from '../core/errors.ts';
 import { parseModelCard, type ModelCard } from '../core/model-card.ts';
 import { decodeModel, summarizeModel, type OnnxSummary, type TensorInterface } from '../core/onnx/inspect.ts';
-<<<<<<< HEAD
-import { applyEdits, broadcastLayers, directionSigma, seedsToZ, truncate, type EditVector, type LatentLayout } from '../core/latent.ts';
-=======
 import { GENERATOR_LIMITS, checkGraphShapes, checkImageCaps, checkLatentCaps, type GeneratorLimits } from '../core/onnx/caps.ts';
 import { READ_LIMITS, readRegularFile, resolveInside } from '../core/path-policy.ts';
-import { applyEdits, broadcastLayers, directionSigma, seedsToZ, truncate, type EditVector } from '../core/latent.ts';
->>>>>>> hostile
+import { applyEdits, broadcastLayers, directionSigma, seedsToZ, truncate, type EditVector, type LatentLayout } from '../core/latent.ts';
 import { OutputValueError, tensorToRgba, type RgbaImage } from '../core/image.ts';
 import type { ModelInfo } from '../protocol/messages.ts';
 import { createSession, type SessionOptions } from './sessions.ts';

@@ -113,12 +113,8 @@ export class Project {
     this.save();
   }
 
-<<<<<<< HEAD
-  loadDirections(layout: Pick<LatentLayout, 'size' | 'layers'>): Direction[] {
-=======
   /** The project's directions; an entry that cannot be read safely is refused (see `refused`), the rest load. */
-  loadDirections(layout: LatentLayout): Direction[] {
->>>>>>> hostile
+  loadDirections(layout: Pick<LatentLayout, 'size' | 'layers'>): Direction[] {
     return this.doc.directions.flatMap((entry) => {
       try {
         const npy = projectFile(this.dir, entry.file);

@@ -7,11 +7,8 @@ import { dirname, join, normalize, resolve, sep } from 'node:path';
 import { fileURLToPath, pathToFileURL } from 'node:url';
 import { DESKTOP_CHANNELS as C, desktopSchemas } from '../protocol/desktop.ts';
 import { APP_ORIGIN, guarded } from './ipc.ts';
-<<<<<<< HEAD
 import { event } from '../protocol/messages.ts';
-=======
 import { devToolsAllowed, hardenContents, hardenSession } from './guards.ts';
->>>>>>> hostile
 
 const here = dirname(fileURLToPath(import.meta.url));
 const outDir = resolve(here, '..');
