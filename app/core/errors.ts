@@ -14,6 +14,8 @@ export const ERROR_CODES = {
   'npy-invalid': 'The .npy file is invalid',
   'npy-shape': 'Array shape mismatch',
   'directions-invalid': 'The directions metadata is invalid',
+  'image-invalid': 'The image file cannot be read',
+  'image-too-large': 'The image file is over a size cap',
   'protocol': 'A message broke the protocol',
   'no-model': 'No generator is loaded',
   'bad-request': 'The request is invalid',
