@@ -12,12 +12,13 @@ import { demoCardPath } from '../engine/host.ts';
 import { parseSeeds } from './seeds.ts';
 import { addLabCommands } from './lab-commands.ts';
 import { addPackCommands } from './pack-commands.ts';
+import { addLocateCommand } from './locate-command.ts';
 
 /** Bad command-line input found after parsing (commander prints its own parse errors). */
 class UsageError extends Error {}
 
 export const EXIT = { ok: 0, failure: 1, invalidInput: 2, cancelled: 130 } as const;
-const INPUT_ERRORS = new Set(['not-onnx', 'onnx-truncated', 'no-latent-input', 'bad-image-output', 'card-invalid', 'file-missing', 'npy-invalid', 'npy-shape', 'directions-invalid', 'latent-size-mismatch', 'bad-request', 'output-out-of-range', 'output-not-finite']);
+const INPUT_ERRORS = new Set(['not-onnx', 'onnx-truncated', 'no-latent-input', 'bad-image-output', 'card-invalid', 'file-missing', 'npy-invalid', 'npy-shape', 'directions-invalid', 'latent-size-mismatch', 'bad-request', 'output-out-of-range', 'output-not-finite', 'image-invalid', 'image-too-large']);
 
 let cancelled = false;
 process.on('SIGINT', () => {
@@ -132,6 +133,7 @@ export function buildProgram(): Command {
   const ctx = { progressBar, isCancelled: () => cancelled, usage: (m: string) => new UsageError(m) };
   addLabCommands(program, ctx, number, integer);
   addPackCommands(program, ctx);
+  addLocateCommand(program, ctx, integer);
   return program;
 }
 

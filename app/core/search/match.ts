@@ -9,7 +9,9 @@
 //     the mean of the R, G and B maps) averaged over the scales COMPARE_SIZE, /2, /4 (each a 2×2
 //     box average of the one before) — structure at several sizes, so the search is pulled toward
 //     the layout before the fine detail is right.
-//   - ΔE00_mean: mean CIEDE2000 (Sharma, Wu & Dalal 2005) per pixel at the compare size.
+//   - ΔE00_mean: mean CIEDE2000 (Sharma, Wu & Dalal 2005) per pixel at half the compare size
+//     (colour varies slowly; at full compare size the per-pixel trigonometry costs more than the
+//     generator's own run on small models).
 //   - RMS_low: root-mean-square difference of the LOW_SIZE-px versions — coarse colour and layout,
 //     which stays informative when a candidate is so far off that SSIM is flat.
 //   Weights: each term is scaled so that it is 0.05 at the acceptance thresholds used by the
@@ -238,6 +240,7 @@ export class MatchTarget {
   readonly #factor: number;
   readonly #scales: ScaleStats[];
   readonly #lab: Float64Array;
+  readonly #labLevel: number;
   readonly #low: Planes;
   readonly #lowFactor: number;
   readonly #full: Planes;
@@ -256,7 +259,8 @@ export class MatchTarget {
       level = boxDown(level, 2);
     }
     if (this.#scales.length === 0) throw new RangeError(`images of ${reference.width} × ${reference.height} are too small to compare (SSIM needs at least ${WINDOW} px)`);
-    this.#lab = labPlanes(base);
+    this.#labLevel = this.#scales.length > 1 ? 1 : 0;
+    this.#lab = labPlanes(this.#scales[this.#labLevel].ref);
     this.#lowFactor = Math.max(1, Math.floor(Math.max(reference.width, reference.height) / LOW_SIZE));
     this.#low = boxDown(this.#full, this.#lowFactor);
   }
@@ -265,10 +269,11 @@ export class MatchTarget {
   terms(candidate: Planes): MatchTerms {
     if (candidate.w !== this.width || candidate.h !== this.height) throw new RangeError(`candidate is ${candidate.w} × ${candidate.h}, reference ${this.width} × ${this.height}`);
     let level = boxDown(candidate, this.#factor);
-    const deltaE = meanDeltaE(this.#lab, level);
+    let deltaE = 0;
     let ssimSum = 0;
     for (let s = 0; s < this.#scales.length; s++) {
       if (s > 0) level = boxDown(level, 2);
+      if (s === this.#labLevel) deltaE = meanDeltaE(this.#lab, level);
       ssimSum += ssimAgainst(this.#scales[s], level, this.#scratch);
     }
     const ssim = ssimSum / this.#scales.length;
