@@ -20,8 +20,14 @@ import type { Generator } from './generator.ts';
 /** Default evaluation budget: about 3 s of the demo generator, and in the range pix2latent reports
  * for its CMA stage (~4,000 evaluations per inversion, Huh et al. 2020 — METHODS §11). */
 export const DEFAULT_BUDGET = 3000;
-/** Random starts: one to two generator batches' worth, ~2% of the default budget. */
-export const DEFAULT_STARTS = 48;
+/** Random starts: six generator batches, ~3% of the default budget. */
+export const DEFAULT_STARTS = 96;
+/** A CMA-ES run whose best has not improved by STALL_IMPROVEMENT (relative) in STALL_GENERATIONS
+ * generations is stuck in a basin; the W stage restarts from the next-best random start. */
+const STALL_GENERATIONS = 40;
+const STALL_IMPROVEMENT = 0.01;
+/** Distinct starts kept for restarts. */
+const RESTART_STARTS = 4;
 /** Fraction of the budget left after the starts that goes to the W+ rows when space is 'w+'. */
 const ROW_STAGE_SHARE = 0.35;
 /** Initial CMA-ES step in whitened W units: a random start is typically ‖x‖ ≈ √n from the answer's
@@ -81,7 +87,7 @@ export function verdictMessage(ssim: number, deltaE: number): { found: boolean; 
   const figures = `SSIM ${ssim.toFixed(3)}, mean ΔE00 ${deltaE.toFixed(2)}`;
   return found
     ? { found, message: `found: ${figures} (thresholds SSIM ≥ ${FOUND_SSIM}, mean ΔE00 ≤ ${FOUND_DELTA_E})` }
-    : { found, message: `closest found: ${figures} — this generator may not be able to make this image (a match needs SSIM ≥ ${FOUND_SSIM} and mean ΔE00 ≤ ${FOUND_DELTA_E})` };
+    : { found, message: `closest found: ${figures} — this generator may not be able to make this image (a match needs SSIM ≥ ${FOUND_SSIM} and mean ΔE00 ≤ ${FOUND_DELTA_E}; a larger budget may get closer)` };
 }
 
 export function sha256(bytes: Uint8Array): string {
@@ -124,6 +130,8 @@ export async function* locate(gen: Generator, reference: FloatImage, options: Lo
   let lastPreview = 0;
   let improvedSincePreview = false;
   const stages: LocateResult['stages'] = [];
+  /** The best few starting points, for restarts. */
+  const startPoints: { x: Float64Array; distance: number }[] = [];
   let lastCheck = -Infinity;
   let reached = false;
   /** With `until`: have the best's full-resolution figures reached the goal? (checked sparingly) */
@@ -187,7 +195,9 @@ export async function* locate(gen: Generator, reference: FloatImage, options: Lo
     const w = await gen.mapZ(z, starts);
     for (let at = 0; at < starts; at += gen.batchSize) {
       const m = Math.min(gen.batchSize, starts - at);
-      await evaluate(Array.from({ length: m }, (_, i) => broadcast(prior.toSearch(w.subarray((at + i) * size, (at + i + 1) * size)))));
+      const xs = Array.from({ length: m }, (_, i) => prior.toSearch(w.subarray((at + i) * size, (at + i + 1) * size)));
+      const values = await evaluate(xs.map(broadcast));
+      xs.forEach((x, i) => startPoints.push({ x, distance: values[i] }));
       yield progress('starts');
     }
   }
@@ -198,14 +208,34 @@ export async function* locate(gen: Generator, reference: FloatImage, options: Lo
   const wBudget = budget - evaluations - rowBudget;
   {
     const b = best!;
-    const startW = new Float64Array(size);
-    for (const x of b.x) for (let j = 0; j < size; j++) startW[j] += x[j] / b.x.length;
-    const es = new CmaEs(startW, SIGMA_W, { seed: seed + 1 });
+    const bestStart = new Float64Array(size);
+    for (const x of b.x) for (let j = 0; j < size; j++) bestStart[j] += x[j] / b.x.length;
+    startPoints.sort((p, q) => p.distance - q.distance);
+    const queue = [bestStart, ...startPoints.slice(1, RESTART_STARTS).map((p) => p.x)];
     const stop = evaluations + wBudget;
-    while (evaluations + es.params.lambda <= stop && es.sigma > SIGMA_CONVERGED && !goalReached()) {
-      const xs = es.ask();
-      es.tell(await evaluate(xs.map(broadcast)));
-      yield progress('w');
+    for (let run = 0; evaluations + 4 <= stop && !goalReached(); run++) {
+      // After the queued starts, restart around the best so far.
+      const from = run < queue.length ? queue[run] : (() => {
+        const m = new Float64Array(size);
+        for (const x of best!.x) for (let j = 0; j < size; j++) m[j] += x[j] / best!.x.length;
+        return m;
+      })();
+      const es = new CmaEs(from, SIGMA_W, { seed: seed + 1 + run });
+      if (evaluations + es.params.lambda > stop) break;
+      let runBest = Infinity;
+      let improvedAt = 0;
+      while (evaluations + es.params.lambda <= stop && es.sigma > SIGMA_CONVERGED && !goalReached()) {
+        const xs = es.ask();
+        const values = await evaluate(xs.map(broadcast));
+        es.tell(values);
+        const m = Math.min(...values.filter(Number.isFinite));
+        if (m < runBest * (1 - STALL_IMPROVEMENT)) {
+          runBest = m;
+          improvedAt = es.generation;
+        }
+        yield progress('w');
+        if (es.generation - improvedAt >= STALL_GENERATIONS) break;
+      }
     }
     stages.push({ stage: 'w', evaluations, bestDistance: best!.distance });
   }
