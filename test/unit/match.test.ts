@@ -110,3 +110,11 @@ print(json.dumps([mahalanobis(p, d['centre'], VI) for p in d['probes']]))`;
   prior.toLatent(prior.toSearch(probes[0]), back);
   back.forEach((v, k) => assert.ok(Math.abs(v - probes[0][k]) < 1e-4));
 });
+
+test('difference image: black where equal, white at ΔE00 ≥ 10 (white vs black is ΔE00 100, CIE 15 L* range)', async () => {
+  const { differenceImage } = await import('../../app/core/search/match.ts');
+  const a: FloatImage = { width: 2, height: 1, data: Float32Array.from([0.3, 0.5, 0.7, 1, 1, 1]) };
+  const b: FloatImage = { width: 2, height: 1, data: Float32Array.from([0.3, 0.5, 0.7, 0, 0, 0]) };
+  const d = differenceImage(a, b);
+  assert.deepEqual(Array.from(d.data), [0, 0, 0, 255, 255, 255, 255, 255]);
+});

@@ -299,3 +299,24 @@ export function matchFigures(reference: FloatImage, candidate: FloatImage): { ss
 }
 
 export { toPlanes, type Planes };
+
+/** ΔE00 at which the difference image saturates to white (10 is a clearly visible difference). */
+export const DIFFERENCE_FULL_SCALE = 10;
+
+/**
+ * A difference image for people: per-pixel CIEDE2000 between two same-size images (interleaved
+ * float sRGB), drawn as grey from black (0) to white (DIFFERENCE_FULL_SCALE or more), RGBA8.
+ */
+export function differenceImage(a: FloatImage, b: FloatImage): { width: number; height: number; data: Uint8ClampedArray } {
+  if (a.width !== b.width || a.height !== b.height) throw new RangeError(`images differ in size: ${a.width} × ${a.height} and ${b.width} × ${b.height}`);
+  const n = a.width * a.height;
+  const data = new Uint8ClampedArray(n * 4);
+  for (let p = 0; p < n; p++) {
+    const la = linearRgbToLab(decode(a.data[p * 3]), decode(a.data[p * 3 + 1]), decode(a.data[p * 3 + 2]));
+    const lb = linearRgbToLab(decode(b.data[p * 3]), decode(b.data[p * 3 + 1]), decode(b.data[p * 3 + 2]));
+    const v = Math.round((255 * Math.min(DIFFERENCE_FULL_SCALE, ciede2000(la, lb))) / DIFFERENCE_FULL_SCALE);
+    data[p * 4] = data[p * 4 + 1] = data[p * 4 + 2] = v;
+    data[p * 4 + 3] = 255;
+  }
+  return { width: a.width, height: a.height, data };
+}
