@@ -10,7 +10,7 @@ import { writeFileAtomic } from '../core/atomic-write.ts';
 import { encodeNpy, decodeNpy } from '../core/npy.ts';
 import { PlumblineError } from '../core/errors.ts';
 
-export const REFERENCE_NAME = /^[A-Za-z0-9_.-]{1,120}$/;
+export const REFERENCE_NAME = /^[A-Za-z0-9_-][A-Za-z0-9_.-]{0,119}$/;
 
 export interface StoredReference {
   name: string;

@@ -17,6 +17,8 @@ const bytes = z.custom<Uint8Array>((v) => v instanceof Uint8Array, { message: "e
 const seed = z.number().int().min(0).max(0xffffffff);
 const psi = z.number().min(0).max(2);
 const strength = z.number().finite().min(-50).max(50);
+/** A named reference (a located latent pinned in the project); same rule as app/engine/references.ts. */
+const referenceName = /^[A-Za-z0-9_-][A-Za-z0-9_.-]{0,119}$/;
 
 export const editSchema = z.object({ direction: z.string().min(1), strength });
 export type Edit = z.infer<typeof editSchema>;
@@ -27,7 +29,7 @@ export const requestSchemas = {
   'model.openDemo': z.object({}),
   'model.open': z.object({ path: z.string().min(1), mappingPath: z.string().min(1).optional() }),
   'directions.open': z.object({ path: z.string().min(1) }),
-  'preview.render': z.object({ seed, psi, edits: z.array(editSchema).max(64) }),
+  'preview.render': z.object({ seed, psi, edits: z.array(editSchema).max(64), reference: z.string().regex(referenceName).optional() }),
   'grid.render': z.object({ seeds: z.array(seed).min(1).max(256), psi }),
   'job.cancel': z.object({ jobId: z.number().int() }),
   'directions.list': z.object({}),
@@ -70,6 +72,9 @@ export const requestSchemas = {
     out: z.string().min(1),
   }),
   'pack.import': z.object({ path: z.string().min(1) }),
+  'locate.run': z.object({ image: bytes, fileName: z.string().min(1).max(1000), budget: z.number().int().min(50).max(1_000_000).default(3000), space: z.enum(['w', 'w+']).default('w'), seed: seed.default(1) }),
+  'reference.pin': z.object({ name: z.string().regex(referenceName, 'letters, digits, _ . - only (1 to 120)') }),
+  'reference.list': z.object({}),
   'project.review': z.object({ direction: z.string().min(1), status: z.enum(['draft', 'in-review', 'approved', 'rejected']), reviewer: z.string().min(1).max(120), note: z.string().max(4000).default('') }),
 } as const;
 export type Method = keyof typeof requestSchemas;
@@ -165,6 +170,9 @@ export const auditWireSchema = z.object({
 }).passthrough();
 export type AuditWire = z.infer<typeof auditWireSchema>;
 
+export const referenceInfoSchema = z.object({ name: z.string(), ssim: z.number(), deltaE: z.number(), found: z.boolean(), imageSha256: z.string(), evaluations: z.number().int(), budget: z.number().int() });
+export type ReferenceInfo = z.infer<typeof referenceInfoSchema>;
+
 export const resultSchemas = {
   'engine.hello': z.object({ protocol: z.number(), engine: z.string(), threads: z.number(), model: modelInfoSchema.nullable() }),
   'model.openDemo': modelInfoSchema,
@@ -193,6 +201,15 @@ export const resultSchemas = {
   'project.open': z.object({ path: z.string(), name: z.string(), generatorFingerprint: z.string().nullable(), generatorMatches: z.boolean(), directions: z.array(directionInfoSchema), audits: z.array(z.string()), ui: z.object({ seed, psi, strengths: z.record(z.string(), z.number()), pinned: z.array(seed), tags: z.record(z.string(), z.enum(['has', 'lacks'])) }).nullable() }),
   'project.saveUi': z.object({ savedAt: z.string() }),
   'project.review': z.object({ direction: z.string(), signOff: signOffSchema }),
+  'locate.run': z.union([
+    z.object({ cancelled: z.literal(true) }),
+    z.object({
+      cancelled: z.literal(false), found: z.boolean(), ssim: z.number(), deltaE: z.number(), message: z.string(), evaluations: z.number().int(), budget: z.number().int(),
+      imageSha256: z.string(), notes: z.array(z.string()), reference: imageSchema, match: imageSchema, difference: imageSchema, caution: z.string(),
+    }),
+  ]),
+  'reference.pin': referenceInfoSchema,
+  'reference.list': z.object({ references: z.array(referenceInfoSchema) }),
   'variants.render': z.union([z.object({ cancelled: z.literal(true) }), z.object({ cancelled: z.literal(false), out: z.string(), rendered: z.number(), reused: z.number(), contactSheet: bytes })]),
   'pack.build': z.object({ file: z.string(), directions: z.array(z.string()), skipped: z.array(z.string()), bytes: z.number() }),
   'pack.import': z.object({ imported: z.array(z.string()), directions: z.array(directionInfoSchema) }),
@@ -219,6 +236,8 @@ export const eventSchemas = {
   'engine.ready': z.object({ engine: z.string(), restarted: z.boolean() }),
   'engine.stopped': z.object({ reason: z.string(), code: z.number().nullable(), restarting: z.boolean() }),
   'model.changed': z.object({ model: modelInfoSchema }),
+  /** The best match so far of a running locate job (at most a few per second). */
+  'locate.preview': z.object({ requestId: z.number().int(), image: imageSchema, ssim: z.number(), deltaE: z.number(), done: z.number().int(), total: z.number().int() }),
 } as const;
 export type EventName = keyof typeof eventSchemas;
 export type EventData<E extends EventName> = z.infer<(typeof eventSchemas)[E]>;
