@@ -10,27 +10,10 @@ import { encodePng } from '../core/image.ts';
 import { PlumblineError } from '../core/errors.ts';
 import { decodeReference, MAX_FILE_BYTES } from '../core/reference-image.ts';
 import { EngineHost, demoCardPath } from '../engine/host.ts';
-import { locate, sha256, DEFAULT_BUDGET, type LocateResult } from '../engine/locate.ts';
+import { locate, sha256, locateReport, LIKENESS_CAUTION, DEFAULT_BUDGET } from '../engine/locate.ts';
 import { encodeStart } from '../engine/locate-encoder.ts';
 import { driveJob } from './jobs.ts';
 import type { CliContext } from './lab-commands.ts';
-
-export const LIKENESS_CAUTION = 'Projecting a photograph of a real person reproduces their likeness: have their consent, and follow your studio’s policy and local law.';
-
-/** The report written beside the latent; also what the app stores with a named reference. */
-export function locateReport(r: LocateResult, extra: { image: string; imageSha256: string; generator: { name: string; fingerprint: string }; notes: string[]; npy: string; start: string }) {
-  return {
-    format: 'plumbline.locate-report',
-    version: 1,
-    createdAt: new Date().toISOString(),
-    image: { file: extra.image, sha256: extra.imageSha256, notes: extra.notes },
-    generator: extra.generator,
-    latent: { file: extra.npy, shape: [1, ...r.shape], space: r.space, mahalanobisFromCentre: r.mahalanobis },
-    match: { found: r.found, ssim: r.ssim, meanDeltaE00: r.deltaE, searchDistance: r.searchDistance, message: r.message },
-    budget: { evaluations: r.evaluations, budget: r.budget, stages: r.stages, start: extra.start },
-    caution: LIKENESS_CAUTION,
-  };
-}
 
 export function addLocateCommand(program: Command, ctx: CliContext, integer: (name: string, lo: number, hi: number) => (v: string) => number): void {
   program
