@@ -16,6 +16,7 @@ import {
   type Params, type RequestMessage, type ResponseMessage, type Result,
 } from '../protocol/messages.ts';
 import { Generator } from './generator.ts';
+import { locateJob, pinReference, referenceInfos, referenceCodes, type LastLocate } from './locate-job.ts';
 import { defaultThreads } from './sessions.ts';
 import { runAudit } from './audit.ts';
 import { discoverByTags, discoverPca, discoverSefa, fitBoundary, repairDirection, type LabDirection } from './lab.ts';
@@ -65,6 +66,8 @@ export interface HostOptions {
 
 export class EngineHost {
   #generator: Generator | null = null;
+  /** The last finished locate run, until it is pinned or replaced. */
+  #lastLocate: LastLocate | null = null;
   #directions = new Map<string, LoadedDirection>();
   #nextDirection = 1;
   #nextJob = 1;
@@ -118,6 +121,16 @@ export class EngineHost {
       case 'variants.render': {
         const jobId = this.#nextJob++;
         this.#jobs.push({ jobId, request: req, port, cancelled: false, steps: this.#jobFor(req) });
+        break;
+      }
+      case 'locate.run': {
+        const jobId = this.#nextJob++;
+        const steps = locateJob(this.#requireGenerator(), req.params as Params<'locate.run'>, {
+          checkpoint: async () => {}, // the pump checks cancellation and serves previews between steps
+          preview: (d) => port.post(event('locate.preview', { requestId: req.id, ...d })),
+          finished: (last) => (this.#lastLocate = last),
+        });
+        this.#jobs.push({ jobId, request: req, port, cancelled: false, steps });
         break;
       }
       default:
@@ -202,6 +215,10 @@ export class EngineHost {
       }
       case 'project.open':
         return this.#openProject(req.params as Params<'project.open'>);
+      case 'reference.pin':
+        return pinReference(this.#project?.dir ?? null, (req.params as Params<'reference.pin'>).name, this.#lastLocate);
+      case 'reference.list':
+        return { references: referenceInfos(this.#project?.dir ?? null) };
       case 'project.saveUi': {
         if (!this.#project) throw new PlumblineError('bad-request', 'no project is open');
         return { savedAt: this.#project.saveUi(req.params as Params<'project.saveUi'>) };
@@ -466,7 +483,12 @@ export class EngineHost {
   async #renderPreview(p: Params<'preview.render'>): Promise<Result<'preview.render'>> {
     const gen = this.#requireGenerator();
     const started = performance.now();
-    const out = await gen.renderSeeds([p.seed], p.psi, this.edits(p.edits));
+    let out;
+    if (p.reference) {
+      const codes = referenceCodes(this.#project?.dir ?? null, p.reference, gen);
+      applyEdits(codes, gen.layout, this.edits(p.edits));
+      out = await gen.synthesize(codes, 1);
+    } else out = await gen.renderSeeds([p.seed], p.psi, this.edits(p.edits));
     const { width, height } = gen.imageSize();
     const rgba = gen.toRgba(out.images, 0);
     return {

@@ -8,8 +8,9 @@ import type { Studio } from './studio.svelte.ts';
 
 type Found = Extract<Result<'locate.run'>, { cancelled: false }>;
 
-/** The browser-side file-size guard mirrors the engine's cap (app/core/reference-image.ts). */
-const MAX_FILE_BYTES = 64 * 1024 * 1024;
+/** Files cross to the engine as one message; the web shell's WebSocket takes at most 16 MiB, so
+ * the app accepts 15 MiB (the command line takes up to the engine's 64 MiB cap). */
+const MAX_FILE_BYTES = 15 * 1024 * 1024;
 
 export class Locate {
   open = $state(false);
@@ -52,7 +53,7 @@ export class Locate {
     this.progress = null;
     this.cancelled = false;
     if (file.size > MAX_FILE_BYTES) {
-      this.error = `${file.name}: the file is ${file.size.toLocaleString('en')} bytes, over the cap of ${MAX_FILE_BYTES.toLocaleString('en')}`;
+      this.error = `${file.name}: the file is ${file.size.toLocaleString('en')} bytes, over the ${MAX_FILE_BYTES.toLocaleString('en')} the app accepts; use plumbline locate for larger files`;
       return;
     }
     this.fileName = file.name;
