@@ -134,41 +134,74 @@ function scaleStats(ref: Planes): ScaleStats {
   return { w, h, ref, mu, variance };
 }
 
-/** Colour SSIM of a candidate against precomputed reference statistics. */
+/**
+ * Colour SSIM of a candidate against precomputed reference statistics. The three filtered
+ * signals a candidate needs per channel (b, b², a·b) are filtered together in one pass each way.
+ */
 function ssimAgainst(stats: ScaleStats, img: Planes, scratch: Scratch): number {
   const { w, h } = stats;
   const n = w * h;
-  const size = (w - WINDOW + 1) * (h - WINDOW + 1);
-  const { tmp, mb, sbb, sab, prod } = scratch.for(w, h);
+  const ow = w - WINDOW + 1;
+  const oh = h - WINDOW + 1;
+  const size = ow * oh;
+  const { t1, t2, t3 } = scratch.for(w, h);
+  const b = img.data;
+  const a = stats.ref.data;
   let total = 0;
   for (let c = 0; c < 3; c++) {
-    filterPlane(img.data, c * n, w, h, tmp, mb);
-    for (let i = 0; i < n; i++) prod[i] = img.data[c * n + i] ** 2;
-    filterPlane(prod, 0, w, h, tmp, sbb);
-    for (let i = 0; i < n; i++) prod[i] = img.data[c * n + i] * stats.ref.data[c * n + i];
-    filterPlane(prod, 0, w, h, tmp, sab);
+    const off = c * n;
+    for (let y = 0; y < h; y++) {
+      const row = off + y * w;
+      for (let x = 0; x < ow; x++) {
+        let s1 = 0;
+        let s2 = 0;
+        let s3 = 0;
+        for (let i = 0; i < WINDOW; i++) {
+          const k = KERNEL[i];
+          const bv = b[row + x + i];
+          const kb = k * bv;
+          s1 += kb;
+          s2 += kb * bv;
+          s3 += kb * a[row + x + i];
+        }
+        const o = y * ow + x;
+        t1[o] = s1;
+        t2[o] = s2;
+        t3[o] = s3;
+      }
+    }
     const ma = stats.mu[c];
     const va = stats.variance[c];
-    for (let i = 0; i < size; i++) {
-      const a = ma[i];
-      const b = mb[i];
-      const vb = sbb[i] - b * b;
-      const cov = sab[i] - a * b;
-      total += ((2 * a * b + C1) * (2 * cov + C2)) / ((a * a + b * b + C1) * (va[i] + vb + C2));
-    }
+    for (let y = 0; y < oh; y++)
+      for (let x = 0; x < ow; x++) {
+        let mb = 0;
+        let sbb = 0;
+        let sab = 0;
+        for (let i = 0; i < WINDOW; i++) {
+          const k = KERNEL[i];
+          const o = (y + i) * ow + x;
+          mb += k * t1[o];
+          sbb += k * t2[o];
+          sab += k * t3[o];
+        }
+        const o = y * ow + x;
+        const am = ma[o];
+        const vb = sbb - mb * mb;
+        const cov = sab - am * mb;
+        total += ((2 * am * mb + C1) * (2 * cov + C2)) / ((am * am + mb * mb + C1) * (va[o] + vb + C2));
+      }
   }
   return total / (3 * size);
 }
 
 class Scratch {
-  #cache = new Map<number, { tmp: Float64Array; mb: Float64Array; sbb: Float64Array; sab: Float64Array; prod: Float32Array }>();
+  #cache = new Map<number, { t1: Float64Array; t2: Float64Array; t3: Float64Array }>();
   for(w: number, h: number) {
     const key = w * 100003 + h;
     let s = this.#cache.get(key);
     if (!s) {
       const ow = w - WINDOW + 1;
-      const oh = h - WINDOW + 1;
-      s = { tmp: new Float64Array(ow * h), mb: new Float64Array(ow * oh), sbb: new Float64Array(ow * oh), sab: new Float64Array(ow * oh), prod: new Float32Array(w * h) };
+      s = { t1: new Float64Array(ow * h), t2: new Float64Array(ow * h), t3: new Float64Array(ow * h) };
       this.#cache.set(key, s);
     }
     return s;
