@@ -305,23 +305,35 @@ async function locateLarge(card: string, budget: number) {
   }
 }
 
-const demo = await throughput('demo 128²', demoCardPath(), 16, 256, 15);
-const dir = mkdtempSync(join(tmpdir(), 'plumbline-bench-'));
-try {
-  const large = authorLarge(dir);
-  const big = await throughput(`realistic 256², ${(large.parameters / 1e6).toFixed(1)} M params`, large.card, 4, 8, 3);
-  await variantRow('realistic 256²', large.card, big.rate, [1, 2, 3, 4], 2, 4);
-  await locateLarge(large.card, 220);
-} finally {
-  rmSync(dir, { recursive: true, force: true });
+if (process.env.PLUMBLINE_BENCH_ONLY === 'locate') {
+  // Only the locate rows (PLUMBLINE_BENCH_ONLY=locate npm run bench).
+  await locateThroughput('demo 128²', demoCardPath(), 700);
+  await locateTimeToMatch();
+  const dir = mkdtempSync(join(tmpdir(), 'plumbline-bench-'));
+  try {
+    await locateLarge(authorLarge(dir).card, 220);
+  } finally {
+    rmSync(dir, { recursive: true, force: true });
+  }
+} else {
+  const demo = await throughput('demo 128²', demoCardPath(), 16, 256, 15);
+  const dir = mkdtempSync(join(tmpdir(), 'plumbline-bench-'));
+  try {
+    const large = authorLarge(dir);
+    const big = await throughput(`realistic 256², ${(large.parameters / 1e6).toFixed(1)} M params`, large.card, 4, 8, 3);
+    await variantRow('realistic 256²', large.card, big.rate, [1, 2, 3, 4], 2, 4);
+    await locateLarge(large.card, 220);
+  } finally {
+    rmSync(dir, { recursive: true, force: true });
+  }
+  await variantRow('demo 128²', demoCardPath(), demo.rate, Array.from({ length: 64 }, (_, i) => i), 4, 16);
+  await packRow();
+  await previewLatency(demo.single);
+  await coldStart();
+  await auditRows(demo.rate);
+  await locateThroughput('demo 128²', demoCardPath(), 700);
+  await locateTimeToMatch();
 }
-await variantRow('demo 128²', demoCardPath(), demo.rate, Array.from({ length: 64 }, (_, i) => i), 4, 16);
-await packRow();
-await previewLatency(demo.single);
-await coldStart();
-await auditRows(demo.rate);
-await locateThroughput('demo 128²', demoCardPath(), 700);
-await locateTimeToMatch();
 
 const widths = [0, 1, 2, 3].map((k) => Math.max(...rows.map((r) => r[k].length), ['measure', 'plumbline', 'reference', 'ratio'][k].length));
 const line = (r: string[]) => r.map((c, k) => c.padEnd(widths[k])).join(' │ ');
