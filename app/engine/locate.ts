@@ -151,16 +151,40 @@ export async function* locate(gen: Generator, reference: FloatImage, options: Lo
     const k = candidates.length;
     const codes = new Float32Array(k * per);
     candidates.forEach((rows, i) => rows.forEach((x, l) => prior.toLatent(x, codes, i * per + l * size)));
-    const out = await gen.synthesize(codes, k);
+    // A code far from the distribution can make the generator put out values far outside its
+    // range (it refuses those batches); then each candidate is rendered alone and the bad ones
+    // rank last instead of ending the search.
+    let images: (Float32Array | null)[];
+    try {
+      const out = await gen.synthesize(codes, k);
+      const perImage = out.images.length / k;
+      images = Array.from({ length: k }, (_, i) => out.images.subarray(i * perImage, (i + 1) * perImage));
+    } catch (err) {
+      if (!(err instanceof PlumblineError) || (err.code !== 'output-out-of-range' && err.code !== 'output-not-finite')) throw err;
+      images = [];
+      for (let i = 0; i < k; i++) {
+        try {
+          images.push(Float32Array.from((await gen.synthesize(codes.slice(i * per, (i + 1) * per), 1)).images));
+        } catch (inner) {
+          if (!(inner instanceof PlumblineError) || (inner.code !== 'output-out-of-range' && inner.code !== 'output-not-finite')) throw inner;
+          images.push(null);
+        }
+      }
+    }
     const values: number[] = [];
     for (let i = 0; i < k; i++) {
-      const planes = outputToPlanes(out.images, i, width, height, gen.imageLayout, range);
+      const image = images[i];
+      if (!image) {
+        values.push(NaN);
+        continue;
+      }
+      const planes = outputToPlanes(image, 0, width, height, gen.imageLayout, range);
       const t = target.terms(planes);
       let sq = 0;
       for (const x of candidates[i]) for (const v of x) sq += v * v;
       const value = t.distance + (PRIOR_WEIGHT * sq) / (candidates[i].length * size);
       values.push(Number.isFinite(value) ? value : NaN);
-      if (!best || value < best.distance) {
+      if (Number.isFinite(value) && (!best || value < best.distance)) {
         best = { x: candidates[i].map((x) => Float64Array.from(x)), distance: value, ssim: t.ssim, deltaE: t.deltaE, planes: { w: planes.w, h: planes.h, data: Float32Array.from(planes.data) } };
         improvedSincePreview = true;
       }
@@ -170,7 +194,8 @@ export async function* locate(gen: Generator, reference: FloatImage, options: Lo
   };
 
   const progress = (stage: LocateProgress['stage']): LocateProgress => {
-    const b = best!;
+    const b = best;
+    if (!b) return { done: evaluations, total: budget, stage, best: { distance: Infinity, ssim: 0, deltaE: Infinity } };
     const p: LocateProgress = { done: evaluations, total: budget, stage, best: { distance: b.distance, ssim: b.ssim, deltaE: b.deltaE } };
     const now = Date.now();
     if (improvedSincePreview && now - lastPreview >= PREVIEW_INTERVAL_MS) {
@@ -201,7 +226,8 @@ export async function* locate(gen: Generator, reference: FloatImage, options: Lo
       yield progress('starts');
     }
   }
-  stages.push({ stage: 'starts', evaluations, bestDistance: best!.distance });
+  if (!best) throw new PlumblineError('output-out-of-range', `${gen.synthesisFile}: every starting code gave an image outside the generator's declared range`, { file: gen.synthesisFile });
+  stages.push({ stage: 'starts', evaluations, bestDistance: (best as { distance: number }).distance });
 
   // Stage 2: CMA-ES in W (all rows share one code). With an encoder's W+ start, the rows' mean.
   const rowBudget = space === 'w+' ? Math.floor((budget - evaluations) * ROW_STAGE_SHARE) : 0;

@@ -147,11 +147,12 @@ test('progress: evaluations rise to the budget, previews are images, the job can
   await assert.rejects(run({ width: 64, height: 64, data: new Float32Array(64 * 64 * 3) }), /reference is 64 × 64 but the generator makes 128 × 128/);
 });
 
-test('CLI: plumbline locate writes the latent and report; apply --latents renders it back', () => {
+test('CLI: plumbline locate writes the latent and report; bad input exits 2 naming the file', async () => {
   const cli = (...args: string[]) => spawnSync(process.execPath, [join(root, 'app', 'cli', 'bin.js'), ...args], { encoding: 'utf8' });
   const dir = join(out, 'cli');
   mkdirSync(dir, { recursive: true });
-  const target = join(out, `target-${SEEDS[1]}.png`);
+  const target = join(out, 'cli-target.png');
+  writeFileSync(target, encodePng(gen.toRgba((await gen.renderSeeds([SEEDS[1]], 0.7, [])).images, 0)));
   const r = cli('locate', '--image', target, '--budget', '300', '--threads', '1', '--out', join(dir, 'found.npy'), '--json', join(dir, 'found.json'), '--preview', join(dir, 'found.png'));
   assert.ok(r.status === 0 || r.status === 1, r.stderr);
   const report = JSON.parse(readFileSync(join(dir, 'found.json'), 'utf8'));
