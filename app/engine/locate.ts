@@ -126,7 +126,9 @@ export async function* locate(gen: Generator, reference: FloatImage, options: Lo
   const per = layers * size;
 
   let evaluations = 0;
-  let best: { x: Float64Array[]; distance: number; ssim: number; deltaE: number; planes: Planes } | null = null;
+  type Best = { x: Float64Array[]; distance: number; ssim: number; deltaE: number; planes: Planes };
+  // Declared through a cast so the checker does not narrow it to null: it is set inside `evaluate`.
+  let best = null as Best | null;
   let lastPreview = 0;
   let improvedSincePreview = false;
   const stages: LocateResult['stages'] = [];
@@ -227,7 +229,7 @@ export async function* locate(gen: Generator, reference: FloatImage, options: Lo
     }
   }
   if (!best) throw new PlumblineError('output-out-of-range', `${gen.synthesisFile}: every starting code gave an image outside the generator's declared range`, { file: gen.synthesisFile });
-  stages.push({ stage: 'starts', evaluations, bestDistance: (best as { distance: number }).distance });
+  stages.push({ stage: 'starts', evaluations, bestDistance: best.distance });
 
   // Stage 2: CMA-ES in W (all rows share one code). With an encoder's W+ start, the rows' mean.
   const rowBudget = space === 'w+' ? Math.floor((budget - evaluations) * ROW_STAGE_SHARE) : 0;
