@@ -9,11 +9,11 @@ import { encodeNpy } from '../core/npy.ts';
 import { encodePng } from '../core/image.ts';
 import { PlumblineError } from '../core/errors.ts';
 import { decodeReference, MAX_FILE_BYTES } from '../core/reference-image.ts';
-import { EngineHost, demoCardPath } from '../engine/host.ts';
 import { locate, sha256, locateReport, LIKENESS_CAUTION, DEFAULT_BUDGET } from '../engine/locate.ts';
 import { encodeStart } from '../engine/locate-encoder.ts';
-import { driveJob } from './jobs.ts';
-import type { CliContext } from './lab-commands.ts';
+import { runCliJob } from './jobs.ts';
+import { driveSteps } from '../engine/handlers/context.ts';
+import { openWorkspace, type CliContext } from './lab-commands.ts';
 
 export function addLocateCommand(program: Command, ctx: CliContext, integer: (name: string, lo: number, hi: number) => (v: string) => number): void {
   program
@@ -35,16 +35,15 @@ export function addLocateCommand(program: Command, ctx: CliContext, integer: (na
       if (!existsSync(imageFile)) throw new PlumblineError('file-missing', `${imageFile}: image not found`, { file: imageFile });
       if (statSync(imageFile).size > MAX_FILE_BYTES) throw new PlumblineError('image-too-large', `${imageFile}: the file is ${statSync(imageFile).size.toLocaleString('en')} bytes, over the cap of ${MAX_FILE_BYTES.toLocaleString('en')}`, { file: imageFile });
       const bytes = new Uint8Array(readFileSync(imageFile));
-      const host = new EngineHost({ threads: o.threads });
-      await host.openModel(resolve(o.model ?? demoCardPath()));
+      const workspace = await openWorkspace(o.model, o.threads);
       try {
-        const gen = host.generator!;
+        const gen = workspace.requireGenerator();
         const { width, height } = gen.imageSize();
         const ref = decodeReference(bytes, imageFile, width, height);
         const start = o.start ? await encodeStart(resolve(o.start), gen, ref.image) : null;
         process.stderr.write(`${LIKENESS_CAUTION}\n`);
         const job = locate(gen, ref.image, { budget: o.budget, space: o.space, seed: o.seed, start });
-        const r = await driveJob(job, ctx, 'locate', 'stopped; nothing written');
+        const r = await runCliJob(ctx, workspace, 'locate', 'stopped; nothing written', (jobCtx) => driveSteps(job, jobCtx));
         if (!r) return;
         const npy = resolve(o.out);
         writeFileAtomic(npy, encodeNpy(r.latent, [1, ...r.shape]));
@@ -55,7 +54,7 @@ export function addLocateCommand(program: Command, ctx: CliContext, integer: (na
         process.stdout.write(`${r.message}\n${r.evaluations} of ${r.budget} evaluations; latent ${npy}; report ${json}\n`);
         if (!r.found) process.exitCode = 1;
       } finally {
-        await host.dispose();
+        await workspace.dispose();
       }
     });
 }

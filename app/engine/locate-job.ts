@@ -2,7 +2,7 @@
 // generator of progress that awaits the host's checkpoint between generations), the preview
 // events it sends, pinning the last result as a named reference, and the codes of a reference for
 // previews. Kept apart from the host so wiring it into a handler is a few lines.
-import type { EventData, Params, ReferenceInfo, Result } from '../protocol/messages.ts';
+import type { EventData, Outcome, Params, ReferenceInfo } from '../protocol/messages.ts';
 import { PlumblineError } from '../core/errors.ts';
 import { decodeReference, type FloatImage } from '../core/reference-image.ts';
 import { differenceImage } from '../core/search/match.ts';
@@ -44,22 +44,17 @@ function floatToRgba(img: FloatImage): RgbaImage {
 export async function* locateJob(
   gen: Generator,
   p: Params<'locate.run'>,
-  hooks: { checkpoint: () => Promise<void>; preview: (d: Omit<EventData<'locate.preview'>, 'requestId'>) => void; finished: (last: LastLocate) => void },
-): AsyncGenerator<Progress, Result<'locate.run'>, void> {
+  hooks: { preview: (d: Omit<EventData<'locate.preview'>, 'requestId'>) => void; finished: (last: LastLocate) => void },
+): AsyncGenerator<Progress, Outcome<'locate.run'>, void> {
   const { width, height } = gen.imageSize();
   const ref = decodeReference(p.image, p.fileName, width, height);
   const job = locate(gen, ref.image, { budget: p.budget, space: p.space, seed: p.seed });
+  // The caller awaits its checkpoint (cancellation, waiting previews) at every yield.
   let step = await job.next();
   while (!step.done) {
     const s = step.value;
     if (s.preview) hooks.preview({ image: toWire(s.preview), ssim: s.best.ssim, deltaE: s.best.deltaE, done: s.done, total: s.total });
     yield { done: s.done, total: s.total, label: `locate (${s.stage})` };
-    try {
-      await hooks.checkpoint();
-    } catch (err) {
-      await job.return(undefined as never);
-      throw err;
-    }
     step = await job.next();
   }
   const r = step.value;
@@ -67,7 +62,6 @@ export async function* locateJob(
   const report = locateReport(r, { image: p.fileName, imageSha256, generator: { name: gen.info.name, fingerprint: gen.info.fingerprint }, notes: ref.notes, npy: '', start: 'best of random W samples' });
   hooks.finished({ latent: r.latent, shape: r.shape, report });
   return {
-    cancelled: false,
     found: r.found,
     ssim: r.ssim,
     deltaE: r.deltaE,

@@ -56,6 +56,7 @@ export interface LocateOptions {
 export interface LocateProgress {
   done: number;
   total: number;
+  label: string;
   stage: 'starts' | 'w' | 'w+';
   /** Search-distance terms of the best so far (compare size, multi-scale SSIM). */
   best: { distance: number; ssim: number; deltaE: number };
@@ -197,8 +198,9 @@ export async function* locate(gen: Generator, reference: FloatImage, options: Lo
 
   const progress = (stage: LocateProgress['stage']): LocateProgress => {
     const b = best;
-    if (!b) return { done: evaluations, total: budget, stage, best: { distance: Infinity, ssim: 0, deltaE: Infinity } };
-    const p: LocateProgress = { done: evaluations, total: budget, stage, best: { distance: b.distance, ssim: b.ssim, deltaE: b.deltaE } };
+    const label = `locate (${stage})`;
+    if (!b) return { done: evaluations, total: budget, label, stage, best: { distance: Infinity, ssim: 0, deltaE: Infinity } };
+    const p: LocateProgress = { done: evaluations, total: budget, label, stage, best: { distance: b.distance, ssim: b.ssim, deltaE: b.deltaE } };
     const now = Date.now();
     if (improvedSincePreview && now - lastPreview >= PREVIEW_INTERVAL_MS) {
       p.preview = planesToRgba(b.planes);

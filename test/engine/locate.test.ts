@@ -9,7 +9,7 @@ import assert from 'node:assert/strict';
 import { join } from 'node:path';
 import { readFileSync, writeFileSync, mkdirSync } from 'node:fs';
 import { spawnSync } from 'node:child_process';
-import { EngineHost, demoCardPath } from '../../app/engine/host.ts';
+import { Workspace, demoCardPath } from '../../app/engine/workspace.ts';
 import type { Generator } from '../../app/engine/generator.ts';
 import { locate, DEFAULT_BUDGET, type LocateResult, type LocateProgress } from '../../app/engine/locate.ts';
 import { decodeReference, type FloatImage } from '../../app/core/reference-image.ts';
@@ -21,14 +21,14 @@ import { tempDir } from '../helpers/models.ts';
 
 const root = join(import.meta.dirname, '..', '..');
 const resources = join(root, 'resources', 'demo');
-let host: EngineHost;
+let host: Workspace;
 let gen: Generator;
 let out: string;
 
 before(async () => {
-  host = new EngineHost({ threads: 1 });
+  host = new Workspace({ threads: 1 });
   await host.openModel(demoCardPath());
-  gen = host.generator!;
+  gen = host.requireGenerator();
   out = tempDir('plumbline-locate-');
 });
 after(async () => host.dispose());

@@ -86,7 +86,7 @@ export class Locate {
 
   async cancel(): Promise<void> {
     if (!this.running) return;
-    await this.studio.engine.request('job.cancel', { jobId: this.#requestId }).catch(() => undefined);
+    await this.studio.engine.request('job.cancel', { requestId: this.#requestId }).catch(() => undefined);
   }
 
   async pin(): Promise<boolean> {
