@@ -13,6 +13,7 @@ import { demoCardPath } from '../engine/workspace.ts';
 import { parseSeeds } from './seeds.ts';
 import { addLabCommands } from './lab-commands.ts';
 import { addPackCommands } from './pack-commands.ts';
+import { addLocateCommand } from './locate-command.ts';
 
 /** Bad command-line input found after parsing (commander prints its own parse errors). */
 class UsageError extends Error {}
@@ -133,6 +134,7 @@ export function buildProgram(): Command {
   const ctx = { progressBar, interrupt: interrupt.signal, usage: (m: string) => new UsageError(m) };
   addLabCommands(program, ctx, number, integer);
   addPackCommands(program, ctx);
+  addLocateCommand(program, ctx, integer);
   return program;
 }
 

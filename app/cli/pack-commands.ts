@@ -6,7 +6,8 @@ import { READ_LIMITS, chosenOutputFile, readRegularFile, readTextFile } from '..
 import { DIRECTION_NAME_RULE, isDirectionName } from '../protocol/names.ts';
 import { writeFileAtomic } from '../core/atomic-write.ts';
 import { encodePng } from '../core/image.ts';
-import { applyEdits, directionEdit } from '../core/latent.ts';
+import { applyEdits, broadcastLayers, directionEdit } from '../core/latent.ts';
+import { decodeNpy } from '../core/npy.ts';
 import { PackError, keyIdOf, type PackFailure } from '../core/pack.ts';
 import { ERROR_CATALOGUE, PlumblineError } from '../core/errors.ts';
 import { Generator } from '../engine/generator.ts';
@@ -67,6 +68,24 @@ async function withPackErrors(run: () => Promise<void>): Promise<void> {
   }
 }
 
+/** Latent codes from a .npy for `apply --latents`: [N, size] (W, repeated on every row) or [N, layers, size]. */
+function readLatents(file: string, gen: Generator): { n: number; codes: Float32Array; sha256: string } {
+  if (!existsSync(file)) throw new PlumblineError('file-missing', `${file}: latents not found`, { file });
+  const bytes = new Uint8Array(readFileSync(file));
+  const a = decodeNpy(bytes, file);
+  const { layers, size } = gen.layout;
+  const s = a.shape;
+  const n = s[0];
+  const isW = s.length === 2 && s[1] === size;
+  const isWPlus = s.length === 3 && s[1] === layers && s[2] === size;
+  if (!(n >= 1) || (!isW && !isWPlus)) {
+    throw new PlumblineError('npy-shape', `${file}: latents have shape [${s.join(', ')}]; this generator needs [N, ${size}]${layers > 1 ? ` or [N, ${layers}, ${size}]` : ''}`, { file });
+  }
+  if (!a.data.every(Number.isFinite)) throw new PlumblineError('npy-invalid', `${file}: latents contain NaN or infinite values`, { file });
+  const codes = isW && layers > 1 ? broadcastLayers(a.data, gen.layout) : Float32Array.from(a.data);
+  return { n, codes, sha256: createHash('sha256').update(bytes).digest('hex') };
+}
+
 export function addPackCommands(program: Command, ctx: CliContext): void {
   program
     .command('pack')
@@ -109,6 +128,7 @@ export function addPackCommands(program: Command, ctx: CliContext): void {
     .requiredOption('--pack <file>', 'the pack')
     .option('-m, --model <file>', 'the generator; default: the bundled demo')
     .option('-s, --seeds <list>', 'seeds to render, e.g. 0-3')
+    .option('--latents <file.npy>', 'render from latent codes instead of seeds ([N, size] or [N, layers, size], e.g. from plumbline locate); used as they are, without truncation')
     .option('--set <name=strength>', 'a direction and its strength in σ; repeatable', (v: string, prev: string[]) => [...prev, v], [] as string[])
     .option('--psi <number>', 'truncation ψ (default: the generator card’s)')
     .option('--preview <name>', "re-render a direction's pack preview exactly, for comparison")
@@ -128,8 +148,9 @@ export function addPackCommands(program: Command, ctx: CliContext): void {
         if (!same) process.exitCode = 1;
         return;
       }
-      if (!o.seeds) throw ctx.usage('apply needs --seeds (or --preview <name>)');
-      const seeds = parseSeeds(o.seeds);
+      if (!o.seeds === !o.latents) throw ctx.usage('apply needs exactly one of --seeds or --latents (or --preview <name>)');
+      const latents = o.latents ? readLatents(resolve(o.latents), gen) : null;
+      const seeds = latents ? Array.from({ length: latents.n }, (_, i) => i) : parseSeeds(o.seeds);
       const sets = (o.set as string[]).map((s) => {
         const m = /^([A-Za-z0-9_.-]+)=(-?\d+(?:\.\d+)?)$/.exec(s);
         if (!m) throw ctx.usage(`--set '${s}' must look like name=strength, e.g. crest_size=1.5`);
@@ -147,19 +168,20 @@ export function addPackCommands(program: Command, ctx: CliContext): void {
       const images = [];
       for (let at = 0; at < seeds.length; at += gen.batchSize) {
         const chunk = seeds.slice(at, at + gen.batchSize);
-        const codes = await gen.codesForSeeds(chunk, psi);
+        const per = gen.layout.layers * gen.layout.size;
+        const codes = latents ? latents.codes.slice(at * per, (at + chunk.length) * per) : await gen.codesForSeeds(chunk, psi);
         applyEdits(codes, gen.layout, sets.map(({ d, strength }) => directionEdit(d, strength)));
         const r = await gen.synthesize(codes, chunk.length);
         for (let i = 0; i < chunk.length; i++) {
           const png = encodePng(gen.toRgba(r.images, i));
-          const file = `seed-${String(chunk[i]).padStart(6, '0')}.png`;
+          const file = `${latents ? 'latent' : 'seed'}-${String(chunk[i]).padStart(6, '0')}.png`;
           writeFileAtomic(join(out, file), png);
-          images.push({ seed: chunk[i], file, sha256: createHash('sha256').update(png).digest('hex') });
+          images.push({ ...(latents ? { latent: chunk[i] } : { seed: chunk[i] }), file, sha256: createHash('sha256').update(png).digest('hex') });
         }
       }
       writeFileAtomic(join(out, 'manifest.json'), JSON.stringify({
         format: 'plumbline.applied', version: 1, createdAt: new Date().toISOString(), pack: v.pack.manifest.project,
-        generator: v.pack.manifest.generator, psi, settings: sets.map(({ d, strength }) => ({ direction: d.name, strength, safeRange: d.safeRange, forced: strength < d.safeRange[0] || strength > d.safeRange[1] })), images,
+        generator: v.pack.manifest.generator, ...(latents ? { latents: { file: resolve(o.latents), sha256: latents.sha256 } } : { psi }), settings: sets.map(({ d, strength }) => ({ direction: d.name, strength, safeRange: d.safeRange, forced: strength < d.safeRange[0] || strength > d.safeRange[1] })), images,
       }, null, 2) + '\n');
       process.stdout.write(`wrote ${images.length} image(s) and manifest.json to ${out}\n`);
     })));

@@ -77,6 +77,13 @@ export function chroma(lab: Lab): number {
 
 const deg = Math.PI / 180;
 
+/** Hue angle h' in degrees for CIEDE2000 (0 for a neutral colour). Module-level: it runs per pixel. */
+function primeHue(a: number, b: number): number {
+  if (a === 0 && b === 0) return 0;
+  const h = Math.atan2(b, a) / deg;
+  return h < 0 ? h + 360 : h;
+}
+
 /** CIEDE2000 with k_L = k_C = k_H = 1, following Sharma, Wu & Dalal (2005) step by step. */
 export function ciede2000(lab1: Lab, lab2: Lab): number {
   const [L1, a1, b1] = lab1;
@@ -90,13 +97,8 @@ export function ciede2000(lab1: Lab, lab2: Lab): number {
   const a2p = (1 + G) * a2;
   const C1p = Math.hypot(a1p, b1);
   const C2p = Math.hypot(a2p, b2);
-  const hp = (a: number, b: number) => {
-    if (a === 0 && b === 0) return 0;
-    const h = Math.atan2(b, a) / deg;
-    return h < 0 ? h + 360 : h;
-  };
-  const h1p = hp(a1p, b1);
-  const h2p = hp(a2p, b2);
+  const h1p = primeHue(a1p, b1);
+  const h2p = primeHue(a2p, b2);
   const dLp = L2 - L1;
   const dCp = C2p - C1p;
   let dhp = 0;

@@ -54,6 +54,8 @@ export class EngineHost {
           checkpoint,
           jobs,
           progress: (p) => lane === 'job' && port.post(event('job.progress', { requestId: req.id, ...p })),
+          event: (name, data) => port.post(event(name, data)),
+          requestId: req.id,
         };
         return Promise.resolve(handler(req.params as Params<typeof req.method>, ctx));
       },

@@ -18,6 +18,8 @@ export const ERROR_CATALOGUE = {
   'npy-invalid': { title: 'The .npy file is invalid', input: true },
   'npy-shape': { title: 'Array shape mismatch', input: true },
   'directions-invalid': { title: 'The directions metadata is invalid', input: true },
+  'image-invalid': { title: 'The image file cannot be read', input: true },
+  'image-too-large': { title: 'The image file is over a size cap', input: true },
   'bad-request': { title: 'The request is invalid', input: true },
   'path-refused': { title: 'A path leads outside the folder it must stay in', input: true },
   'not-a-file': { title: 'Not a regular file where a file is expected', input: true },

@@ -15,6 +15,8 @@ const bytes = z.custom<Uint8Array>((v) => v instanceof Uint8Array, { message: "e
 const seed = z.number().int().min(0).max(0xffffffff);
 const psi = z.number().min(0).max(2);
 const strength = z.number().finite().min(-50).max(50);
+/** A named reference (a located latent pinned in the project); same rule as app/engine/references.ts. */
+const referenceName = /^[A-Za-z0-9_-][A-Za-z0-9_.-]{0,119}$/;
 
 export const editSchema = z.object({ direction: z.string().min(1), strength });
 export type Edit = z.infer<typeof editSchema>;
@@ -125,6 +127,9 @@ function declare<L extends Lane, P extends z.ZodType, R extends z.ZodObject | z.
   return { lane, params, result };
 }
 
+export const referenceInfoSchema = z.object({ name: z.string(), ssim: z.number(), deltaE: z.number(), found: z.boolean(), imageSha256: z.string(), evaluations: z.number().int(), budget: z.number().int() });
+export type ReferenceInfo = z.infer<typeof referenceInfoSchema>;
+
 const uiStateSchema = z.object({ seed, psi, strengths: z.record(z.string(), strength), pinned: z.array(seed).max(10_000), tags: z.record(z.string(), z.enum(['has', 'lacks'])) });
 const candidateSchema = z.object({ direction: directionInfoSchema, strip: z.array(imageSchema), stripSeeds: z.array(seed), stripStrengths: z.array(z.number()) });
 const thumbnailSchema = z.object({ direction: z.string(), seed, strength: z.number(), attribute: z.string(), leakage: z.number(), before: bytes, after: bytes });
@@ -141,7 +146,7 @@ export const methods = {
   'directions.open': declare('control', z.object({ path: z.string().min(1) }), z.object({ file: z.string(), directions: z.array(directionInfoSchema) })),
   'directions.list': declare('control', z.object({}), z.object({ directions: z.array(directionInfoSchema) })),
   'directions.keep': declare('control', z.object({ id: z.string().min(1), name: directionNameSchema }), directionInfoSchema),
-  'preview.render': declare('preview', z.object({ seed, psi, edits: z.array(editSchema).max(64) }), z.union([
+  'preview.render': declare('preview', z.object({ seed, psi, edits: z.array(editSchema).max(64), reference: z.string().regex(referenceName).optional() }), z.union([
     z.object({ superseded: z.literal(true) }),
     z.object({ superseded: z.literal(false), seed, image: imageSchema, attributes: z.array(z.number()), millis: z.number() }),
   ])),
@@ -190,6 +195,14 @@ export const methods = {
   }), z.object({ out: z.string(), rendered: z.number(), reused: z.number(), replaced: z.number().optional(), contactSheet: bytes })),
   /** `out` is the absolute path the user chose; an existing file is replaced only with `overwrite`. */
   'pack.build': declare('control', z.object({ out: z.string().min(1), overwrite: z.boolean().optional() }), z.object({ file: z.string(), directions: z.array(z.string()), skipped: z.array(z.string()), bytes: z.number() })),
+  /** Finds the latent of a reference image (docs/locate.md); progress plus locate.preview events. */
+  'locate.run': declare('job', z.object({ image: bytes, fileName: z.string().min(1).max(1000), budget: z.number().int().min(50).max(1_000_000).default(3000), space: z.enum(['w', 'w+']).default('w'), seed: seed.default(1) }), z.object({
+    found: z.boolean(), ssim: z.number(), deltaE: z.number(), message: z.string(), evaluations: z.number().int(), budget: z.number().int(),
+    imageSha256: z.string(), notes: z.array(z.string()), reference: imageSchema, match: imageSchema, difference: imageSchema, caution: z.string(),
+  })),
+  /** Stores the last finished locate result in the open project as a named reference. */
+  'reference.pin': declare('control', z.object({ name: z.string().regex(referenceName, 'letters, digits, _ . - only (1 to 120)') }), referenceInfoSchema),
+  'reference.list': declare('control', z.object({}), z.object({ references: z.array(referenceInfoSchema) })),
   'pack.import': declare('control', z.object({ path: z.string().min(1) }), z.object({ imported: z.array(z.string()), directions: z.array(directionInfoSchema) })),
 } as const;
 
@@ -229,6 +242,8 @@ export const eventSchemas = {
   'engine.ready': z.object({ engine: z.string(), restarted: z.boolean() }),
   'engine.stopped': z.object({ reason: z.string(), code: z.number().nullable(), restarting: z.boolean() }),
   'model.changed': z.object({ model: modelInfoSchema }),
+  /** The best match so far of a running locate job (at most a few per second). */
+  'locate.preview': z.object({ requestId: z.number().int(), image: imageSchema, ssim: z.number(), deltaE: z.number(), done: z.number().int(), total: z.number().int() }),
 } as const;
 export type EventName = keyof typeof eventSchemas;
 export type EventData<E extends EventName> = z.infer<(typeof eventSchemas)[E]>;

@@ -16,6 +16,10 @@ import { renderVariants } from '../../app/engine/variants.ts';
 import { readPack, writePack } from '../../app/core/pack.ts';
 import { decodeNpy, encodeNpy } from '../../app/core/npy.ts';
 import { Random } from '../../app/core/random.ts';
+import { locate } from '../../app/engine/locate.ts';
+import { defaultParameters } from '../../app/core/search/cma-es.ts';
+import { FOUND_SSIM, FOUND_DELTA_E } from '../../app/core/search/match.ts';
+import type { FloatImage } from '../../app/core/reference-image.ts';
 
 const root = join(import.meta.dirname, '..', '..');
 const THREADS = Number(process.env.PLUMBLINE_THREADS) || 1;
@@ -219,20 +223,117 @@ async function auditRows(bareRate: number) {
   rows.push(['audit time vs probes × directions × strengths (l2)', cells.join(', '), `fit: ${(fixed / 1000).toFixed(2)} s fixed + ${slope.toFixed(3)} ms per unit`, `R² ${(1 - ssRes / ssTot).toFixed(4)} (linear)`]);
 }
 
-const demo = await throughput('demo 128²', demoCardPath(), 16, 256, 15);
-const dir = mkdtempSync(join(tmpdir(), 'plumbline-bench-'));
-try {
-  const large = authorLarge(dir);
-  const big = await throughput(`realistic 256², ${(large.parameters / 1e6).toFixed(1)} M params`, large.card, 4, 8, 3);
-  await variantRow('realistic 256²', large.card, big.rate, [1, 2, 3, 4], 2, 4);
-} finally {
-  rmSync(dir, { recursive: true, force: true });
+/** A generator's own render of a seed as an 8-bit-quantised float reference (what a user's PNG holds). */
+async function referenceOf(gen: Generator, seed: number): Promise<FloatImage> {
+  const { width, height } = gen.imageSize();
+  const rgba = gen.toRgba((await gen.renderSeeds([seed], gen.info.defaultPsi, [])).images, 0);
+  const data = new Float32Array(width * height * 3);
+  for (let p = 0; p < width * height; p++) for (let c = 0; c < 3; c++) data[p * 3 + c] = rgba.data[p * 4 + c] / 255;
+  return { width, height, data };
 }
-await variantRow('demo 128²', demoCardPath(), demo.rate, Array.from({ length: 64 }, (_, i) => i), 4, 16);
-await packRow();
-await previewLatency(demo.single);
-await coldStart();
-await auditRows(demo.rate);
+
+async function runLocate(gen: Generator, ref: FloatImage, options: Parameters<typeof locate>[2]) {
+  const job = locate(gen, ref, options);
+  for (;;) {
+    const s = await job.next();
+    if (s.done) return s.value;
+  }
+}
+
+/** Search evaluations/s against bare session.run at the search's batch (λ of CMA-ES in W) and threads. */
+async function locateThroughput(label: string, card: string, budget: number) {
+  const gen = await Generator.open(card, { threads: THREADS });
+  try {
+    const lambda = defaultParameters(gen.layout.size).lambda;
+    gen.batchSize = lambda;
+    const c = JSON.parse(readFileSync(card, 'utf8'));
+    const bare = await ort.InferenceSession.create(join(card, '..', c.synthesis.file), { intraOpNumThreads: THREADS, interOpNumThreads: 1, executionMode: 'sequential', graphOptimizationLevel: 'all' });
+    const codes = await gen.codesForSeeds(Array.from({ length: lambda }, (_, i) => i), 0.7);
+    const dims = [lambda, gen.layout.layers, gen.layout.size];
+    await bare.run({ [c.synthesis.latentInput]: new ort.Tensor('float32', codes, dims) });
+    const ref = await referenceOf(gen, 424_242);
+    const search: number[] = [];
+    const plain: number[] = [];
+    for (let round = 0; round < 3; round++) {
+      let t = performance.now();
+      const r = await runLocate(gen, ref, { budget, seed: round + 1 });
+      search.push(r.evaluations / ((performance.now() - t) / 1000));
+      t = performance.now();
+      for (let n = 0; n < budget; n += lambda) await bare.run({ [c.synthesis.latentInput]: new ort.Tensor('float32', codes, dims) });
+      plain.push((Math.ceil(budget / lambda) * lambda) / ((performance.now() - t) / 1000));
+    }
+    await bare.release();
+    const e = median(search);
+    const b = median(plain);
+    rows.push([`${label}: locate evaluations/s vs bare session.run (batch ${lambda} = λ, ${THREADS} thread${THREADS > 1 ? 's' : ''})`, `${e.toFixed(1)} eval/s`, `${b.toFixed(1)} img/s`, `${(e / b).toFixed(3)}× (target ≥ 0.9)`]);
+  } finally {
+    await gen.dispose();
+  }
+}
+
+/** Demo: wall time until the best match reaches SSIM 0.95 and mean ΔE00 2, median over 20 unseen seeds. */
+async function locateTimeToMatch() {
+  const gen = await Generator.open(demoCardPath(), { threads: THREADS });
+  try {
+    const times: number[] = [];
+    const evaluations: number[] = [];
+    let found = 0;
+    for (let i = 0; i < 20; i++) {
+      const ref = await referenceOf(gen, 731_001 + i);
+      const t = performance.now();
+      const r = await runLocate(gen, ref, { until: { ssim: FOUND_SSIM, deltaE: FOUND_DELTA_E } });
+      times.push(performance.now() - t);
+      evaluations.push(r.evaluations);
+      if (r.found) found++;
+    }
+    rows.push(['demo: locate, time to SSIM 0.95 & ΔE00 ≤ 2 (20 unseen seeds, default budget)', `median ${(median(times) / 1000).toFixed(2)} s`, `median ${median(evaluations)} evaluations`, `${found}/20 reached within the budget`]);
+  } finally {
+    await gen.dispose();
+  }
+}
+
+/** Realistic 256² generator: the match reached in a fixed budget (it renders structured noise, so this is a hard target). */
+async function locateLarge(card: string, budget: number) {
+  const gen = await Generator.open(card, { threads: THREADS });
+  try {
+    const ref = await referenceOf(gen, 99);
+    const t = performance.now();
+    const r = await runLocate(gen, ref, { budget });
+    rows.push([`realistic 256²: locate match in a fixed budget of ${budget} evaluations`, `SSIM ${r.ssim.toFixed(3)}, mean ΔE00 ${r.deltaE.toFixed(2)}`, `${((performance.now() - t) / 1000).toFixed(1)} s`, r.found ? 'found' : 'not found (closest reported)']);
+  } finally {
+    await gen.dispose();
+  }
+}
+
+if (process.env.PLUMBLINE_BENCH_ONLY === 'locate') {
+  // Only the locate rows (PLUMBLINE_BENCH_ONLY=locate npm run bench).
+  await locateThroughput('demo 128²', demoCardPath(), 700);
+  await locateTimeToMatch();
+  const dir = mkdtempSync(join(tmpdir(), 'plumbline-bench-'));
+  try {
+    await locateLarge(authorLarge(dir).card, 220);
+  } finally {
+    rmSync(dir, { recursive: true, force: true });
+  }
+} else {
+  const demo = await throughput('demo 128²', demoCardPath(), 16, 256, 15);
+  const dir = mkdtempSync(join(tmpdir(), 'plumbline-bench-'));
+  try {
+    const large = authorLarge(dir);
+    const big = await throughput(`realistic 256², ${(large.parameters / 1e6).toFixed(1)} M params`, large.card, 4, 8, 3);
+    await variantRow('realistic 256²', large.card, big.rate, [1, 2, 3, 4], 2, 4);
+    await locateLarge(large.card, 220);
+  } finally {
+    rmSync(dir, { recursive: true, force: true });
+  }
+  await variantRow('demo 128²', demoCardPath(), demo.rate, Array.from({ length: 64 }, (_, i) => i), 4, 16);
+  await packRow();
+  await previewLatency(demo.single);
+  await coldStart();
+  await auditRows(demo.rate);
+  await locateThroughput('demo 128²', demoCardPath(), 700);
+  await locateTimeToMatch();
+}
 
 const widths = [0, 1, 2, 3].map((k) => Math.max(...rows.map((r) => r[k].length), ['measure', 'plumbline', 'reference', 'ratio'][k].length));
 const line = (r: string[]) => r.map((c, k) => c.padEnd(widths[k])).join(' │ ');

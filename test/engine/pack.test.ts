@@ -91,6 +91,36 @@ test('apply reproduces the pack previews bit for bit and guards the safe range',
   assert.equal(JSON.parse(readFileSync(join(out, 'forced', 'manifest.json'), 'utf8')).settings[0].forced, true);
 });
 
+test('apply --latents renders stored codes exactly as the same codes from seeds (W+ [N, 3, 32] and W [N, 32])', async () => {
+  const out = tempDir();
+  const { Generator } = await import('../../app/engine/generator.ts');
+  const { encodeNpy } = await import('../../app/core/npy.ts');
+  const { demoCardPath } = await import('../../app/engine/host.ts');
+  const gen = await Generator.open(demoCardPath(), { threads: 1 });
+  const codes = await gen.codesForSeeds([4, 9], 0.7); // [2, 3, 32], rows identical
+  await gen.dispose();
+  writeFileSync(join(out, 'wplus.npy'), encodeNpy(codes, [2, 3, 32]));
+  writeFileSync(join(out, 'w.npy'), encodeNpy(Float32Array.from([...codes.subarray(0, 32), ...codes.subarray(96, 128)]), [2, 32]));
+  const bySeeds = cli('apply', '--pack', packFile, '--seeds', '4,9', '--set', 'turn=1', '--out', join(out, 'seeds'));
+  assert.equal(bySeeds.status, 0, bySeeds.stderr);
+  for (const kind of ['wplus', 'w']) {
+    const r = cli('apply', '--pack', packFile, '--latents', join(out, `${kind}.npy`), '--set', 'turn=1', '--out', join(out, kind));
+    assert.equal(r.status, 0, r.stderr);
+    for (const [i, seed] of [[0, 4], [1, 9]]) {
+      const a = readFileSync(join(out, kind, `latent-${String(i).padStart(6, '0')}.png`));
+      const b = readFileSync(join(out, 'seeds', `seed-${String(seed).padStart(6, '0')}.png`));
+      assert.ok(a.equals(b), `${kind} latent ${i} differs from seed ${seed}`);
+    }
+    assert.equal(JSON.parse(readFileSync(join(out, kind, 'manifest.json'), 'utf8')).latents.sha256.length, 64);
+  }
+  writeFileSync(join(out, 'bad.npy'), encodeNpy(new Float32Array(2 * 31), [2, 31]));
+  const bad = cli('apply', '--pack', packFile, '--latents', join(out, 'bad.npy'), '--out', join(out, 'bad'));
+  assert.equal(bad.status, 2);
+  assert.match(bad.stderr, /bad\.npy: latents have shape \[2, 31\]; this generator needs \[N, 32\] or \[N, 3, 32\]/);
+  const both = cli('apply', '--pack', packFile, '--latents', join(out, 'w.npy'), '--seeds', '1', '--out', join(out, 'both'));
+  assert.equal(both.status, 2);
+});
+
 test('import brings the directions into another project', () => {
   const dest = join(tempDir(), 'production');
   const r = cli('import', '--pack', packFile, '--project', dest);

@@ -1,7 +1,7 @@
 // What every handler receives, and the handler type: one async function per protocol method,
 // (params, ctx) → outcome. For a job the outcome excludes the cancelled alternative: a handler
 // never builds { cancelled: true } itself — the scheduler answers it when the signal is aborted.
-import type { Method, Outcome, Params } from '../../protocol/messages.ts';
+import type { EventData, EventName, Method, Outcome, Params } from '../../protocol/messages.ts';
 import type { Workspace } from '../workspace.ts';
 
 export interface Progress {
@@ -20,6 +20,10 @@ export interface HandlerContext {
   signal: AbortSignal;
   /** The scheduler's jobs, for job.cancel and for cancelling everything on a generator switch. */
   jobs: { cancel(requestId: number): boolean; cancelAll(): void };
+  /** Sends an event to the requester (absent in the CLI, which has no one to send it to). */
+  event?<E extends EventName>(name: E, data: EventData<E>): void;
+  /** The id of the request being handled (for events that name it). */
+  requestId?: number;
 }
 
 export type Handler<M extends Method> = (params: Params<M>, ctx: HandlerContext) => Promise<Outcome<M>> | Outcome<M>;

@@ -13,6 +13,7 @@ import { repairHandlers } from './repair.ts';
 import { projectHandlers } from './project.ts';
 import { packHandlers } from './pack.ts';
 import { variantHandlers } from './variants.ts';
+import { locateHandlers } from './locate.ts';
 
 export const handlers: { [M in Method]: Handler<M> } = {
   ...engineHandlers,
@@ -25,4 +26,5 @@ export const handlers: { [M in Method]: Handler<M> } = {
   ...projectHandlers,
   ...packHandlers,
   ...variantHandlers,
+  ...locateHandlers,
 };

@@ -1,12 +1,20 @@
 // Handlers that render seeds: the slider preview (preview lane, latest wins) and a grid of seeds
 // (a job, batch by batch).
 import type { AreaHandlers } from './context.ts';
+import { applyEdits } from '../../core/latent.ts';
+import { referenceCodes } from '../locate-job.ts';
 
 export const renderHandlers: AreaHandlers<'preview.render' | 'grid.render'> = {
   'preview.render': async (p, { workspace }) => {
     const gen = workspace.requireGenerator();
     const started = performance.now();
-    const out = await gen.renderSeeds([p.seed], p.psi, workspace.edits(p.edits));
+    let out;
+    if (p.reference) {
+      // A pinned reference in place of the seed: its stored code as it is (no truncation), then the edits.
+      const codes = referenceCodes(workspace.project?.dir ?? null, p.reference, gen);
+      applyEdits(codes, gen.layout, workspace.edits(p.edits));
+      out = await gen.synthesize(codes, 1);
+    } else out = await gen.renderSeeds([p.seed], p.psi, workspace.edits(p.edits));
     const { width, height } = gen.imageSize();
     const rgba = gen.toRgba(out.images, 0);
     return {

@@ -27,6 +27,8 @@ export class Studio {
   directions = $state.raw<DirectionInfo[]>([]);
   strengths = $state<Record<string, number>>({});
   seed = $state(0);
+  /** A named reference (a located latent pinned in the project) shown in place of the seed, or null. */
+  reference = $state<string | null>(null);
   psi = $state(0.7);
   gridStart = $state(0);
   grid = $state.raw<{ seed: number; image: WireImage }[]>([]);
@@ -221,7 +223,23 @@ export class Studio {
     void this.requestPreview();
   }
 
+  /** Puts a pinned reference on the workbench in place of a seed (sliders then edit it). */
+  useReference(name: string | null): void {
+    if (name === this.reference) return;
+    this.reference = name;
+    this.baseline = null;
+    void this.requestPreview();
+  }
+
   selectSeed(seed: number): void {
+    if (this.reference !== null) {
+      this.reference = null;
+      this.baseline = null;
+      if (seed === this.seed) {
+        void this.requestPreview();
+        return;
+      }
+    }
     if (seed === this.seed || seed < 0) return;
     const before = this.snapshot();
     this.seed = seed;
@@ -330,10 +348,11 @@ export class Studio {
       do {
         this.#previewDirty = false;
         const seed = this.seed;
+        const reference = this.reference ?? undefined;
         const strengths = { ...this.strengths };
         const edits = Object.entries(strengths).filter(([, s]) => s !== 0).map(([direction, strength]) => ({ direction, strength }));
-        const key = previewKey(seed, this.psi, strengths);
-        const r = await this.engine.request('preview.render', { seed, psi: this.psi, edits });
+        const key = (reference ? `ref:${reference}|` : '') + previewKey(seed, this.psi, strengths);
+        const r = await this.engine.request('preview.render', { seed, psi: this.psi, edits, reference });
         if (r.superseded) continue;
         this.preview = r.image;
         this.previewKey = key;
@@ -341,7 +360,7 @@ export class Studio {
         this.attributes = r.attributes;
         if (edits.length === 0) this.baseline = r.image;
         else if (!this.baseline) {
-          const b = await this.engine.request('preview.render', { seed, psi: this.psi, edits: [] });
+          const b = await this.engine.request('preview.render', { seed, psi: this.psi, edits: [], reference });
           if (!b.superseded) this.baseline = b.image;
         }
       } while (this.#previewDirty);

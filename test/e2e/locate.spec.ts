@@ -1,0 +1,91 @@
+// "Start from an image…" through the web shell in Chromium: drop a PNG the demo generator made
+// from a seed nobody picked, watch the search (progress and a best-so-far image), cancel, run
+// again to the end, read the verdict with reference / match / difference side by side, pin the
+// result in the project and move a slider on it. Screenshots land in test-output/screens/.
+import { test, expect, type Page } from '@playwright/test';
+import { mkdirSync, mkdtempSync, readFileSync, readdirSync } from 'node:fs';
+import { tmpdir } from 'node:os';
+import { join } from 'node:path';
+import { spawnSync } from 'node:child_process';
+import { startShell } from './shell';
+
+const root = join(import.meta.dirname, '..', '..');
+const shots = join(root, 'test-output', 'screens');
+let shell: Awaited<ReturnType<typeof startShell>>;
+let target: Buffer;
+
+test.beforeAll(async () => {
+  mkdirSync(shots, { recursive: true });
+  const out = mkdtempSync(join(tmpdir(), 'plumbline-e2e-locate-'));
+  const r = spawnSync(process.execPath, [join(root, 'app', 'cli', 'bin.js'), 'sample', '--seeds', '731003', '--out', out], { encoding: 'utf8' });
+  if (r.status !== 0) throw new Error(r.stderr);
+  target = readFileSync(join(out, readdirSync(out).find((f) => f.endsWith('.png'))!));
+  shell = await startShell();
+});
+test.afterAll(() => shell?.stop());
+
+async function dropFile(page: Page, selector: string, name: string, bytes: Buffer) {
+  const transfer = await page.evaluateHandle(({ name, data }) => {
+    const dt = new DataTransfer();
+    dt.items.add(new File([new Uint8Array(data)], name, { type: 'image/png' }));
+    return dt;
+  }, { name, data: [...bytes] });
+  await page.dispatchEvent(selector, 'dragover', { dataTransfer: transfer });
+  await page.dispatchEvent(selector, 'drop', { dataTransfer: transfer });
+}
+
+test('drop an image, watch, cancel, run to the end, pin, move a slider on it', async ({ page }) => {
+  test.setTimeout(300_000);
+  const errors: string[] = [];
+  page.on('pageerror', (e) => errors.push(e.message));
+  const projectDir = join(mkdtempSync(join(tmpdir(), 'plumbline-e2e-')), 'heroes');
+  await page.goto(shell.url);
+  await expect(page.getByTestId('engine-state')).toHaveText('engine ready', { timeout: 30_000 });
+  await expect(page.getByRole('slider', { name: 'turn' })).toBeVisible({ timeout: 30_000 });
+  await page.getByRole('button', { name: 'New project…' }).click();
+  await page.getByLabel('Path').fill(projectDir);
+  await page.getByRole('button', { name: 'Create', exact: true }).click();
+  await expect(page.getByText('◆ heroes')).toBeVisible();
+
+  await page.getByRole('button', { name: 'Start from an image…' }).click();
+  const dialog = page.getByRole('dialog');
+  await expect(dialog.getByRole('note')).toContainText('consent');
+  await dropFile(page, '[aria-label="Drop a PNG or JPEG here"]', 'hero_crest.png', target);
+  await expect(dialog.getByText('hero_crest.png')).toBeVisible();
+
+  // First run: watch progress and the best so far, then cancel.
+  await dialog.getByLabel('Evaluation budget').fill('3000');
+  await dialog.getByRole('button', { name: 'Find in generator' }).click();
+  await expect(page.getByTestId('locate-best')).toBeVisible({ timeout: 60_000 });
+  await expect(page.getByTestId('locate-progress')).toContainText(/[1-9]\d* \/ 3000 evaluations/);
+  await page.screenshot({ path: join(shots, 'locate-progress.png') });
+  await dialog.getByRole('button', { name: 'Cancel' }).click();
+  await expect(dialog.getByText('Cancelled.')).toBeVisible({ timeout: 30_000 });
+
+  // Second run to the end (a smaller budget keeps the test short).
+  await dialog.getByLabel('Evaluation budget').fill('900');
+  await dialog.getByRole('button', { name: 'Run again' }).click();
+  await expect(page.getByTestId('locate-verdict')).toBeVisible({ timeout: 200_000 });
+  await expect(page.getByTestId('locate-verdict')).toContainText(/SSIM \d\.\d{3}, mean ΔE00 \d+\.\d{2}/);
+  await expect(dialog.getByRole('img', { name: 'Reference' })).toBeVisible();
+  await expect(dialog.getByRole('img', { name: 'Match' })).toBeVisible();
+  await expect(dialog.getByRole('img', { name: /Difference/ })).toBeVisible();
+  await page.screenshot({ path: join(shots, 'locate-result.png') });
+
+  // Pin, and the workbench shows the reference in place of a seed.
+  await expect(dialog.getByLabel('Reference name')).toHaveValue('hero_crest');
+  await dialog.getByRole('button', { name: 'Pin as reference' }).click();
+  await expect(page.getByRole('dialog')).toHaveCount(0);
+  await expect(page.getByTestId('current-reference')).toHaveText('hero_crest');
+  await expect(page.getByRole('option', { name: /hero_crest/ })).toHaveAttribute('aria-selected', 'true');
+  expect(readdirSync(join(projectDir, 'references')).sort()).toEqual(['hero_crest.json', 'hero_crest.npy']);
+
+  // Move a slider: the preview repaints from the reference's latent.
+  const canvas = page.getByTestId('preview');
+  const before = Number(await canvas.getAttribute('data-paints'));
+  await page.getByRole('slider', { name: 'turn' }).fill('1.5');
+  await expect.poll(async () => Number(await canvas.getAttribute('data-paints')), { timeout: 20_000 }).toBeGreaterThan(before);
+  await expect(page.getByTestId('current-reference')).toHaveText('hero_crest');
+  await page.screenshot({ path: join(shots, 'locate-pinned-slider.png') });
+  expect(errors).toEqual([]);
+});
