@@ -15,6 +15,7 @@ import { Project } from '../engine/project.ts';
 import { parseSeeds } from './seeds.ts';
 import { driveJob } from './jobs.ts';
 import { parseRecipe, renderVariants, type VariantDirection } from '../engine/variants.ts';
+import { checkUse, useViolations } from '../core/signoff-rules.ts';
 import { EngineHost } from '../engine/host.ts';
 import type { CliContext } from './lab-commands.ts';
 
@@ -86,7 +87,8 @@ export function addPackCommands(program: Command, ctx: CliContext): void {
     .option('--set <name=strength>', 'a direction and its strength in σ; repeatable', (v: string, prev: string[]) => [...prev, v], [] as string[])
     .option('--psi <number>', 'truncation ψ (default: the generator card’s)')
     .option('--preview <name>', "re-render a direction's pack preview exactly, for comparison")
-    .option('--force', 'allow strengths outside the audited safe range (says so in the manifest)')
+    .option('--force', 'allow strengths outside the audited safe range (needs --reason; recorded in the manifest)')
+    .option('--reason <text>', 'why --force is needed; recorded in the manifest')
     .requiredOption('-o, --out <dir>', 'output folder')
     .action(async (o) => withPackErrors(async () => {
       const bytes = readFile(o.pack);
@@ -114,11 +116,18 @@ export function addPackCommands(program: Command, ctx: CliContext): void {
           if (!d) throw ctx.usage(`--set: the pack has no direction '${m[1]}'; it holds ${v.directions.map((x) => x.name).join(', ')}`);
           return { d, strength: Number(m[2]) };
         });
-        const outside = sets.filter(({ d, strength }) => strength < d.safeRange[0] || strength > d.safeRange[1]);
-        if (outside.length && !o.force) {
-          throw ctx.usage(`refusing strengths outside the audited safe range: ${outside.map(({ d, strength }) => `${d.name}=${strength} (safe ${d.safeRange[0]}…${d.safeRange[1]})`).join(', ')}; pass --force to render anyway (recorded in the manifest)`);
+        // The rules shared with variant sets and the app (app/core/signoff-rules.ts); a pack holds approved directions only.
+        let decision;
+        try {
+          decision = checkUse(
+            useViolations([{ label: 'apply', strengths: Object.fromEntries(sets.map(({ d, strength }) => [d.name, strength])) }], v.directions.map((d) => ({ name: d.name, status: 'approved' as const, safeRange: d.safeRange }))),
+            o.force ? { reason: o.reason ?? '' } : null,
+            'pass --force --reason "…" to render anyway (recorded in the manifest)',
+          );
+        } catch (err) {
+          throw ctx.usage((err as Error).message);
         }
-        if (outside.length) process.stderr.write(`warning: forced outside the safe range: ${outside.map(({ d, strength }) => `${d.name}=${strength}`).join(', ')}\n`);
+        if (decision.forced.length) process.stderr.write(`warning: forced outside the safe range: ${decision.forced.map((f) => `${f.direction}=${f.strength}`).join(', ')} (reason: ${decision.reason})\n`);
         const psi = o.psi === undefined ? gen.info.defaultPsi : Number(o.psi);
         const images = [];
         for (let at = 0; at < seeds.length; at += gen.batchSize) {
@@ -135,7 +144,7 @@ export function addPackCommands(program: Command, ctx: CliContext): void {
         }
         writeFileAtomic(join(out, 'manifest.json'), JSON.stringify({
           format: 'plumbline.applied', version: 1, createdAt: new Date().toISOString(), pack: v.pack.manifest.project,
-          generator: v.pack.manifest.generator, psi, settings: sets.map(({ d, strength }) => ({ direction: d.name, strength, safeRange: d.safeRange, forced: strength < d.safeRange[0] || strength > d.safeRange[1] })), images,
+          generator: v.pack.manifest.generator, psi, settings: sets.map(({ d, strength }) => ({ direction: d.name, strength, safeRange: d.safeRange, forced: strength < d.safeRange[0] || strength > d.safeRange[1] })), forceReason: decision.reason, images,
         }, null, 2) + '\n');
         process.stdout.write(`wrote ${images.length} image(s) and manifest.json to ${out}\n`);
       } finally {
@@ -150,7 +159,8 @@ export function addPackCommands(program: Command, ctx: CliContext): void {
     .requiredOption('--recipe <file>', 'variant recipe (.json, docs/variant-recipe.md)')
     .option('-d, --directions <file>', 'directions (.npy with .json sidecar)')
     .option('--pack <file>', 'a preset pack instead of --directions (its safe ranges are enforced)')
-    .option('--force', 'allow strengths outside a pack’s safe range')
+    .option('--force', 'allow strengths outside a pack’s safe range (needs --reason; recorded in the manifest)')
+    .option('--reason <text>', 'why --force is needed; recorded in the manifest')
     .requiredOption('-o, --out <dir>', 'output folder; rerun the same command to resume')
     .action(async (o) => withPackErrors(async () => {
       if (!o.directions === !o.pack) throw ctx.usage('give exactly one of --directions or --pack');
@@ -162,9 +172,9 @@ export function addPackCommands(program: Command, ctx: CliContext): void {
       try {
         const gen = host.generator!;
         let dirs: VariantDirection[];
-        if (o.pack) dirs = (await verifyPack(readFile(o.pack), resolve(o.pack), gen)).directions;
+        if (o.pack) dirs = (await verifyPack(readFile(o.pack), resolve(o.pack), gen)).directions.map((d) => ({ ...d, status: 'approved' as const }));
         else dirs = host.openDirections(resolve(o.directions)).directions.map((d) => host.direction(d.id));
-        const job = renderVariants(gen, recipe, dirs, resolve(o.out), { force: o.force });
+        const job = renderVariants(gen, recipe, dirs, resolve(o.out), { force: o.force ? { reason: o.reason ?? '' } : null });
         const done = await driveJob(job, ctx, 'variants', 'stopped; run the same command again to resume');
         if (done) process.stdout.write(`${recipe.name}: ${done.rendered} rendered, ${done.reused} kept from an earlier run; manifest.json and contact-sheet.png in ${resolve(o.out)}\n`);
       } finally {

@@ -19,7 +19,8 @@ import { Generator } from './generator.ts';
 import { defaultThreads } from './sessions.ts';
 import { runAudit } from './audit.ts';
 import { discoverByTags, discoverPca, discoverSefa, fitBoundary, repairDirection, type LabDirection } from './lab.ts';
-import { Project, vectorHash } from './project.ts';
+import { Project, directionUses, mergedAuditHistory, releaseLock, vectorHash } from './project.ts';
+import { checkUse, useViolations } from '../core/signoff-rules.ts';
 import { buildPack, verifyPack } from './pack-ops.ts';
 import { renderVariants } from './variants.ts';
 import { PackError } from '../core/pack.ts';
@@ -206,6 +207,20 @@ export class EngineHost {
         if (!this.#project) throw new PlumblineError('bad-request', 'no project is open');
         return { savedAt: this.#project.saveUi(req.params as Params<'project.saveUi'>) };
       }
+      case 'project.lock': {
+        const p = req.params as Params<'project.lock'>;
+        if (!this.#project) throw new PlumblineError('bad-request', 'no project is open');
+        if (p.release) {
+          releaseLock(this.#project.dir, p.session);
+          return { readOnly: true, lockHolder: null };
+        }
+        const r = this.#project.lock(p.session);
+        return { readOnly: r.readOnly, lockHolder: r.holder };
+      }
+      case 'audit.history': {
+        if (!this.#project) return { report: null, thumbnails: [], files: [] };
+        return mergedAuditHistory(this.#project, [...this.#directions.values()].filter((d) => d.kept).map((d) => d.name));
+      }
       case 'pack.build': {
         if (!this.#project) throw new PlumblineError('bad-request', 'building a pack needs an open project');
         const out = resolve((req.params as Params<'pack.build'>).out);
@@ -237,8 +252,7 @@ export class EngineHost {
         if (!this.#project) throw new PlumblineError('bad-request', 'sign-off needs an open project (its review log keeps the history)');
         const d = this.direction(p.direction);
         if (!d.kept) throw new PlumblineError('bad-request', `'${d.name}' is a candidate; keep it before signing it off`);
-        this.#project.appendReview({ at: new Date().toISOString(), direction: d.name, vectorHash: vectorHash(d.vector, d.layers), status: p.status, reviewer: p.reviewer, note: p.note });
-        return { direction: d.id, signOff: this.#project.signOff(d.name, vectorHash(d.vector, d.layers)) };
+        return { direction: d.id, signOff: this.#project.review(d.name, vectorHash(d.vector, d.layers), p) };
       }
       default:
         throw new PlumblineError('bad-request', `unhandled method ${req.method}`);
@@ -299,7 +313,10 @@ export class EngineHost {
 
   #openProject(p: Params<'project.open'>): Result<'project.open'> {
     const gen = this.#requireGenerator();
-    const project = Project.open(p.path, p.create, { name: gen.info.name, fingerprint: gen.info.fingerprint });
+    const opened = Project.open(p.path, p.create, { name: gen.info.name, fingerprint: gen.info.fingerprint });
+    const lock = p.session ? opened.lock(p.session) : null;
+    // A second tab of this same engine on a project it already holds keeps the writable instance.
+    const project = lock?.readOnly && this.#project?.dir === opened.dir ? this.#project : opened;
     this.#project = project;
     const created = p.create && project.doc.directions.length === 0;
     if (created) {
@@ -318,6 +335,8 @@ export class EngineHost {
       directions: [...this.#directions.values()].filter((d) => d.kept).map((d) => this.#info(d)),
       audits: project.audits(),
       ui: project.doc.ui,
+      readOnly: lock?.readOnly ?? false,
+      lockHolder: lock?.holder ?? null,
     };
   }
 
@@ -402,7 +421,7 @@ export class EngineHost {
       const step = await job.next();
       if (step.done) {
         const report = step.value;
-        const savedAs = this.#project ? this.#project.saveAudit(report) : null;
+        const savedAs = this.#project && !this.#project.readOnly ? this.#project.saveAudit(report, Object.fromEntries(dirs.map((d) => [d.name, vectorHash(d.vector, d.layers)]))) : null;
         const thumbnails = report.directions.flatMap((d) => d.worstProbes.map((w) => ({ direction: d.name, seed: w.seed, strength: w.strength, attribute: w.attribute, leakage: w.leakage, before: fromDataUri(w.before), after: fromDataUri(w.after) })));
         const wire = { ...report, directions: report.directions.map((d) => ({ ...d, worstProbes: d.worstProbes.map(({ before: _b, after: _a, ...rest }) => rest) })) };
         return { cancelled: false, report: wire as never, thumbnails, savedAs };
@@ -420,7 +439,9 @@ export class EngineHost {
     const used = [...new Set(p.settings.flatMap((s) => Object.keys(s.strengths)))].map((id) => this.direction(id));
     const recipe = { format: 'plumbline.variant-recipe' as const, version: 1 as const, name: p.name, seeds: p.seeds, psi: p.psi, settings: p.settings.map((s) => ({ label: s.label, strengths: Object.fromEntries(Object.entries(s.strengths).map(([id, v]) => [this.direction(id).name, v])) })) };
     const out = resolve(p.out);
-    const job = renderVariants(gen, recipe, used, out);
+    // The same rules as the CLI: unapproved, rejected or out-of-range settings need a written reason.
+    const forced = checkUse(useViolations(recipe.settings, directionUses(this.#project, used)), p.forceReason?.trim() ? { reason: p.forceReason } : null, 'render anyway only with a written reason (Force with a reason)');
+    const job = renderVariants(gen, recipe, used, out, { forced });
     for (;;) {
       if (this.#running?.cancelled) {
         await job.return(undefined as never);

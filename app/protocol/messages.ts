@@ -18,6 +18,26 @@ const seed = z.number().int().min(0).max(0xffffffff);
 const psi = z.number().min(0).max(2);
 const strength = z.number().finite().min(-50).max(50);
 
+/** Random probe latents an audit accepts; with pinned seeds the set must still hold at least 2 (an interval needs 2). */
+export const PROBE_LIMITS = { min: 0, max: 100_000, minTotal: 2 } as const;
+/** Per-tab session id: names the holder of a project's lock (kept in sessionStorage, so a reload keeps it). */
+const session = z.string().regex(/^[A-Za-z0-9_-]{8,64}$/);
+/** A written reason for an override or a forced render (the rule module sets the minimum length). */
+const reason = z.string().max(4000);
+/** Variant-set settings as the studio keeps them in the project (strengths by direction name). */
+export const variantDraftSchema = z.object({
+  name: z.string().max(80),
+  seeds: z.string().max(400),
+  out: z.string().max(4096),
+  settings: z.array(z.object({ label: z.string().max(60), strengths: z.record(z.string(), strength) })).max(200),
+});
+export type VariantDraft = z.infer<typeof variantDraftSchema>;
+const uiState = z.object({
+  seed, psi, strengths: z.record(z.string(), strength), pinned: z.array(seed).max(10_000), tags: z.record(z.string(), z.enum(['has', 'lacks'])),
+  variants: variantDraftSchema.optional(),
+  auditProbes: z.number().int().min(PROBE_LIMITS.min).max(PROBE_LIMITS.max).optional(),
+});
+
 export const editSchema = z.object({ direction: z.string().min(1), strength });
 export type Edit = z.infer<typeof editSchema>;
 
@@ -48,7 +68,7 @@ export const requestSchemas = {
   'directions.keep': z.object({ id: z.string().min(1), name: z.string().min(1).max(120).regex(/^[A-Za-z0-9_.-]+$/, 'letters, digits, _ . - only') }),
   'audit.run': z.object({
     directions: z.array(z.string().min(1)).min(1).max(64),
-    probes: z.number().int().min(0).max(100_000).default(64),
+    probes: z.number().int().min(PROBE_LIMITS.min).max(PROBE_LIMITS.max).default(64),
     pinnedSeeds: z.array(seed).max(10_000).default([]),
     psi: psi.default(0.7),
     seed: z.number().int().min(0).max(0xffffffff).default(1),
@@ -58,8 +78,12 @@ export const requestSchemas = {
     combinations: z.enum(['all', 'none']).default('all'),
   }),
   'lab.repair': z.object({ direction: z.string().min(1), against: z.array(z.string().min(1)).min(1).max(32), hold: z.union([z.literal('others'), z.array(z.string())]).default([]) }),
-  'project.open': z.object({ path: z.string().min(1), create: z.boolean().default(false) }),
-  'project.saveUi': z.object({ seed, psi, strengths: z.record(z.string(), strength), pinned: z.array(seed).max(10_000), tags: z.record(z.string(), z.enum(['has', 'lacks'])) }),
+  'project.open': z.object({ path: z.string().min(1), create: z.boolean().default(false), session: session.optional() }),
+  'project.saveUi': uiState,
+  /** Renews (or, once free, takes) this session's lock on the open project; releases it with release. */
+  'project.lock': z.object({ session, release: z.boolean().default(false) }),
+  /** Every stored audit of the open project merged: the newest result per direction, with history. */
+  'audit.history': z.object({}),
   'pack.build': z.object({ out: z.string().min(1) }),
   'variants.render': z.object({
     name: z.string().regex(/^[A-Za-z0-9_.-]{1,80}$/, 'letters, digits, _ . - only'),
@@ -68,9 +92,11 @@ export const requestSchemas = {
     /** Strengths keyed by direction id. */
     settings: z.array(z.object({ label: z.string().regex(/^[A-Za-z0-9_.=+-]{1,60}$/, 'letters, digits and _ . = + - only'), strengths: z.record(z.string(), strength) })).min(1).max(200),
     out: z.string().min(1),
+    /** Forces settings the use rules refuse (unapproved, rejected, outside the safe range); recorded in the manifest. */
+    forceReason: reason.optional(),
   }),
   'pack.import': z.object({ path: z.string().min(1) }),
-  'project.review': z.object({ direction: z.string().min(1), status: z.enum(['draft', 'in-review', 'approved', 'rejected']), reviewer: z.string().min(1).max(120), note: z.string().max(4000).default('') }),
+  'project.review': z.object({ direction: z.string().min(1), status: z.enum(['draft', 'in-review', 'approved', 'rejected']), reviewer: z.string().min(1).max(120), note: z.string().max(4000).default(''), override: reason.optional() }),
 } as const;
 export type Method = keyof typeof requestSchemas;
 export type Params<M extends Method> = z.infer<(typeof requestSchemas)[M]>;
@@ -97,6 +123,7 @@ export const modelInfoSchema = z.object({
 });
 export type ModelInfo = z.infer<typeof modelInfoSchema>;
 
+export type ReviewStatusName = 'draft' | 'in-review' | 'approved' | 'rejected';
 export const reviewEntrySchema = z.object({
   at: z.string(),
   direction: z.string(),
@@ -104,6 +131,10 @@ export const reviewEntrySchema = z.object({
   status: z.enum(['draft', 'in-review', 'approved', 'rejected']),
   reviewer: z.string(),
   note: z.string(),
+  /** Present when the step broke a sign-off rule on purpose: the written reason. */
+  override: z.string().optional(),
+  /** What the approval gate said at the time of an override (e.g. "its last audit failed: …"). */
+  gate: z.string().optional(),
 });
 export type ReviewEntry = z.infer<typeof reviewEntrySchema>;
 
@@ -112,6 +143,12 @@ export const signOffSchema = z.object({
   /** True when the last approval was for a different vector: the direction changed since. */
   approvalReset: z.boolean(),
   history: z.array(reviewEntrySchema),
+  /** The approval gate from app/core/signoff-rules.ts: may it be approved plainly, and why not. */
+  gate: z.object({ state: z.enum(['passing', 'failed', 'needs-review', 'too-few-probes', 'stale', 'unaudited']), explanation: z.string() }).optional(),
+  /** Each status and whether this direction may move there now: yes, only with an override, or no. */
+  transitions: z.array(z.object({ to: z.enum(['draft', 'in-review', 'approved', 'rejected']), allowed: z.enum(['yes', 'override', 'no']), why: z.string() })).optional(),
+  /** Every stored audit of this direction, newest first; current = of its present vector. */
+  audits: z.array(z.object({ at: z.string(), file: z.string(), verdict: z.enum(['pass', 'review', 'fail']), reason: z.string(), probes: z.number(), current: z.boolean() })).optional(),
 });
 export type SignOff = z.infer<typeof signOffSchema>;
 
@@ -165,6 +202,11 @@ export const auditWireSchema = z.object({
 }).passthrough();
 export type AuditWire = z.infer<typeof auditWireSchema>;
 
+const thumbnailSchema = z.object({ direction: z.string(), seed, strength: z.number(), attribute: z.string(), leakage: z.number(), before: bytes, after: bytes });
+/** Who holds a project's lock: process, machine, session and when it last renewed. */
+export const lockHolderSchema = z.object({ pid: z.number().int(), host: z.string(), session: z.string(), at: z.string() });
+export type LockHolder = z.infer<typeof lockHolderSchema>;
+
 export const resultSchemas = {
   'engine.hello': z.object({ protocol: z.number(), engine: z.string(), threads: z.number(), model: modelInfoSchema.nullable() }),
   'model.openDemo': modelInfoSchema,
@@ -187,11 +229,18 @@ export const resultSchemas = {
   'directions.keep': directionInfoSchema,
   'audit.run': z.union([
     z.object({ cancelled: z.literal(true) }),
-    z.object({ cancelled: z.literal(false), report: auditWireSchema, thumbnails: z.array(z.object({ direction: z.string(), seed, strength: z.number(), attribute: z.string(), leakage: z.number(), before: bytes, after: bytes })), savedAs: z.string().nullable() }),
+    z.object({ cancelled: z.literal(false), report: auditWireSchema, thumbnails: z.array(thumbnailSchema), savedAs: z.string().nullable() }),
   ]),
   'lab.repair': z.union([z.object({ cancelled: z.literal(true) }), z.object({ cancelled: z.literal(false), direction: directionInfoSchema, boundaries: z.array(z.object({ attribute: z.string(), accuracy: z.number(), role: z.string() })) })]),
-  'project.open': z.object({ path: z.string(), name: z.string(), generatorFingerprint: z.string().nullable(), generatorMatches: z.boolean(), directions: z.array(directionInfoSchema), audits: z.array(z.string()), ui: z.object({ seed, psi, strengths: z.record(z.string(), z.number()), pinned: z.array(seed), tags: z.record(z.string(), z.enum(['has', 'lacks'])) }).nullable() }),
+  'project.open': z.object({
+    path: z.string(), name: z.string(), generatorFingerprint: z.string().nullable(), generatorMatches: z.boolean(), directions: z.array(directionInfoSchema), audits: z.array(z.string()), ui: uiState.nullable(),
+    /** True when another window or tab holds the project's lock: this one may look but not write. */
+    readOnly: z.boolean().default(false),
+    lockHolder: lockHolderSchema.nullable().default(null),
+  }),
   'project.saveUi': z.object({ savedAt: z.string() }),
+  'project.lock': z.object({ readOnly: z.boolean(), lockHolder: lockHolderSchema.nullable() }),
+  'audit.history': z.object({ report: auditWireSchema.nullable(), thumbnails: z.array(thumbnailSchema), files: z.array(z.string()) }),
   'project.review': z.object({ direction: z.string(), signOff: signOffSchema }),
   'variants.render': z.union([z.object({ cancelled: z.literal(true) }), z.object({ cancelled: z.literal(false), out: z.string(), rendered: z.number(), reused: z.number(), contactSheet: bytes })]),
   'pack.build': z.object({ file: z.string(), directions: z.array(z.string()), skipped: z.array(z.string()), bytes: z.number() }),
