@@ -168,12 +168,16 @@ export async function startWebShell(options: WebShellOptions = {}): Promise<WebS
       if (child) send(client, event('engine.ready', { engine: 'plumbline-engine', restarted: false }));
       ws.on('message', (data, isBinary) => {
         let m: Message;
+        let raw: unknown = null;
         try {
           if (!isBinary) throw new Error('text frames are not accepted; send binary protocol frames');
           const buf = Array.isArray(data) ? Buffer.concat(data) : Buffer.from(data as ArrayBuffer);
-          m = parseMessage(decodeFrame(new Uint8Array(buf.buffer, buf.byteOffset, buf.byteLength)));
+          raw = decodeFrame(new Uint8Array(buf.buffer, buf.byteOffset, buf.byteLength));
+          m = parseMessage(raw);
         } catch (err) {
-          send(client, { v: PROTOCOL_VERSION, type: 'response', id: -1, ok: false, error: { code: 'protocol', message: (err as Error).message } } as ResponseMessage);
+          // Answer under the request's own id when it has one, so the caller's wait ends with the error.
+          const id = typeof (raw as { id?: unknown } | null)?.id === 'number' ? (raw as { id: number }).id : -1;
+          send(client, { v: PROTOCOL_VERSION, type: 'response', id, ok: false, error: { code: 'protocol', message: (err as Error).message } } as ResponseMessage);
           return;
         }
         if (m.type !== 'request') return;

@@ -1,7 +1,7 @@
 // State and intents of the lab screens: project, discovery, audit, repair and sign-off. Works
 // through the same engine client as the workbench (Studio) and keeps Studio's direction list
 // in step with the engine's.
-import type { AuditWire, DirectionInfo, Params, Result, WireImage } from '../../../app/protocol/messages.ts';
+import { PROBE_LIMITS, type AuditWire, type DirectionInfo, type LockHolder, type Params, type Result, type VariantDraft, type WireImage } from '../../../app/protocol/messages.ts';
 import { EngineRequestError } from './engine.ts';
 import type { Studio } from './studio.svelte.ts';
 
@@ -24,6 +24,47 @@ function readRecent(): string[] {
   }
 }
 const REVIEWER_KEY = 'plumbline.reviewer';
+const SESSION_KEY = 'plumbline.session';
+/** How often an open project's lock is renewed; the engine treats one silent for 90 s as stale. */
+const LOCK_RENEW_MS = 20_000;
+
+/** This tab's session id: sessionStorage keeps it across a reload of the tab, a new tab gets its own. */
+function sessionId(): string {
+  const store = globalThis.sessionStorage;
+  let id = store?.getItem(SESSION_KEY);
+  if (!id || !/^[A-Za-z0-9_-]{8,64}$/.test(id)) {
+    id = Array.from(globalThis.crypto.getRandomValues(new Uint8Array(12)), (b) => b.toString(16).padStart(2, '0')).join('');
+    store?.setItem(SESSION_KEY, id);
+  }
+  return id;
+}
+
+/** The message for a probe count, or null when it is acceptable (same limits as the engine's schema). */
+export function probesProblem(value: unknown, pinned: number): string | null {
+  if (typeof value !== 'number' || !Number.isFinite(value)) return 'Enter a whole number of probes.';
+  if (!Number.isInteger(value)) return 'Probes must be a whole number.';
+  if (value < PROBE_LIMITS.min) return `Probes cannot be negative (0–${PROBE_LIMITS.max.toLocaleString()}).`;
+  if (value > PROBE_LIMITS.max) return `At most ${PROBE_LIMITS.max.toLocaleString()} probes.`;
+  if (value + pinned < PROBE_LIMITS.minTotal) return `An audit needs at least ${PROBE_LIMITS.minTotal} probes in all (random plus ${pinned} pinned).`;
+  return null;
+}
+
+/** The message for a whole number field with inclusive limits, or null. */
+export function wholeProblem(value: unknown, min: number, max: number, what: string): string | null {
+  if (typeof value !== 'number' || !Number.isFinite(value) || !Number.isInteger(value)) return `${what}: enter a whole number from ${min} to ${max}.`;
+  if (value < min || value > max) return `${what} must be from ${min} to ${max}.`;
+  return null;
+}
+
+/** The message for a seed list like "0-7,12", or null. */
+export function seedListProblem(text: string): string | null {
+  try {
+    parseSeedList(text);
+    return null;
+  } catch (err) {
+    return (err as Error).message;
+  }
+}
 
 export class Lab {
   view = $state<View>('workbench');
@@ -31,6 +72,11 @@ export class Lab {
   reviewer = $state(globalThis.localStorage?.getItem(REVIEWER_KEY) ?? '');
   /** Recently opened project folders, newest first. */
   recent = $state<string[]>(readRecent());
+  /** Another window or tab holds this project's lock: look, do not write. */
+  readOnly = $state(false);
+  lockHolder = $state.raw<LockHolder | null>(null);
+  readonly session = sessionId();
+  #lockTimer: ReturnType<typeof setInterval> | null = null;
 
   method = $state<Params<'lab.discover'>['method']>('sefa');
   components = $state(6);
@@ -40,7 +86,11 @@ export class Lab {
   discovering = $state(false);
 
   auditSelection = $state<string[]>([]);
-  probes = $state(64);
+  probes = $state<number>(64);
+  /** Candidates waiting for "discard all" to be confirmed. */
+  confirmingDiscard = $state(false);
+  /** Audit history files of the project (every audit is kept). */
+  auditFiles = $state.raw<string[]>([]);
   auditProgress = $state<{ done: number; total: number; label: string } | null>(null);
   report = $state.raw<AuditWire | null>(null);
   previousReport = $state.raw<AuditWire | null>(null);
@@ -56,6 +106,9 @@ export class Lab {
   contactSheet = $state<string | null>(null);
   variantSummary = $state<string | null>(null);
   #variantRequest = 0;
+  /** The engine's refusal of the last variant render (shown beside the button), and a reason to force it. */
+  variantError = $state<string | null>(null);
+  forceReason = $state('');
 
   repairAgainst = $state<string[]>([]);
   holdOthers = $state(true);
@@ -87,20 +140,90 @@ export class Lab {
     this.studio.strengths = Object.fromEntries(dirs.map((d) => [d.id, this.studio.strengths[d.id] ?? 0]));
   }
 
-  async openProject(path: string, create: boolean): Promise<void> {
+  async openProject(path: string, create: boolean): Promise<boolean> {
     const ok = await this.#guard(create ? `Creating project ${path}` : `Opening project ${path}`, async () => {
-      const p = await this.engine.request('project.open', { path, create });
+      const p = await this.engine.request('project.open', { path, create, session: this.session });
       this.project = p;
+      this.readOnly = p.readOnly;
+      this.lockHolder = p.lockHolder;
       globalThis.localStorage?.setItem(LAST_PROJECT_KEY, path);
       this.recent = [path, ...this.recent.filter((r) => r !== path)].slice(0, RECENT_LIMIT);
       globalThis.localStorage?.setItem(RECENT_KEY, JSON.stringify(this.recent));
-      this.studio.onAutosave = (ui) => this.engine.request('project.saveUi', ui).then((r) => r.savedAt);
-      this.studio.onRecover = () => this.openProject(path, false);
+      // A read-only window saves nothing: the holder's autosave is the one that counts.
+      this.studio.onAutosave = p.readOnly ? null : (ui) => this.engine.request('project.saveUi', { ...ui, variants: this.variantDraft(), auditProbes: this.probesProblem ? undefined : this.probes }).then((r) => r.savedAt);
+      this.studio.onRecover = () => this.openProject(path, false).then(() => undefined);
       await this.refreshDirections(p.directions);
-      if (p.ui) this.studio.restoreUi(p.ui);
-      if (!p.generatorMatches) this.studio.banner = { kind: 'warning', text: `This project was made with another generator (fingerprint ${p.generatorFingerprint?.slice(0, 12)}…). Its directions and sign-offs may not hold for ${this.studio.model?.name}.` };
+      if (p.ui) {
+        this.studio.restoreUi(p.ui);
+        if (p.ui.variants) this.#restoreVariants(p.ui.variants);
+        if (p.ui.auditProbes !== undefined) this.probes = p.ui.auditProbes;
+      }
+      await this.loadAuditHistory();
+      this.#keepLock();
+      if (p.readOnly) {
+        const h = p.lockHolder;
+        this.studio.banner = { kind: 'warning', text: `Opened read-only: another window has this project open${h ? ` (process ${h.pid} on ${h.host}, active ${new Date(h.at).toLocaleString()})` : ''}. You can look around; changes are not saved here.` };
+      } else if (!p.generatorMatches) this.studio.banner = { kind: 'warning', text: `This project was made with another generator (fingerprint ${p.generatorFingerprint?.slice(0, 12)}…). Its directions and sign-offs may not hold for ${this.studio.model?.name}.` };
     });
     if (ok) await Promise.all([this.studio.refreshGrid(), this.studio.requestPreview()]);
+    return ok;
+  }
+
+  /** Renews this tab's lock while it holds one; releases it when the page goes away. */
+  #keepLock(): void {
+    if (this.#lockTimer) clearInterval(this.#lockTimer);
+    this.#lockTimer = null;
+    if (this.readOnly) return;
+    this.#lockTimer = setInterval(() => void this.engine.request('project.lock', { session: this.session, release: false }).catch(() => undefined), LOCK_RENEW_MS);
+  }
+
+  /** Called on pagehide: lets another window take the project at once. */
+  releaseLock(): void {
+    if (this.project && !this.readOnly) void this.engine.request('project.lock', { session: this.session, release: true }).catch(() => undefined);
+  }
+
+  /** Every stored audit of the project, merged: the newest result of each direction. */
+  async loadAuditHistory(): Promise<void> {
+    const h = await this.engine.request('audit.history', {});
+    this.auditFiles = h.files;
+    if (!h.report) return;
+    if (this.report) this.previousReport = this.report;
+    this.report = h.report;
+    this.thumbnails = h.thumbnails;
+    if (!this.focus || !h.report.directions.some((d) => d.name === this.focus)) this.focus = h.report.directions.find((d) => d.verdict !== 'pass')?.name ?? h.report.directions[0]?.name ?? null;
+  }
+
+  get probesProblem(): string | null {
+    return probesProblem(this.probes, this.studio.pinned.length);
+  }
+
+  get componentsProblem(): string | null {
+    return wholeProblem(this.components, 1, 64, 'Components');
+  }
+
+  get variantSeedsProblem(): string | null {
+    return seedListProblem(this.variantSeeds);
+  }
+
+  get variantNameProblem(): string | null {
+    return /^[A-Za-z0-9_.-]{1,80}$/.test(this.variantName) ? null : 'Name: 1–80 letters, digits, _ . or - (it names the folder).';
+  }
+
+  /** Variant-set settings as stored in the project: strengths by direction name. */
+  variantDraft(): VariantDraft {
+    const nameOf = Object.fromEntries(this.studio.directions.map((d) => [d.id, d.name]));
+    return {
+      name: this.variantName.slice(0, 80), seeds: this.variantSeeds.slice(0, 400), out: this.variantOut.slice(0, 4096),
+      settings: this.variantSettings.map((s) => ({ label: s.label, strengths: Object.fromEntries(Object.entries(s.strengths).filter(([id]) => nameOf[id]).map(([id, v]) => [nameOf[id], v])) })),
+    };
+  }
+
+  #restoreVariants(v: VariantDraft): void {
+    const idOf = Object.fromEntries(this.studio.directions.map((d) => [d.name, d.id]));
+    this.variantName = v.name || this.variantName;
+    this.variantSeeds = v.seeds || this.variantSeeds;
+    this.variantOut = v.out;
+    if (v.settings.length) this.variantSettings = v.settings.map((s) => ({ label: s.label, strengths: Object.fromEntries(Object.entries(s.strengths).filter(([n]) => idOf[n]).map(([n, x]) => [idOf[n], x])) }));
   }
 
   /** Reopens the last project after a reload or a crash. */
@@ -110,6 +233,7 @@ export class Lab {
   }
 
   async discover(): Promise<void> {
+    if (this.method !== 'boundary' && this.method !== 'means' && this.componentsProblem) return;
     this.discovering = true;
     await this.#guard(`Discovering (${this.method})`, async () => {
       const tags = Object.entries(this.studio.tags);
@@ -126,7 +250,8 @@ export class Lab {
         stripSeeds: [this.studio.seed, this.studio.seed + 1, this.studio.seed + 2],
         stripStrengths: [-3, -1.5, 0, 1.5, 3],
       });
-      if (!r.cancelled) this.candidates = r.candidates;
+      // New candidates join the unkept ones; nothing is thrown away without being asked.
+      if (!r.cancelled) this.candidates = [...this.candidates.filter((c) => !r.candidates.some((n) => n.direction.id === c.direction.id)), ...r.candidates];
     });
     this.discovering = false;
   }
@@ -139,8 +264,22 @@ export class Lab {
     });
   }
 
+  /** Discards one candidate (its strip and vector are dropped from this session). */
+  discardCandidate(id: string): void {
+    this.candidates = this.candidates.filter((c) => c.direction.id !== id);
+  }
+
+  discardAll(confirmed: boolean): void {
+    if (!confirmed) {
+      this.confirmingDiscard = true;
+      return;
+    }
+    this.candidates = [];
+    this.confirmingDiscard = false;
+  }
+
   async runAudit(ids = this.auditSelection): Promise<void> {
-    if (ids.length === 0) return;
+    if (ids.length === 0 || this.probesProblem) return;
     this.auditProgress = { done: 0, total: 1, label: 'starting' };
     await this.#guard('Auditing', async () => {
       const pending = this.engine.request(
@@ -154,16 +293,26 @@ export class Lab {
         this.studio.banner = { kind: 'info', text: 'Audit cancelled.' };
         return;
       }
-      if (this.report) this.previousReport = this.report;
-      this.report = r.report;
-      this.thumbnails = r.thumbnails;
-      this.focus = r.report.directions.find((d) => d.verdict !== 'pass')?.name ?? r.report.directions[0]?.name ?? null;
+      if (r.savedAs && this.project) {
+        // Stored in the project: show every direction's newest result, not only this audit's.
+        await this.loadAuditHistory();
+        this.focus = r.report.directions.find((d) => d.verdict !== 'pass')?.name ?? r.report.directions[0]?.name ?? null;
+      } else {
+        if (this.report) this.previousReport = this.report;
+        this.report = mergeReports(this.report, r.report);
+        this.thumbnails = [...this.thumbnails.filter((t) => !r.report.directions.some((d) => d.name === t.direction)), ...r.thumbnails];
+        this.focus = r.report.directions.find((d) => d.verdict !== 'pass')?.name ?? r.report.directions[0]?.name ?? null;
+      }
+      await this.refreshDirections();
     });
+    this.#auditRequest = 0;
     this.auditProgress = null;
   }
 
-  async cancelAudit(): Promise<void> {
-    if (this.#auditRequest) await this.engine.request('job.cancel', { jobId: this.#auditRequest });
+  /** Ends the wait at once, whatever the engine does with the cancel. */
+  cancelAudit(): void {
+    if (this.#auditRequest > 0) this.engine.cancel(this.#auditRequest);
+    this.auditProgress = null;
   }
 
   async repair(directionName: string): Promise<void> {
@@ -181,14 +330,15 @@ export class Lab {
     if (this.auditSelection.length === 2) await this.runAudit();
   }
 
-  async review(direction: DirectionInfo, status: Status, note: string): Promise<void> {
+  /** Records a sign-off step; `override` is the written reason when the audits do not support it. */
+  async review(direction: DirectionInfo, status: Status, note: string, override?: string): Promise<boolean> {
     if (!this.reviewer.trim()) {
       this.studio.banner = { kind: 'warning', text: 'Enter your name as reviewer first; the review log records who signed off.' };
-      return;
+      return false;
     }
     globalThis.localStorage?.setItem(REVIEWER_KEY, this.reviewer.trim());
-    await this.#guard(`Recording ${status} for ${direction.name}`, async () => {
-      const r = await this.engine.request('project.review', { direction: direction.id, status, reviewer: this.reviewer.trim(), note });
+    return this.#guard(`Recording ${status} for ${direction.name}`, async () => {
+      const r = await this.engine.request('project.review', { direction: direction.id, status, reviewer: this.reviewer.trim(), note, ...(override?.trim() ? { override: override.trim() } : {}) });
       this.studio.directions = this.studio.directions.map((d) => (d.id === direction.id ? { ...d, signOff: r.signOff } : d));
     });
   }
@@ -198,23 +348,25 @@ export class Lab {
     const strengths = Object.fromEntries(Object.entries(this.studio.strengths).filter(([, v]) => v !== 0));
     const clean = label.replace(/[^A-Za-z0-9_.=+-]/g, '_').slice(0, 60) || `setting_${this.variantSettings.length}`;
     this.variantSettings = [...this.variantSettings.filter((s) => s.label !== clean), { label: clean, strengths }];
+    this.variantError = null;
+    this.studio.scheduleSave();
   }
 
   removeSetting(label: string): void {
     this.variantSettings = this.variantSettings.filter((s) => s.label !== label);
+    this.variantError = null;
+    this.studio.scheduleSave();
   }
 
-  async renderVariants(): Promise<void> {
-    let seeds: number[];
-    try {
-      seeds = parseSeedList(this.variantSeeds);
-    } catch (err) {
-      this.studio.banner = { kind: 'error', text: (err as Error).message };
-      return;
-    }
+  async renderVariants(force = false): Promise<void> {
+    if (this.variantSeedsProblem || this.variantNameProblem) return;
+    const seeds = parseSeedList(this.variantSeeds);
+    this.studio.scheduleSave();
+    this.variantError = null;
     this.variantProgress = { done: 0, total: 1, label: 'starting' };
-    await this.#guard('Rendering the variant set', async () => {
-      const pending = this.engine.request('variants.render', { name: this.variantName, seeds, psi: this.studio.psi, settings: this.variantSettings, out: this.variantOut }, (done, total, label) => (this.variantProgress = { done, total, label }));
+    this.studio.busy = 'Rendering the variant set';
+    try {
+      const pending = this.engine.request('variants.render', { name: this.variantName, seeds, psi: this.studio.psi, settings: this.variantSettings, out: this.variantOut, ...(force ? { forceReason: this.forceReason } : {}) }, (done, total, label) => (this.variantProgress = { done, total, label }));
       this.#variantRequest = this.engine.lastRequestId;
       const r = await pending;
       if (r.cancelled) {
@@ -222,13 +374,20 @@ export class Lab {
         return;
       }
       this.contactSheet = this.thumbUrl(r.contactSheet);
-      this.variantSummary = `${r.rendered} rendered, ${r.reused} kept from an earlier run, in ${r.out}`;
-    });
-    this.variantProgress = null;
+      this.variantSummary = `${r.rendered} rendered, ${r.reused} kept from an earlier run, in ${r.out}${force ? ` (forced: ${this.forceReason})` : ''}`;
+    } catch (err) {
+      // Refusals by the use rules are shown beside the button, with the way to force them.
+      this.variantError = (err as Error).message;
+    } finally {
+      this.#variantRequest = 0;
+      this.variantProgress = null;
+      this.studio.busy = null;
+    }
   }
 
-  async cancelVariants(): Promise<void> {
-    if (this.#variantRequest) await this.engine.request('job.cancel', { jobId: this.#variantRequest });
+  cancelVariants(): void {
+    if (this.#variantRequest > 0) this.engine.cancel(this.#variantRequest);
+    this.variantProgress = null;
   }
 
   async buildPack(out: string): Promise<void> {
@@ -257,6 +416,14 @@ export class Lab {
   safeRange(name: string): [number, number] | null {
     return this.report?.directions.find((d) => d.name === name)?.safeRange ?? null;
   }
+}
+
+/** The newer report's directions replace the older's of the same name; the others stay. */
+export function mergeReports(older: AuditWire | null, newer: AuditWire): AuditWire {
+  if (!older) return newer;
+  const names = new Set(newer.directions.map((d) => d.name));
+  const attributes = [...newer.attributes, ...older.attributes.filter((a) => !newer.attributes.some((b) => b.name === a.name))];
+  return { ...newer, attributes, directions: [...older.directions.filter((d) => !names.has(d.name)), ...newer.directions] };
 }
 
 /** "0-7,12" → [0..7, 12]. */
