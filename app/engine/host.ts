@@ -21,6 +21,7 @@ import { runAudit } from './audit.ts';
 import { discoverByTags, discoverPca, discoverSefa, fitBoundary, repairDirection, type LabDirection } from './lab.ts';
 import { Project, directionUses, mergedAuditHistory, releaseLock, vectorHash } from './project.ts';
 import { checkUse, useViolations } from '../core/signoff-rules.ts';
+import { renderProbePairs } from './probe-images.ts';
 import { buildPack, verifyPack } from './pack-ops.ts';
 import { renderVariants } from './variants.ts';
 import { PackError } from '../core/pack.ts';
@@ -216,6 +217,10 @@ export class EngineHost {
         }
         const r = this.#project.lock(p.session);
         return { readOnly: r.readOnly, lockHolder: r.holder };
+      }
+      case 'lab.probeImages': {
+        const p = req.params as Params<'lab.probeImages'>;
+        return { images: await renderProbePairs(this.#requireGenerator(), this.direction(p.direction), p.seeds, p.strength, p.psi) };
       }
       case 'audit.history': {
         if (!this.#project) return { report: null, thumbnails: [], files: [] };

@@ -84,6 +84,8 @@ export const requestSchemas = {
   'project.lock': z.object({ session, release: z.boolean().default(false) }),
   /** Every stored audit of the open project merged: the newest result per direction, with history. */
   'audit.history': z.object({}),
+  /** Full-size images of probes before and after a direction's edit (enlarged worst probes; repair before/after). */
+  'lab.probeImages': z.object({ direction: z.string().min(1), seeds: z.array(seed).min(1).max(8), strength, psi }),
   'pack.build': z.object({ out: z.string().min(1) }),
   'variants.render': z.object({
     name: z.string().regex(/^[A-Za-z0-9_.-]{1,80}$/, 'letters, digits, _ . - only'),
@@ -240,6 +242,7 @@ export const resultSchemas = {
   }),
   'project.saveUi': z.object({ savedAt: z.string() }),
   'project.lock': z.object({ readOnly: z.boolean(), lockHolder: lockHolderSchema.nullable() }),
+  'lab.probeImages': z.object({ images: z.array(z.object({ seed, before: bytes, after: bytes })) }),
   'audit.history': z.object({ report: auditWireSchema.nullable(), thumbnails: z.array(thumbnailSchema), files: z.array(z.string()) }),
   'project.review': z.object({ direction: z.string(), signOff: signOffSchema }),
   'variants.render': z.union([z.object({ cancelled: z.literal(true) }), z.object({ cancelled: z.literal(false), out: z.string(), rendered: z.number(), reused: z.number(), contactSheet: bytes })]),

@@ -46,7 +46,8 @@ test('curve rows pair every strength with its band', () => {
 
 test('the heatmap legend covers the largest coloured cell; its end is the nice() value d3-scale gives', async () => {
   // Outside reference: d3-scale 4 (a dependency of Observable Plot), scaleLinear().domain([0, max]).nice().
-  const { scaleLinear } = await import('d3-scale');
+  // @ts-expect-error d3-scale ships no types; only scaleLinear().domain().nice().domain() is used.
+  const { scaleLinear } = (await import('d3-scale')) as { scaleLinear: () => { domain(d?: number[]): any } };
   for (const max of [2.71, 0.37, 0.049, 1, 7.3, 13.2, 0.9999, 123.4]) {
     const d3End = scaleLinear().domain([0, max]).nice().domain()[1];
     assert.ok(Math.abs(niceMax(max) - d3End) < 1e-9, `max ${max}: ours ${niceMax(max)}, d3 ${d3End}`);

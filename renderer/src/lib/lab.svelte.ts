@@ -3,6 +3,8 @@
 // in step with the engine's.
 import { PROBE_LIMITS, type AuditWire, type DirectionInfo, type LockHolder, type Params, type Result, type VariantDraft, type WireImage } from '../../../app/protocol/messages.ts';
 import { EngineRequestError } from './engine.ts';
+import { desktop } from './bridge.ts';
+import { reportHtml } from './report.ts';
 import type { Studio } from './studio.svelte.ts';
 
 export type View = 'workbench' | 'discover' | 'audit' | 'signoff' | 'variants';
@@ -110,6 +112,10 @@ export class Lab {
   variantError = $state<string | null>(null);
   forceReason = $state('');
 
+  /** A worst probe shown large (rendered at full size on request). */
+  enlarged = $state.raw<{ direction: string; seed: number; strength: number; attribute: string; leakage: number; before: string; after: string } | null>(null);
+  /** Repair before/after on the same probes, by repaired direction name. */
+  repairImages = $state.raw<Record<string, { parent: string; strength: number; rows: { seed: number; before: string; original: string; repaired: string }[] }>>({});
   repairAgainst = $state<string[]>([]);
   holdOthers = $state(true);
   repairing = $state(false);
@@ -327,7 +333,35 @@ export class Lab {
       this.auditSelection = [d.id, r.direction.id];
     });
     this.repairing = false;
-    if (this.auditSelection.length === 2) await this.runAudit();
+    if (this.auditSelection.length === 2) {
+      await this.runAudit();
+      const child = this.studio.directions.find((x) => x.id === this.auditSelection[1]);
+      if (child) await this.loadRepairImages(directionName, child.name);
+    }
+  }
+
+  /** Renders the parent's worst probes with the original and with the repaired direction, at the same strength. */
+  async loadRepairImages(parent: string, child: string): Promise<void> {
+    const p = this.report?.directions.find((d) => d.name === parent);
+    if (!p || !this.report) return;
+    const seeds = this.thumbnails.filter((t) => t.direction === parent).map((t) => t.seed).slice(0, 4);
+    if (!seeds.length) return;
+    const strength = p.leakage.strength;
+    const psi = this.report.probes.psi;
+    await this.#guard(`Rendering ${parent} and ${child} on the same probes`, async () => {
+      const [a, b] = [await this.engine.request('lab.probeImages', { direction: parent, seeds, strength, psi }), await this.engine.request('lab.probeImages', { direction: child, seeds, strength, psi })];
+      const rows = a.images.map((x, i) => ({ seed: x.seed, before: this.thumbUrl(x.before), original: this.thumbUrl(x.after), repaired: this.thumbUrl(b.images[i].after) }));
+      this.repairImages = { ...this.repairImages, [child]: { parent, strength, rows } };
+    });
+  }
+
+  async enlarge(t: Thumb): Promise<void> {
+    const psi = this.report?.probes.psi ?? this.studio.psi;
+    await this.#guard(`Rendering seed ${t.seed} at full size`, async () => {
+      const r = await this.engine.request('lab.probeImages', { direction: t.direction, seeds: [t.seed], strength: t.strength, psi });
+      const img = r.images[0];
+      this.enlarged = { direction: t.direction, seed: t.seed, strength: t.strength, attribute: t.attribute, leakage: t.leakage, before: this.thumbUrl(img.before), after: this.thumbUrl(img.after) };
+    });
   }
 
   /** Records a sign-off step; `override` is the written reason when the audits do not support it. */
@@ -403,6 +437,23 @@ export class Lab {
       await this.refreshDirections(r.directions);
       this.studio.banner = { kind: 'info', text: `Imported ${r.imported.join(', ')} from ${path}.` };
     });
+  }
+
+  /** The audit and sign-off report as one self-contained HTML file; in the desktop app, also as PDF. */
+  async exportReport(asPdf = false): Promise<void> {
+    const name = (this.project?.name ?? 'plumbline').replace(/[^A-Za-z0-9_. -]/g, '_').slice(0, 100);
+    const html = reportHtml({ project: this.project?.name ?? 'Plumbline', generator: this.studio.model ? { name: this.studio.model.name, fingerprint: this.studio.model.fingerprint } : null, report: this.report, directions: this.studio.directions, thumbnails: this.thumbnails, createdAt: new Date().toISOString() });
+    const bridge = desktop();
+    if (asPdf && bridge?.printPdf) {
+      const saved = await bridge.printPdf(html, `${name}-sign-off`);
+      if (saved) this.studio.banner = { kind: 'info', text: `Saved ${saved}.` };
+      return;
+    }
+    const a = document.createElement('a');
+    a.href = URL.createObjectURL(new Blob([html], { type: 'text/html' }));
+    a.download = `${name}-sign-off.html`;
+    a.click();
+    setTimeout(() => URL.revokeObjectURL(a.href), 10_000);
   }
 
   thumbUrl(bytes: Uint8Array): string {
