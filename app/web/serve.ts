@@ -10,6 +10,7 @@ import { fileURLToPath } from 'node:url';
 import { WebSocketServer, type WebSocket } from 'ws';
 import { decodeFrame, encodeFrame } from '../protocol/frames.ts';
 import { PROTOCOL_VERSION, event, parseMessage, type Message, type ResponseMessage } from '../protocol/messages.ts';
+import { browseRoots, listFolder } from './browse.ts';
 
 const here = dirname(fileURLToPath(import.meta.url));
 const root = resolve(here, '..', '..');
@@ -41,6 +42,7 @@ export async function startWebShell(options: WebShellOptions = {}): Promise<WebS
   const rendererDir = resolve(options.rendererDir ?? join(root, 'out', 'renderer'));
   if (!existsSync(join(rendererDir, 'index.html'))) throw new Error(`${rendererDir}: no built renderer (run npm run build first)`);
   const token = randomBytes(24).toString('hex');
+  const roots = browseRoots();
   const log = (s: string) => !options.quiet && process.stderr.write(`[web shell] ${s}\n`);
 
   // Engine child and request routing: client request ids are remapped to host-wide ids.
@@ -110,7 +112,7 @@ export async function startWebShell(options: WebShellOptions = {}): Promise<WebS
       "style-src 'self' 'unsafe-inline'",
       "img-src 'self' data: blob:",
       "font-src 'self'",
-      `connect-src ws://127.0.0.1:${port}`,
+      `connect-src 'self' ws://127.0.0.1:${port}`,
       "base-uri 'none'",
       "form-action 'none'",
       "frame-ancestors 'none'",
@@ -122,6 +124,20 @@ export async function startWebShell(options: WebShellOptions = {}): Promise<WebS
     if (options.testHooks && req.method === 'POST' && url.pathname === '/__test/kill-engine' && tokenOk(url.searchParams.get('token'))) {
       child?.kill('SIGKILL');
       res.writeHead(204).end();
+      return;
+    }
+    if (req.method === 'GET' && url.pathname === '/__browse') {
+      // The folder browser: same token as the engine socket; home and chosen roots only.
+      if (!tokenOk(url.searchParams.get('token'))) {
+        res.writeHead(403).end();
+        return;
+      }
+      try {
+        const listing = listFolder(url.searchParams.get('path'), roots);
+        res.writeHead(200, { 'content-type': 'application/json', 'cache-control': 'no-store', 'x-content-type-options': 'nosniff' }).end(JSON.stringify(listing));
+      } catch (err) {
+        res.writeHead(400, { 'content-type': 'application/json' }).end(JSON.stringify({ error: (err as Error).message }));
+      }
       return;
     }
     if (req.method !== 'GET' && req.method !== 'HEAD') {

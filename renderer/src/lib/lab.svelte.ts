@@ -17,9 +17,11 @@ const LAST_PROJECT_KEY = 'plumbline.lastProject';
 const RECENT_KEY = 'plumbline.recentProjects';
 const RECENT_LIMIT = 8;
 
-function readRecent(): string[] {
+const RECENT_GENERATORS_KEY = 'plumbline.recentGenerators';
+
+function readRecent(key = RECENT_KEY): string[] {
   try {
-    const v = JSON.parse(globalThis.localStorage?.getItem(RECENT_KEY) ?? '[]');
+    const v = JSON.parse(globalThis.localStorage?.getItem(key) ?? '[]');
     return Array.isArray(v) ? v.filter((x): x is string => typeof x === 'string').slice(0, RECENT_LIMIT) : [];
   } catch {
     return [];
@@ -74,6 +76,8 @@ export class Lab {
   reviewer = $state(globalThis.localStorage?.getItem(REVIEWER_KEY) ?? '');
   /** Recently opened project folders, newest first. */
   recent = $state<string[]>(readRecent());
+  /** Recently opened generators (model cards or .onnx), newest first. */
+  recentGenerators = $state<string[]>(readRecent(RECENT_GENERATORS_KEY));
   /** Another window or tab holds this project's lock: look, do not write. */
   readOnly = $state(false);
   lockHolder = $state.raw<LockHolder | null>(null);
@@ -173,6 +177,11 @@ export class Lab {
     });
     if (ok) await Promise.all([this.studio.refreshGrid(), this.studio.requestPreview()]);
     return ok;
+  }
+
+  rememberGenerator(path: string): void {
+    this.recentGenerators = [path, ...this.recentGenerators.filter((r) => r !== path)].slice(0, RECENT_LIMIT);
+    globalThis.localStorage?.setItem(RECENT_GENERATORS_KEY, JSON.stringify(this.recentGenerators));
   }
 
   /** Renews this tab's lock while it holds one; releases it when the page goes away. */
