@@ -222,6 +222,20 @@ export class EngineHost {
         const p = req.params as Params<'lab.probeImages'>;
         return { images: await renderProbePairs(this.#requireGenerator(), this.direction(p.direction), p.seeds, p.strength, p.psi) };
       }
+      case 'directions.rename': {
+        const p = req.params as Params<'directions.rename'>;
+        const d = this.direction(p.id);
+        if ([...this.#directions.values()].some((x) => x.kept && x.name === p.name && x.id !== d.id)) throw new PlumblineError('bad-request', `a kept direction is already named '${p.name}'`);
+        this.#project?.renameDirection(d.name, p.name);
+        d.name = p.name;
+        return this.#info(d);
+      }
+      case 'directions.delete': {
+        const d = this.direction((req.params as Params<'directions.delete'>).id);
+        if (this.#project?.doc.directions.some((x) => x.name === d.name)) this.#project.deleteDirection(d.name);
+        this.#directions.delete(d.id);
+        return { directions: [...this.#directions.values()].filter((x) => x.kept).map((x) => this.#info(x)) };
+      }
       case 'audit.history': {
         if (!this.#project) return { report: null, thumbnails: [], files: [] };
         return mergedAuditHistory(this.#project, [...this.#directions.values()].filter((d) => d.kept).map((d) => d.name));

@@ -8,7 +8,7 @@
 // A new project is made only in a folder that does not exist yet or is empty, and never in or
 // under a system folder (newProjectFolderProblem); a second window or tab on a locked project
 // gets a read-only Project whose writes are refused.
-import { appendFileSync, closeSync, existsSync, fsyncSync, mkdirSync, openSync, readFileSync, readdirSync, realpathSync, rmSync, statSync, writeFileSync } from 'node:fs';
+import { appendFileSync, closeSync, existsSync, fsyncSync, mkdirSync, openSync, readFileSync, readdirSync, realpathSync, renameSync, rmSync, statSync, writeFileSync } from 'node:fs';
 import { basename, dirname, join, resolve, sep } from 'node:path';
 import { createHash } from 'node:crypto';
 import { homedir, hostname, tmpdir } from 'node:os';
@@ -224,6 +224,51 @@ export class Project {
     const entry = this.doc.directions.find((x) => x.name === d.name);
     if (!entry) this.doc.directions.push({ name: d.name, file: rel, hash, changedAt: new Date().toISOString() });
     else if (entry.hash !== hash) Object.assign(entry, { hash, changedAt: new Date().toISOString() });
+    this.save();
+  }
+
+  /**
+   * Renames a direction before it has a history: its review log entries and audits are keyed by
+   * name, so a direction that has either keeps its name (a copy under the new name is the way).
+   */
+  renameDirection(from: string, to: string): void {
+    this.#writable();
+    const entry = this.doc.directions.find((x) => x.name === from);
+    if (!entry) throw new PlumblineError('bad-request', `${this.dir}: no direction '${from}' in the project`);
+    if (this.doc.directions.some((x) => x.name === to)) throw new PlumblineError('bad-request', `a direction is already named '${to}'`);
+    if (this.reviews().some((e) => e.direction === from) || this.storedAudits().some((a) => a.name === from)) {
+      throw new PlumblineError('bad-request', `'${from}' has sign-off or audit history under its name; it keeps that name so the history stays attached`);
+    }
+    const npy = join(this.dir, entry.file);
+    const meta = npy.replace(/\.npy$/, '.json');
+    const rel = `directions/${to}.npy`;
+    if (existsSync(meta)) {
+      const doc = JSON.parse(readFileSync(meta, 'utf8')) as { file?: string; directions?: { name: string }[] };
+      doc.file = `${to}.npy`;
+      for (const d of doc.directions ?? []) if (d.name === from) d.name = to;
+      writeFileAtomic(join(this.dir, `directions/${to}.json`), JSON.stringify(doc, null, 2) + '\n');
+      rmSync(meta);
+    }
+    renameSync(npy, join(this.dir, rel));
+    Object.assign(entry, { name: to, file: rel });
+    this.save();
+  }
+
+  /**
+   * Takes a direction out of the project. Its files move to directions/deleted/ with a time
+   * stamp (nothing is destroyed); its review log and audits stay as history.
+   */
+  deleteDirection(name: string): void {
+    this.#writable();
+    const entry = this.doc.directions.find((x) => x.name === name);
+    if (!entry) throw new PlumblineError('bad-request', `${this.dir}: no direction '${name}' in the project`);
+    const stamp = new Date().toISOString().replace(/[:.]/g, '-');
+    mkdirSync(join(this.dir, 'directions', 'deleted'), { recursive: true });
+    for (const file of [entry.file, entry.file.replace(/\.npy$/, '.json')]) {
+      const from = join(this.dir, file);
+      if (existsSync(from)) renameSync(from, join(this.dir, 'directions', 'deleted', `${stamp}-${basename(file)}`));
+    }
+    this.doc.directions = this.doc.directions.filter((x) => x !== entry);
     this.save();
   }
 

@@ -84,6 +84,9 @@ export const requestSchemas = {
   'project.lock': z.object({ session, release: z.boolean().default(false) }),
   /** Every stored audit of the open project merged: the newest result per direction, with history. */
   'audit.history': z.object({}),
+  'directions.rename': z.object({ id: z.string().min(1), name: z.string().min(1).max(120).regex(/^[A-Za-z0-9_.-]+$/, 'letters, digits, _ . - only') }),
+  /** Takes a kept direction out (its project files move to directions/deleted/). */
+  'directions.delete': z.object({ id: z.string().min(1) }),
   /** Full-size images of probes before and after a direction's edit (enlarged worst probes; repair before/after). */
   'lab.probeImages': z.object({ direction: z.string().min(1), seeds: z.array(seed).min(1).max(8), strength, psi }),
   'pack.build': z.object({ out: z.string().min(1) }),
@@ -243,6 +246,8 @@ export const resultSchemas = {
   'project.saveUi': z.object({ savedAt: z.string() }),
   'project.lock': z.object({ readOnly: z.boolean(), lockHolder: lockHolderSchema.nullable() }),
   'lab.probeImages': z.object({ images: z.array(z.object({ seed, before: bytes, after: bytes })) }),
+  'directions.rename': directionInfoSchema,
+  'directions.delete': z.object({ directions: z.array(directionInfoSchema) }),
   'audit.history': z.object({ report: auditWireSchema.nullable(), thumbnails: z.array(thumbnailSchema), files: z.array(z.string()) }),
   'project.review': z.object({ direction: z.string(), signOff: signOffSchema }),
   'variants.render': z.union([z.object({ cancelled: z.literal(true) }), z.object({ cancelled: z.literal(false), out: z.string(), rendered: z.number(), reused: z.number(), contactSheet: bytes })]),

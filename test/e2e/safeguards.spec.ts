@@ -96,7 +96,7 @@ test('a negative probe count is stopped beside the field, and nothing waits fore
 });
 
 test('sign-off gates, variant rules, a second tab read-only, and everything back after a reload', async ({ page, context }) => {
-  test.setTimeout(420_000);
+  test.setTimeout(1_200_000); // two audits and a repair on a shared 2-core machine
   const errors: string[] = [];
   page.on('pageerror', (e) => errors.push(e.message));
   const projectDir = join(mkdtempSync(join(tmpdir(), 'plumbline-gates-')), 'crests');
@@ -126,7 +126,7 @@ test('sign-off gates, variant rules, a second tab read-only, and everything back
 
   // Audit: outline_bold fails; approving it is refused without a reason and recorded with one.
   await audit(page, ['outline_bold', 'turn'], 32);
-  await expect(page.getByTestId('verdict-outline_bold')).toHaveText('Fail', { timeout: 150_000 });
+  await expect(page.getByTestId('verdict-outline_bold')).toHaveText('Fail', { timeout: 400_000 });
   await expect(page.getByTestId('verdict-turn')).toHaveText('Pass');
   await shoot(page, 'safeguards-audit');
   await page.getByRole('button', { name: /Enlarge seed \d+ of outline_bold/ }).first().click();
@@ -159,7 +159,7 @@ test('sign-off gates, variant rules, a second tab read-only, and everything back
   await page.getByRole('button', { name: 'Show outline_bold' }).click();
   await page.getByRole('checkbox', { name: 'backdrop', exact: true }).check();
   await page.getByRole('button', { name: 'Repair and re-audit' }).click();
-  await expect(page.getByTestId('verdict-outline_bold_repaired')).toHaveText('Pass', { timeout: 180_000 });
+  await expect(page.getByTestId('verdict-outline_bold_repaired')).toHaveText('Pass', { timeout: 400_000 });
   await expect(page.getByTestId('verdict-turn')).toHaveText('Pass');
   await expect(page.getByRole('group', { name: 'Same probes before and after repair of outline_bold' })).toBeVisible({ timeout: 60_000 });
   await expect(page.getByRole('img', { name: /with outline_bold_repaired/ })).toHaveCount(await page.getByRole('img', { name: /with outline_bold$/ }).count());
@@ -182,7 +182,8 @@ test('sign-off gates, variant rules, a second tab read-only, and everything back
   await shoot(page, 'safeguards-variants-refused');
   await page.getByLabel('Reason to force the variant set').fill('comparison sheet for the review meeting');
   await page.getByRole('button', { name: 'Force with this reason' }).click();
-  await expect(page.getByRole('status').filter({ hasText: '2 rendered' })).toBeVisible({ timeout: 60_000 });
+  // Two settings (base, turned) × two seeds.
+  await expect(page.getByRole('status').filter({ hasText: '4 rendered' })).toBeVisible({ timeout: 60_000 });
   const manifest = JSON.parse(readFileSync(join(out, 'manifest.json'), 'utf8'));
   expect(manifest.forced.reason).toBe('comparison sheet for the review meeting');
   expect(manifest.forced.settings[0]).toMatchObject({ setting: 'turned', direction: 'turn', kind: 'rejected' });

@@ -120,3 +120,23 @@ test('sign-off in the project: unaudited and failed approvals need a reason, whi
   assert.equal(readdirSync(join(dir, 'audits')).length, 2);
   assert.equal(p.signOff('crest', hash).audits?.length, 2);
 });
+
+test('rename before any history moves the files; delete keeps them under directions/deleted/', () => {
+  const dir = join(temp(), 'p');
+  const p = Project.open(dir, true, gen);
+  const v = new Float32Array([0, 1, 0, 0]);
+  p.saveDirection({ name: 'tilt', target: null, layers: null, vector: v, notes: '', source: {} }, 'w');
+  p.renameDirection('tilt', 'lean');
+  assert.deepEqual(readdirSync(join(dir, 'directions')).sort(), ['lean.json', 'lean.npy']);
+  assert.equal(JSON.parse(readFileSync(join(dir, 'directions', 'lean.json'), 'utf8')).directions[0].name, 'lean');
+  assert.equal(Project.open(dir, false, gen).loadDirections({ space: 'w', size: 4, layers: 1 } as never)[0].name, 'lean');
+  // With history under its name, it keeps the name.
+  p.review('lean', vectorHash(v, null), { status: 'in-review', reviewer: 'Ines', note: '' });
+  assert.throws(() => p.renameDirection('lean', 'other'), /keeps that name so the history stays attached/);
+  p.deleteDirection('lean');
+  assert.deepEqual(p.doc.directions, []);
+  const kept = readdirSync(join(dir, 'directions', 'deleted'));
+  assert.equal(kept.length, 2);
+  assert.ok(kept.every((f) => /lean\.(npy|json)$/.test(f)));
+  assert.ok(existsSync(join(dir, 'review-log.jsonl')));
+});

@@ -1,7 +1,7 @@
 // Chart data mapping: audit values to heatmap cells and curve rows with their CI bands.
 import { test } from 'node:test';
 import assert from 'node:assert/strict';
-import { ATTRIBUTE_PALETTE, attributeColors, curveRows, heatDomain, heatmapCells, leadingAttributes, niceMax, pathRows, tickLabel } from '../../renderer/src/lib/charts.ts';
+import { ATTRIBUTE_PALETTE, attributeColors, curveRows, heatDomain, heatmapCells, leadingAttributes, logTicks, niceMax, pathRows, tickLabel } from '../../renderer/src/lib/charts.ts';
 import type { AuditWire } from '../../app/protocol/messages.ts';
 
 const iv = (value: number, low: number, high: number) => ({ value, low, high });
@@ -79,4 +79,12 @@ test('one colour per attribute, fixed by its place in the report (hiding some ne
 
 test('tick labels are plain numbers (no bare exponents for ordinary values)', () => {
   assert.deepEqual([0, 0.5, 2, 0.01, 0.002, 150, 2e-5, 30000].map(tickLabel), ['0', '0.5', '2', '0.01', '0.002', '150', '2e-5', '3e4']);
+});
+
+test('log-axis ticks: every one a 1-2-5 value inside the range, each labelled', () => {
+  // The 1-2-5 series is the common practice for decade axes (as in E-series and d3's log ticks).
+  assert.deepEqual(logTicks(0.0031, 0.024), [0.005, 0.01, 0.02]);
+  assert.deepEqual(logTicks(0.0011, 0.0019), [0.0011, 0.0019]);
+  assert.deepEqual(logTicks(1e-5, 10), [1e-5, 1e-4, 0.001, 0.01, 0.1, 1, 10]);
+  for (const v of logTicks(0.0031, 0.024)) assert.notEqual(tickLabel(v), '');
 });

@@ -112,4 +112,21 @@ export function tickLabel(v: number): string {
   return String(Number(v.toPrecision(2)));
 }
 
+/**
+ * Tick values for a log axis from lo to hi, every one to be labelled: 1, 2 and 5 × 10^k inside
+ * the range, thinned to powers of ten when there would be more than `max`; the range's own ends
+ * (rounded to two digits) when no such value falls inside.
+ */
+export function logTicks(lo: number, hi: number, max = 7): number[] {
+  if (!(lo > 0) || !(hi >= lo)) return [];
+  const out: number[] = [];
+  for (let k = Math.floor(Math.log10(lo)); k <= Math.ceil(Math.log10(hi)); k++)
+    for (const m of [1, 2, 5]) {
+      const v = Number((m * 10 ** k).toPrecision(12));
+      if (v >= lo && v <= hi) out.push(v);
+    }
+  const thinned = out.length > max ? out.filter((v) => Math.abs(Math.log10(v) - Math.round(Math.log10(v))) < 1e-9) : out;
+  return thinned.length >= 2 ? thinned : [...new Set([Number(lo.toPrecision(2)), ...thinned, Number(hi.toPrecision(2))])].sort((a, b) => a - b);
+}
+
 export const VERDICT_LABEL: Record<string, string> = { pass: 'Pass', review: 'Needs review', fail: 'Fail' };

@@ -373,6 +373,21 @@ export class Lab {
     });
   }
 
+  async renameDirection(direction: DirectionInfo, name: string): Promise<boolean> {
+    return this.#guard(`Renaming ${direction.name}`, async () => {
+      const r = await this.engine.request('directions.rename', { id: direction.id, name });
+      this.studio.directions = this.studio.directions.map((d) => (d.id === r.id ? r : d));
+    });
+  }
+
+  async deleteDirection(direction: DirectionInfo): Promise<void> {
+    await this.#guard(`Deleting ${direction.name}`, async () => {
+      const r = await this.engine.request('directions.delete', { id: direction.id });
+      await this.refreshDirections(r.directions);
+      this.studio.banner = { kind: 'info', text: `Deleted ${direction.name}; its files are kept in the project's directions/deleted/ and its history stays in the review log.` };
+    });
+  }
+
   /** Records a sign-off step; `override` is the written reason when the audits do not support it. */
   async review(direction: DirectionInfo, status: Status, note: string, override?: string): Promise<boolean> {
     if (!this.reviewer.trim()) {
