@@ -75,6 +75,8 @@ export class EngineHost {
   #jobs: Job[] = [];
   #pumping = false;
   #project: Project | null = null;
+  /** Where each unkept candidate is kept in the project (candidates/<key>.*). */
+  #candidateKeys = new Map<string, string>();
   #running: Job | null = null;
   readonly threads: number;
 
@@ -200,7 +202,23 @@ export class EngineHost {
         d.name = p.name;
         d.kept = true;
         this.#project?.saveDirection(d, this.#requireGenerator().layout.space);
+        const key = this.#candidateKeys.get(d.id);
+        if (key && this.#project && !this.#project.readOnly) this.#project.removeCandidate(key);
+        this.#candidateKeys.delete(d.id);
         return this.#info(d);
+      }
+      case 'directions.discard': {
+        let discarded = 0;
+        for (const id of (req.params as Params<'directions.discard'>).ids) {
+          const d = this.#directions.get(id);
+          if (!d || d.kept) continue;
+          this.#directions.delete(id);
+          const key = this.#candidateKeys.get(id);
+          if (key && this.#project && !this.#project.readOnly) this.#project.removeCandidate(key);
+          this.#candidateKeys.delete(id);
+          discarded++;
+        }
+        return { discarded };
       }
       case 'project.open':
         return this.#openProject(req.params as Params<'project.open'>);
@@ -338,12 +356,25 @@ export class EngineHost {
     const project = lock?.readOnly && this.#project?.dir === opened.dir ? this.#project : opened;
     this.#project = project;
     const created = p.create && project.doc.directions.length === 0;
-    if (created) {
+    if (project !== opened) {
+      // Another tab of this engine holds the project: share its directions as they are (reloading
+      // them would give them new ids under the holder's feet).
+    } else if (created) {
       // A new project starts with the directions already on the workbench.
       for (const d of this.#directions.values()) if (d.kept) project.saveDirection(d, gen.layout.space);
     } else {
       for (const d of [...this.#directions.values()]) if (d.kept) this.#directions.delete(d.id);
       for (const d of project.loadDirections(gen.layout)) this.#register(d, true);
+    }
+    // Candidates left in the project come back (unkept); the same ones already here are not doubled.
+    const candidates: Result<'project.open'>['candidates'] = [];
+    for (const c of project.loadCandidates(gen.layout)) {
+      let id = [...this.#candidateKeys].find(([, k]) => k === c.key)?.[0];
+      if (!id || !this.#directions.has(id)) {
+        id = this.#register(c.direction, false).id;
+        this.#candidateKeys.set(id, c.key);
+      }
+      candidates.push({ direction: this.#info(this.direction(id)), strip: c.strip.images, stripSeeds: c.strip.seeds, stripStrengths: c.strip.strengths });
     }
     const fingerprint = project.doc.generator?.fingerprint ?? null;
     return {
@@ -356,6 +387,7 @@ export class EngineHost {
       ui: project.doc.ui,
       readOnly: lock?.readOnly ?? false,
       lockHolder: lock?.holder ?? null,
+      candidates,
     };
   }
 
@@ -405,6 +437,12 @@ export class EngineHost {
       const d = this.#register({ name: p.name && found.length === 1 ? p.name : f.name, target: f.target, layers: f.layers, vector: f.vector, notes: f.notes, method: f.source.method, source: f.source as unknown as Record<string, unknown> }, false);
       const strip = await this.#strip(d, p.stripSeeds, p.stripStrengths);
       candidates.push({ direction: this.#info(d), strip, stripSeeds: p.stripSeeds, stripStrengths: p.stripStrengths });
+      if (this.#project && !this.#project.readOnly) {
+        // Kept in the project until kept or discarded: a reload or a crash does not lose it.
+        const key = `${new Date().toISOString().replace(/[^0-9]/g, '')}-${candidates.length}`;
+        this.#project.saveCandidate(key, d, gen.layout.space, { seeds: p.stripSeeds, strengths: p.stripStrengths, images: strip });
+        this.#candidateKeys.set(d.id, key);
+      }
       await this.#checkpoint();
     }
     return { cancelled: false, candidates };

@@ -14,6 +14,8 @@ import { createHash } from 'node:crypto';
 import { homedir, hostname, tmpdir } from 'node:os';
 import { z } from 'zod';
 import { writeFileAtomic } from '../core/atomic-write.ts';
+import { encodePng } from '../core/image.ts';
+import { decode as decodePng } from 'fast-png';
 import { writeDirections } from '../core/direction-files.ts';
 import { parseDirectionsMeta, readDirections, type Direction, type LatentLayout } from '../core/directions.ts';
 import { PlumblineError } from '../core/errors.ts';
@@ -270,6 +272,45 @@ export class Project {
     }
     this.doc.directions = this.doc.directions.filter((x) => x !== entry);
     this.save();
+  }
+
+  /**
+   * Keeps an unkept discovery candidate (vector, metadata and its preview strip) in candidates/
+   * until it is kept or discarded, so a reload or a crash does not lose it.
+   */
+  saveCandidate(key: string, d: { name: string; target: string | null; layers: [number, number] | null; vector: Float32Array; notes: string; source: object }, space: 'z' | 'w' | 'w+', strip: { seeds: number[]; strengths: number[]; images: { width: number; height: number; rgba: Uint8Array }[] }): void {
+    this.#writable();
+    if (!/^[A-Za-z0-9_-]{1,80}$/.test(key)) throw new PlumblineError('bad-request', `bad candidate key '${key}'`);
+    writeDirections(join(this.dir, 'candidates', `${key}.npy`), [d], space);
+    const images = strip.images.map((i) => Buffer.from(encodePng({ width: i.width, height: i.height, data: new Uint8ClampedArray(i.rgba.buffer, i.rgba.byteOffset, i.rgba.byteLength) })).toString('base64'));
+    writeFileAtomic(join(this.dir, 'candidates', `${key}.strip.json`), JSON.stringify({ seeds: strip.seeds, strengths: strip.strengths, png: images }) + '\n');
+  }
+
+  /** The candidates kept in candidates/, oldest first; unreadable ones are skipped. */
+  loadCandidates(layout: LatentLayout): { key: string; direction: Direction; strip: { seeds: number[]; strengths: number[]; images: { width: number; height: number; rgba: Uint8Array }[] } }[] {
+    const dir = join(this.dir, 'candidates');
+    if (!existsSync(dir)) return [];
+    return readdirSync(dir).filter((f) => f.endsWith('.npy')).sort().flatMap((f) => {
+      const key = f.slice(0, -4);
+      try {
+        const npy = join(dir, f);
+        const meta = parseDirectionsMeta(readFileSync(join(dir, `${key}.json`), 'utf8'), join(dir, `${key}.json`));
+        const [direction] = readDirections(new Uint8Array(readFileSync(npy)), npy, meta, layout, key);
+        const s = JSON.parse(readFileSync(join(dir, `${key}.strip.json`), 'utf8')) as { seeds: number[]; strengths: number[]; png: string[] };
+        const images = s.png.map((b) => {
+          const png = decodePng(Buffer.from(b, 'base64'));
+          return { width: png.width, height: png.height, rgba: new Uint8Array(png.data.buffer, png.data.byteOffset, png.data.byteLength) };
+        });
+        return [{ key, direction, strip: { seeds: s.seeds, strengths: s.strengths, images } }];
+      } catch {
+        return [];
+      }
+    });
+  }
+
+  removeCandidate(key: string): void {
+    this.#writable();
+    for (const ext of ['.npy', '.json', '.strip.json']) rmSync(join(this.dir, 'candidates', `${basename(key)}${ext}`), { force: true });
   }
 
   /** When a direction's vector last changed, as recorded (null for projects from before this was kept). */

@@ -87,6 +87,8 @@ export const requestSchemas = {
   'directions.rename': z.object({ id: z.string().min(1), name: z.string().min(1).max(120).regex(/^[A-Za-z0-9_.-]+$/, 'letters, digits, _ . - only') }),
   /** Takes a kept direction out (its project files move to directions/deleted/). */
   'directions.delete': z.object({ id: z.string().min(1) }),
+  /** Drops unkept discovery candidates (and their copies in the project's candidates/). */
+  'directions.discard': z.object({ ids: z.array(z.string().min(1)).min(1).max(256) }),
   /** Full-size images of probes before and after a direction's edit (enlarged worst probes; repair before/after). */
   'lab.probeImages': z.object({ direction: z.string().min(1), seeds: z.array(seed).min(1).max(8), strength, psi }),
   'pack.build': z.object({ out: z.string().min(1) }),
@@ -207,6 +209,7 @@ export const auditWireSchema = z.object({
 }).passthrough();
 export type AuditWire = z.infer<typeof auditWireSchema>;
 
+const candidateSchema = z.object({ direction: directionInfoSchema, strip: z.array(imageSchema), stripSeeds: z.array(seed), stripStrengths: z.array(z.number()) });
 const thumbnailSchema = z.object({ direction: z.string(), seed, strength: z.number(), attribute: z.string(), leakage: z.number(), before: bytes, after: bytes });
 /** Who holds a project's lock: process, machine, session and when it last renewed. */
 export const lockHolderSchema = z.object({ pid: z.number().int(), host: z.string(), session: z.string(), at: z.string() });
@@ -229,7 +232,7 @@ export const resultSchemas = {
   'directions.list': z.object({ directions: z.array(directionInfoSchema) }),
   'lab.discover': z.union([
     z.object({ cancelled: z.literal(true) }),
-    z.object({ cancelled: z.literal(false), candidates: z.array(z.object({ direction: directionInfoSchema, strip: z.array(imageSchema), stripSeeds: z.array(seed), stripStrengths: z.array(z.number()) })) }),
+    z.object({ cancelled: z.literal(false), candidates: z.array(candidateSchema) }),
   ]),
   'directions.keep': directionInfoSchema,
   'audit.run': z.union([
@@ -242,12 +245,15 @@ export const resultSchemas = {
     /** True when another window or tab holds the project's lock: this one may look but not write. */
     readOnly: z.boolean().default(false),
     lockHolder: lockHolderSchema.nullable().default(null),
+    /** Discovery candidates not yet kept or discarded, as left in the project. */
+    candidates: z.array(candidateSchema).default([]),
   }),
   'project.saveUi': z.object({ savedAt: z.string() }),
   'project.lock': z.object({ readOnly: z.boolean(), lockHolder: lockHolderSchema.nullable() }),
   'lab.probeImages': z.object({ images: z.array(z.object({ seed, before: bytes, after: bytes })) }),
   'directions.rename': directionInfoSchema,
   'directions.delete': z.object({ directions: z.array(directionInfoSchema) }),
+  'directions.discard': z.object({ discarded: z.number().int() }),
   'audit.history': z.object({ report: auditWireSchema.nullable(), thumbnails: z.array(thumbnailSchema), files: z.array(z.string()) }),
   'project.review': z.object({ direction: z.string(), signOff: signOffSchema }),
   'variants.render': z.union([z.object({ cancelled: z.literal(true) }), z.object({ cancelled: z.literal(false), out: z.string(), rendered: z.number(), reused: z.number(), contactSheet: bytes })]),

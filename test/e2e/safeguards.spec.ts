@@ -11,10 +11,14 @@ import { startShell } from './shell';
 
 const shots = join(import.meta.dirname, '..', '..', 'test-output', 'screens');
 let shell: Awaited<ReturnType<typeof startShell>>;
+/** A root for the web shell's folder browser, with a small studio tree in it. */
+const browseRoot = mkdtempSync(join(tmpdir(), 'plumbline-studio-root-'));
 
 test.beforeAll(async () => {
   mkdirSync(shots, { recursive: true });
-  shell = await startShell();
+  for (const d of ['emblems/audits', 'emblems/directions', 'new-season']) mkdirSync(join(browseRoot, d), { recursive: true });
+  writeFileSync(join(browseRoot, 'emblems', 'project.json'), '{}');
+  shell = await startShell({ PLUMBLINE_BROWSE_ROOTS: browseRoot });
 });
 test.afterAll(() => shell?.stop());
 
@@ -192,6 +196,13 @@ test('sign-off gates, variant rules, a second tab read-only, and everything back
   await page.getByRole('slider', { name: 'crest_size' }).fill('0.5');
   await page.getByRole('button', { name: 'Pin to probes' }).click();
 
+  // Discovery candidates: kept in the project until discarded.
+  await page.keyboard.press('Alt+2');
+  await page.getByLabel('Components').fill('2');
+  await page.getByRole('button', { name: 'Find candidates' }).click();
+  await expect(page.getByRole('group', { name: /Strip of sefa_1/ })).toBeVisible({ timeout: 120_000 });
+  expect(readdirSync(join(projectDir, 'candidates')).filter((f) => f.endsWith('.npy')).length).toBe(2);
+
   // A second tab on the same project opens read-only and says so.
   const second = await context.newPage();
   await second.goto(shell.url);
@@ -209,7 +220,7 @@ test('sign-off gates, variant rules, a second tab read-only, and everything back
   await page.waitForTimeout(1_500); // autosave settles within a second
   await page.reload();
   await ready(page);
-  await expect(page.getByText('◆ crests')).toBeVisible();
+  await expect(page.getByText('◆ crests')).toBeVisible({ timeout: 60_000 });
   await expect(page.getByTestId('read-only')).toHaveCount(0);
   await expect(page.getByTestId('readout-crest_size')).toHaveText('+0.50 σ');
   await expect(page.getByRole('button', { name: 'Pinned to probes' })).toBeVisible();
@@ -222,6 +233,16 @@ test('sign-off gates, variant rules, a second tab read-only, and everything back
   await expect(page.getByLabel('Variant seeds')).toHaveValue('0-1');
   await expect(page.getByLabel('Output folder')).toHaveValue(out);
   expect(readdirSync(join(projectDir, 'audits')).length).toBe(2);
+  // The candidates came back; discarding them all asks first, then removes them from the project.
+  await page.keyboard.press('Alt+2');
+  await expect(page.getByRole('group', { name: /Strip of sefa_0/ })).toBeVisible();
+  await expect(page.getByRole('group', { name: /Strip of sefa_1/ })).toBeVisible();
+  await page.getByRole('button', { name: 'Discard all…' }).click();
+  await expect(page.getByText('Discard all 2? They cannot be brought back without searching again.')).toBeVisible();
+  await expect(page.getByRole('group', { name: /Strip of sefa_0/ })).toBeVisible();
+  await page.getByRole('button', { name: 'Discard all', exact: true }).click();
+  await expect(page.getByRole('group', { name: /Strip of sefa_/ })).toHaveCount(0);
+  expect(readdirSync(join(projectDir, 'candidates'))).toEqual([]);
   expect(errors).toEqual([]);
 });
 
@@ -240,6 +261,16 @@ test('screens at 1280 and 1600 px: workbench with the seed grid, discover, short
   await page.getByLabel('Components').fill('0');
   await expect(page.getByText('Components must be from 1 to 64.')).toBeVisible();
   await shoot(page, 'safeguards-discover');
+  // The New project dialog browses folders on the workstation (home and chosen roots only).
+  await page.getByRole('button', { name: 'New project…' }).click();
+  const browser = page.getByRole('group', { name: 'Folder browser' });
+  await expect(browser).toBeVisible();
+  await page.getByLabel('Browse root').selectOption(browseRoot);
+  await browser.getByRole('button', { name: '▸ new-season' }).click();
+  await expect(page.getByLabel('Path', { exact: true })).toHaveValue(join(browseRoot, 'new-season'));
+  await expect(browser).toContainText('Empty folder: a good place for a new project.');
+  await shoot(page, 'safeguards-open-dialog');
+  await page.getByRole('button', { name: 'Cancel' }).click();
   await page.keyboard.press('Alt+1');
   await page.keyboard.press('?');
   await expect(page.getByRole('dialog', { name: 'Keyboard shortcuts' })).toBeVisible();

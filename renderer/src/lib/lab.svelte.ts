@@ -169,6 +169,8 @@ export class Lab {
         if (p.ui.auditProbes !== undefined) this.probes = p.ui.auditProbes;
       }
       await this.loadAuditHistory();
+      // Candidates left unkept in the project come back until they are kept or discarded.
+      this.candidates = [...this.candidates.filter((c) => !p.candidates.some((n) => n.direction.id === c.direction.id)), ...p.candidates];
       this.#keepLock();
       if (p.readOnly) {
         const h = p.lockHolder;
@@ -242,9 +244,9 @@ export class Lab {
   }
 
   /** Reopens the last project after a reload or a crash. */
-  async restoreLastProject(): Promise<void> {
+  async restoreLastProject(): Promise<boolean> {
     const last = globalThis.localStorage?.getItem(LAST_PROJECT_KEY);
-    if (last) await this.openProject(last, false);
+    return last ? this.openProject(last, false) : false;
   }
 
   async discover(): Promise<void> {
@@ -279,18 +281,26 @@ export class Lab {
     });
   }
 
-  /** Discards one candidate (its strip and vector are dropped from this session). */
-  discardCandidate(id: string): void {
-    this.candidates = this.candidates.filter((c) => c.direction.id !== id);
+  /** Discards candidates: dropped from the engine and from the project's candidates/. */
+  async discardCandidates(ids: string[]): Promise<void> {
+    if (!ids.length) return;
+    await this.#guard('Discarding candidates', async () => {
+      await this.engine.request('directions.discard', { ids });
+      this.candidates = this.candidates.filter((c) => !ids.includes(c.direction.id));
+    });
   }
 
-  discardAll(confirmed: boolean): void {
+  async discardCandidate(id: string): Promise<void> {
+    await this.discardCandidates([id]);
+  }
+
+  async discardAll(confirmed: boolean): Promise<void> {
     if (!confirmed) {
       this.confirmingDiscard = true;
       return;
     }
-    this.candidates = [];
     this.confirmingDiscard = false;
+    await this.discardCandidates(this.candidates.map((c) => c.direction.id));
   }
 
   async runAudit(ids = this.auditSelection): Promise<void> {

@@ -65,8 +65,8 @@ export class Studio {
   canRedo = $derived.by(() => (this.historyVersion, this.history.canRedo));
   edited = $derived(Object.values(this.strengths).some((s) => s !== 0));
 
-  /** Connects to the engine and opens the demo generator. */
-  async start(): Promise<void> {
+  /** Connects, opens the demo generator, then `afterModel` (reopening a project; true when it did), else the grid. */
+  async start(afterModel?: () => Promise<boolean>): Promise<void> {
     this.engine.on('engine.stopped', (d) => {
       this.engineState = d.restarting ? 'restarting' : 'stopped';
       this.banner = { kind: 'error', text: `The engine stopped (${d.reason}).${d.restarting ? ' Restarting it; your work is kept.' : ''}` };
@@ -85,6 +85,8 @@ export class Studio {
       this.psi = this.model.defaultPsi;
       if (this.model.demoDirections) await this.#loadDirections(this.model.demoDirections);
     });
+    // A project to reopen comes first (it renders the grid and preview with its own state).
+    if (await afterModel?.()) return;
     await Promise.all([this.refreshGrid(), this.requestPreview()]);
   }
 
