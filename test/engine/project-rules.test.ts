@@ -140,3 +140,20 @@ test('rename before any history moves the files; delete keeps them under directi
   assert.ok(kept.every((f) => /lean\.(npy|json)$/.test(f)));
   assert.ok(existsSync(join(dir, 'review-log.jsonl')));
 });
+
+test('discovery candidates are kept in candidates/ with their strips until removed', () => {
+  const dir = join(temp(), 'p');
+  const p = Project.open(dir, true, gen);
+  const vector = new Float32Array([0.6, 0.8, 0, 0]);
+  // A 2×2 strip image with known pixels: the bytes must come back exactly (PNG is lossless).
+  const rgba = new Uint8Array([255, 0, 0, 255, 0, 255, 0, 255, 0, 0, 255, 255, 10, 20, 30, 255]);
+  p.saveCandidate('20260101-1', { name: 'sefa_0', target: null, layers: null, vector, notes: 'n', source: { method: 'sefa' } }, 'w', { seeds: [0, 1], strengths: [-1, 1], images: [{ width: 2, height: 2, rgba }] });
+  const back = Project.open(dir, false, gen).loadCandidates({ space: 'w', size: 4, layers: 1 } as never);
+  assert.equal(back.length, 1);
+  assert.equal(back[0].direction.name, 'sefa_0');
+  assert.deepEqual(Array.from(back[0].direction.vector), Array.from(vector));
+  assert.deepEqual(back[0].strip.seeds, [0, 1]);
+  assert.deepEqual(Array.from(back[0].strip.images[0].rgba), Array.from(rgba));
+  p.removeCandidate('20260101-1');
+  assert.deepEqual(readdirSync(join(dir, 'candidates')), []);
+});
