@@ -79,6 +79,22 @@ export class Studio {
     const token = params.get('token');
     if (token) this.engine.connectWebSocket(`ws://${location.host}/engine?token=${encodeURIComponent(token)}`);
     else await this.#connectDesktop();
+    // Another window or tab may already work with this engine: join its generator and directions
+    // instead of reopening the demo, which would reset them under that window's feet.
+    const hello = await this.engine.request('engine.hello', {}).catch(() => null);
+    if (hello?.model) {
+      const model = hello.model;
+      await this.#guard('Joining the open generator', async () => {
+        this.model = model;
+        this.psi = model.defaultPsi;
+        const list = await this.engine.request('directions.list', {});
+        this.directions = list.directions;
+        this.strengths = Object.fromEntries(list.directions.map((d) => [d.id, 0]));
+      });
+      if (await afterModel?.()) return;
+      await Promise.all([this.refreshGrid(), this.requestPreview()]);
+      return;
+    }
     await this.#guard('Opening the demo generator', async () => {
       this.model = await this.engine.request('model.openDemo', {});
       this.#modelPath = null;
