@@ -1,0 +1,22 @@
+// Handler for rendering a variant set (seeds × settings of kept directions) into a folder, as a
+// resumable job; answers with the contact sheet.
+import { readFileSync } from 'node:fs';
+import { join, resolve } from 'node:path';
+import { renderVariants } from '../variants.ts';
+import { driveSteps, type AreaHandlers } from './context.ts';
+import { checkUse, useViolations } from '../../core/signoff-rules.ts';
+import { directionUses } from '../project.ts';
+
+export const variantHandlers: AreaHandlers<'variants.render'> = {
+  'variants.render': async (p, ctx) => {
+    const { workspace } = ctx;
+    const gen = workspace.requireGenerator();
+    const used = [...new Set(p.settings.flatMap((s) => Object.keys(s.strengths)))].map((id) => workspace.direction(id));
+    const recipe = { format: 'plumbline.variant-recipe' as const, version: 1 as const, name: p.name, seeds: p.seeds, psi: p.psi, settings: p.settings.map((s) => ({ label: s.label, strengths: Object.fromEntries(Object.entries(s.strengths).map(([id, v]) => [workspace.direction(id).name, v])) })) };
+    const out = resolve(p.out);
+    // The same rules as the CLI: unapproved, rejected or out-of-range settings need a written reason.
+    const forced = checkUse(useViolations(recipe.settings, directionUses(workspace.project, used)), p.forceReason?.trim() ? { reason: p.forceReason } : null, 'render anyway only with a written reason (Force with a reason)');
+    const done = await driveSteps(renderVariants(gen, recipe, used, out, { forced }), ctx);
+    return { out, rendered: done.rendered, reused: done.reused, contactSheet: new Uint8Array(readFileSync(join(out, 'contact-sheet.png'))) };
+  },
+};
