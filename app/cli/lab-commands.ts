@@ -12,6 +12,7 @@ import { driveSteps } from '../engine/handlers/context.ts';
 import { repairInWorkspace } from '../engine/handlers/repair.ts';
 import { parseSeeds } from './seeds.ts';
 import { runCliJob } from './jobs.ts';
+import { PROBE_LIMITS } from '../protocol/messages.ts';
 import { ScorerModel } from '../engine/scorer-model.ts';
 
 export interface CliContext {
@@ -157,7 +158,7 @@ export function addLabCommands(program: Command, ctx: CliContext, number: (n: st
     .option('-m, --model <file>', 'model card or .onnx; default: the bundled demo')
     .requiredOption('-d, --directions <file>', 'directions (.npy with optional .json sidecar)')
     .option('--only <names>', 'audit only these directions (comma-separated)')
-    .option('--probes <n>', 'random probe latents', integer('--probes', 0, 100_000), 64)
+    .option('--probes <n>', `random probe latents, ${PROBE_LIMITS.min}–${PROBE_LIMITS.max} (with the --pin seeds at least ${PROBE_LIMITS.minTotal} in all; 0 only with --pin)`, integer('--probes', PROBE_LIMITS.min, PROBE_LIMITS.max), 64)
     .option('--pin <seeds>', 'pinned probe seeds, e.g. 3,17,40-42')
     .option('--psi <number>', 'truncation ψ of the probes', number('--psi', 0, 2), 0.7)
     .option('--seed <n>', 'seed of probes, σ samples and bootstrap', integer('--seed', 0, 0xffffffff), 1)
@@ -178,6 +179,9 @@ export function addLabCommands(program: Command, ctx: CliContext, number: (n: st
       if (o.distance === 'features' && !o.featureScorer) throw ctx.usage("--distance features needs --feature-scorer <card>");
       if (!['all', 'none'].includes(o.combinations)) throw ctx.usage(`--combinations must be all or none; got '${o.combinations}'`);
       if (o.pass >= o.fail) throw ctx.usage(`--pass (${o.pass}) must be below --fail (${o.fail})`);
+      // The range stated in --help is the range accepted: checked here, before any work starts.
+      const pinned = o.pin ? parseSeeds(o.pin) : [];
+      if (o.probes + pinned.length < PROBE_LIMITS.minTotal) throw ctx.usage(`--probes ${o.probes} with ${pinned.length} --pin seed(s) makes ${o.probes + pinned.length} probe(s); an audit needs at least ${PROBE_LIMITS.minTotal} in all (--probes ${PROBE_LIMITS.min}–${PROBE_LIMITS.max}, 0 only with --pin)`);
       const workspace = await openWorkspace(o.model, o.threads);
       const scorers: ScorerModel[] = [];
       try {
@@ -188,7 +192,7 @@ export function addLabCommands(program: Command, ctx: CliContext, number: (n: st
         const attributes = ['default', 'card', 'image', 'all'].includes(o.attributes) ? o.attributes : String(o.attributes).split(',');
         const steps = runAudit(workspace.requireGenerator(), dirs, {
           probes: o.probes,
-          pinnedSeeds: o.pin ? parseSeeds(o.pin) : [],
+          pinnedSeeds: pinned,
           psi: o.psi,
           seed: o.seed,
           strengths: parseGrid(o.strengths, ctx.usage),

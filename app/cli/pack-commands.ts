@@ -1,5 +1,6 @@
 // `plumbline pack`, `verify`, `apply` and `import`.
 import type { Command } from 'commander';
+import { existsSync, readFileSync } from 'node:fs';
 import { join, resolve } from 'node:path';
 import { createHash, createPrivateKey, createPublicKey, type KeyObject } from 'node:crypto';
 import { READ_LIMITS, chosenOutputFile, readRegularFile, readTextFile } from '../core/path-policy.ts';
@@ -18,6 +19,7 @@ import { parseSeeds } from './seeds.ts';
 import { runCliJob } from './jobs.ts';
 import { parseRecipe, renderVariants, type VariantDirection } from '../engine/variants.ts';
 import { driveSteps } from '../engine/handlers/context.ts';
+import { checkUse, useViolations } from '../core/signoff-rules.ts';
 import { loadDirections, openWorkspace, type CliContext } from './lab-commands.ts';
 
 /** One exit code per failure class, so pipelines can tell them apart (docs/preset-pack.md). */
@@ -132,7 +134,8 @@ export function addPackCommands(program: Command, ctx: CliContext): void {
     .option('--set <name=strength>', 'a direction and its strength in σ; repeatable', (v: string, prev: string[]) => [...prev, v], [] as string[])
     .option('--psi <number>', 'truncation ψ (default: the generator card’s)')
     .option('--preview <name>', "re-render a direction's pack preview exactly, for comparison")
-    .option('--force', 'allow strengths outside the audited safe range (says so in the manifest)')
+    .option('--force', 'allow strengths outside the audited safe range (needs --reason; recorded in the manifest)')
+    .option('--reason <text>', 'why --force is needed; recorded in the manifest')
     .option('--trust <key.pem>', 'require a signature by this Ed25519 public key (PEM); repeatable', collect, [] as string[])
     .requiredOption('-o, --out <dir>', 'output folder')
     .action(async (o) => withPackErrors(() => withVerifiedPack(o, async (v, gen) => {
@@ -159,11 +162,18 @@ export function addPackCommands(program: Command, ctx: CliContext): void {
         if (!d) throw ctx.usage(`--set: the pack has no direction '${m[1]}'; it holds ${v.directions.map((x) => x.name).join(', ')}`);
         return { d, strength: Number(m[2]) };
       });
-      const outside = sets.filter(({ d, strength }) => strength < d.safeRange[0] || strength > d.safeRange[1]);
-      if (outside.length && !o.force) {
-        throw ctx.usage(`refusing strengths outside the audited safe range: ${outside.map(({ d, strength }) => `${d.name}=${strength} (safe ${d.safeRange[0]}…${d.safeRange[1]})`).join(', ')}; pass --force to render anyway (recorded in the manifest)`);
+      // The rules shared with variant sets and the app (app/core/signoff-rules.ts); a pack holds approved directions only.
+      let decision;
+      try {
+        decision = checkUse(
+          useViolations([{ label: 'apply', strengths: Object.fromEntries(sets.map(({ d, strength }) => [d.name, strength])) }], v.directions.map((d) => ({ name: d.name, status: 'approved' as const, safeRange: d.safeRange }))),
+          o.force ? { reason: o.reason ?? '' } : null,
+          'pass --force --reason "…" to render anyway (recorded in the manifest)',
+        );
+      } catch (err) {
+        throw ctx.usage((err as Error).message);
       }
-      if (outside.length) process.stderr.write(`warning: forced outside the safe range: ${outside.map(({ d, strength }) => `${d.name}=${strength}`).join(', ')}\n`);
+      if (decision.forced.length) process.stderr.write(`warning: forced outside the safe range: ${decision.forced.map((f) => `${f.direction}=${f.strength}`).join(', ')} (reason: ${decision.reason})\n`);
       const psi = o.psi === undefined ? gen.info.defaultPsi : Number(o.psi);
       const images = [];
       for (let at = 0; at < seeds.length; at += gen.batchSize) {
@@ -181,7 +191,7 @@ export function addPackCommands(program: Command, ctx: CliContext): void {
       }
       writeFileAtomic(join(out, 'manifest.json'), JSON.stringify({
         format: 'plumbline.applied', version: 1, createdAt: new Date().toISOString(), pack: v.pack.manifest.project,
-        generator: v.pack.manifest.generator, ...(latents ? { latents: { file: resolve(o.latents), sha256: latents.sha256 } } : { psi }), settings: sets.map(({ d, strength }) => ({ direction: d.name, strength, safeRange: d.safeRange, forced: strength < d.safeRange[0] || strength > d.safeRange[1] })), images,
+        generator: v.pack.manifest.generator, ...(latents ? { latents: { file: resolve(o.latents), sha256: latents.sha256 } } : { psi }), settings: sets.map(({ d, strength }) => ({ direction: d.name, strength, safeRange: d.safeRange, forced: strength < d.safeRange[0] || strength > d.safeRange[1] })), forceReason: decision.reason, images,
       }, null, 2) + '\n');
       process.stdout.write(`wrote ${images.length} image(s) and manifest.json to ${out}\n`);
     })));
@@ -193,7 +203,8 @@ export function addPackCommands(program: Command, ctx: CliContext): void {
     .requiredOption('--recipe <file>', 'variant recipe (.json, docs/variant-recipe.md)')
     .option('-d, --directions <file>', 'directions (.npy with .json sidecar)')
     .option('--pack <file>', 'a preset pack instead of --directions (its safe ranges are enforced)')
-    .option('--force', 'allow strengths outside a pack’s safe range')
+    .option('--force', 'allow strengths outside a pack’s safe range (needs --reason; recorded in the manifest)')
+    .option('--reason <text>', 'why --force is needed; recorded in the manifest')
     .option('--trust <key.pem>', 'with --pack: require a signature by this Ed25519 public key (PEM); repeatable', collect, [] as string[])
     .requiredOption('-o, --out <dir>', 'output folder; rerun the same command to resume')
     .action(async (o) => withPackErrors(async () => {
@@ -204,9 +215,9 @@ export function addPackCommands(program: Command, ctx: CliContext): void {
       try {
         const gen = workspace.requireGenerator();
         let dirs: VariantDirection[];
-        if (o.pack) dirs = (await verifyPack(readFile(o.pack), resolve(o.pack), gen, { trust: trusted(o.trust) })).directions;
+        if (o.pack) dirs = (await verifyPack(readFile(o.pack), resolve(o.pack), gen, { trust: trusted(o.trust) })).directions.map((d) => ({ ...d, status: 'approved' as const }));
         else dirs = loadDirections(workspace, o.directions);
-        const steps = renderVariants(gen, recipe, dirs, resolve(o.out), { force: o.force });
+        const steps = renderVariants(gen, recipe, dirs, resolve(o.out), { force: o.force ? { reason: o.reason ?? '' } : null });
         const done = await runCliJob(ctx, workspace, 'variants', 'stopped; run the same command again to resume', (job) => driveSteps(steps, job));
         if (done) process.stdout.write(`${recipe.name}: ${done.rendered} rendered${done.replaced ? ` (${done.replaced} replaced: their recipe entry changed)` : ''}, ${done.reused} kept from an earlier run; manifest.json and contact-sheet.png in ${resolve(o.out)}\n`);
       } finally {

@@ -69,7 +69,8 @@ export const packDirectionSchema = z.object({
   sigma: z.number().positive(),
   safeRange: z.tuple([z.number(), z.number()]),
   audit: z.object({ verdict: z.enum(['pass', 'review', 'fail']), reason: z.string(), leakage: interval, pathLength: interval, probes: z.number().int(), file: z.string().nullable() }),
-  signOff: z.object({ status: z.literal('approved'), reviewer: z.string(), at: z.string(), note: z.string() }),
+  /** override: the written reason when the approval went against the audit (gate: what the audit said then). */
+  signOff: z.object({ status: z.literal('approved'), reviewer: z.string(), at: z.string(), note: z.string(), override: z.string().optional(), gate: z.string().optional() }),
   previewSpec: z.object({ seeds: z.array(z.number().int().min(0)), strengths: z.array(z.number()), psi: z.number() }).nullable(),
   /** Absent in packs from before evidence was recorded; such packs fail verify (nothing to check the range against). */
   evidence: evidenceSchema.optional(),

@@ -124,7 +124,7 @@ export async function buildPack(gen: Generator, projectDir: string, options: { s
     directions.push({
       name: d.name, npy, meta, preview, target: d.target, layers: d.layers, sigma, safeRange: [lo, hi],
       audit: { verdict: audit.entry.verdict, reason: audit.entry.reason, leakage: audit.entry.leakage, pathLength: audit.entry.pathLength, probes: audit.probes, file: audit.file },
-      signOff: { status: 'approved', reviewer: last.reviewer, at: last.at, note: last.note },
+      signOff: { status: 'approved', reviewer: last.reviewer, at: last.at, note: last.note, ...(last.override ? { override: last.override, gate: last.gate ?? '' } : {}) },
       previewSpec: spec,
       evidence,
     });
@@ -164,7 +164,8 @@ function reportHtml(m: Omit<PackManifest, 'entries'>, files: { path: string; byt
   const rows = m.directions.map((d) => `<section><h2>${esc(d.name)} <small>→ ${esc(d.target ?? 'no target')}</small></h2>
 <p><b>${esc(d.audit.verdict)}</b> — ${esc(d.audit.reason)}</p>
 <p>leakage ${esc(d.audit.leakage.value?.toFixed(3))} [${esc(d.audit.leakage.low?.toFixed(3))}–${esc(d.audit.leakage.high?.toFixed(3))}] ${bar(d.audit.leakage.value)} (marks at 0.15 and 0.35) · path length ${esc(d.audit.pathLength.value?.toPrecision(3))} · safe range ${esc(d.safeRange[0])} to ${esc(d.safeRange[1])} σ · ${esc(d.audit.probes)} probes</p>
-<p>approved by ${esc(d.signOff.reviewer)} on ${esc(d.signOff.at)}${d.signOff.note ? ` — ${esc(d.signOff.note)}` : ''}</p>
+<p>approved by ${esc(d.signOff.reviewer)} on ${esc(d.signOff.at)}${d.signOff.note ? ` — ${esc(d.signOff.note)}` : ''}</p>${d.signOff.override ? `
+<p style="border-left:4px solid #e26d5c;padding-left:8px"><b>Approved by override</b> although ${esc(d.signOff.gate ?? 'its audit did not support it')}. Reason given: ${esc(d.signOff.override)}</p>` : ''}
 <figure><img alt="${esc(d.name)} preview: seeds ${esc(d.previewSpec?.seeds.join(', '))} at strengths ${esc(d.previewSpec?.strengths.join(', '))}" src="${esc(png(d.preview))}"><figcaption>rows: seeds ${esc(d.previewSpec?.seeds.join(', '))}; columns: strengths ${esc(d.previewSpec?.strengths.join(', '))} σ at ψ ${esc(d.previewSpec?.psi)}</figcaption></figure></section>`).join('\n');
   return `<!doctype html><html lang="en"><head><meta charset="utf-8"><meta http-equiv="Content-Security-Policy" content="default-src 'none'; img-src data:; style-src 'unsafe-inline'"><title>${esc(m.project)} — preset pack</title>
 <style>body{font:14px system-ui,sans-serif;background:#14181d;color:#e6e9ec;margin:2em;max-width:980px}section{border-top:1px solid #2f3a46;padding:1em 0}small{color:#95a1ad}img{image-rendering:auto;max-width:100%}code{font-family:monospace}</style></head>

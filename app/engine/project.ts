@@ -3,21 +3,29 @@
 //   directions/         one .npy + .json per direction
 //   audits/             audit reports (JSON)
 //   review-log.jsonl    append-only sign-off history, one JSON object per line
+//   .plumbline-lock.json who has the project open for writing (pid, host, session, renewed at)
 // Every write except the log is atomic (temp file + rename); the log is appended and flushed.
 // Every path goes through the path policy: nothing is read or written outside the folder, and a
 // bad entry on disk (a hostile name, a file outside) is refused on its own — the project opens.
-import { appendFileSync, closeSync, existsSync, fsyncSync, mkdirSync, openSync, readFileSync, readdirSync } from 'node:fs';
-import { basename, join, resolve } from 'node:path';
+// A new project is made only in a folder that does not exist yet or is empty, and never in or
+// under a system folder (newProjectFolderProblem); a second window or tab on a locked project
+// gets a read-only Project whose writes are refused.
+import { appendFileSync, closeSync, existsSync, fsyncSync, mkdirSync, openSync, readFileSync, readdirSync, realpathSync, renameSync, rmSync, statSync, writeFileSync } from 'node:fs';
+import { basename, dirname, join, resolve, sep } from 'node:path';
 import { createHash } from 'node:crypto';
+import { homedir, hostname, tmpdir } from 'node:os';
 import { z } from 'zod';
 import { removeStaleTemps, writeFileAtomic } from '../core/atomic-write.ts';
 import { READ_LIMITS, projectFile, readRegularFile, readTextFile } from '../core/path-policy.ts';
 import { directionNameKey, directionNameProblem } from '../protocol/names.ts';
+import { encodePng } from '../core/image.ts';
+import { decode as decodePng } from 'fast-png';
 import { writeDirections } from '../core/direction-files.ts';
 import { parseDirectionsMeta, readDirections, type Direction, type LatentLayout } from '../core/directions.ts';
 import { PlumblineError } from '../core/errors.ts';
 import { parseJsonFile } from '../core/json-file.ts';
-import { reviewEntrySchema, type ReviewEntry, type SignOff } from '../protocol/messages.ts';
+import { reviewEntrySchema, variantDraftSchema, PROBE_LIMITS, type LockHolder, type ReviewEntry, type SignOff, type ReviewStatusName } from '../protocol/messages.ts';
+import { approvalGate, checkTransition, transitions, type AuditRecord, type Override } from '../core/signoff-rules.ts';
 
 export const PROJECT_FORMAT = 'plumbline.project';
 
@@ -27,6 +35,8 @@ const uiSchema = z.object({
   strengths: z.record(z.string(), z.number()),
   pinned: z.array(z.number().int().min(0)),
   tags: z.record(z.string(), z.enum(['has', 'lacks'])),
+  variants: variantDraftSchema.optional(),
+  auditProbes: z.number().int().min(PROBE_LIMITS.min).max(PROBE_LIMITS.max).optional(),
 });
 
 const projectSchema = z.object({
@@ -34,8 +44,9 @@ const projectSchema = z.object({
   version: z.literal(1),
   name: z.string(),
   generator: z.object({ name: z.string(), fingerprint: z.string() }).nullable(),
-  // Checked entry by entry on open (Project.open), so one bad entry does not lock the project.
-  directions: z.array(z.object({ name: z.string(), file: z.string() })),
+  // Names are checked entry by entry on open (Project.open), so one bad entry does not lock the project.
+  /** hash and changedAt: the vector's hash and when it last changed (audits before that do not count for sign-off). */
+  directions: z.array(z.object({ name: z.string(), file: z.string(), hash: z.string().optional(), changedAt: z.string().optional() })),
   ui: uiSchema.nullable().default(null),
   savedAt: z.string(),
 });
@@ -49,11 +60,129 @@ export function vectorHash(vector: Float32Array, layers: [number, number] | null
 /** Sub-folders a project writes into; each is swept for leftovers of interrupted writes on open. */
 const PROJECT_FOLDERS = ['', 'directions', 'audits', 'renders'];
 
+/**
+ * Folders no project may be made in or under: the operating system's own. Paths inside the
+ * user's home or the temporary folder are allowed even where those live under one of these (macOS
+ * keeps temporary folders under /var). From the Filesystem Hierarchy Standard 3.0 (Linux), Apple's
+ * "File System Programming Guide" (macOS) and Windows' known folders.
+ */
+export const SYSTEM_FOLDERS = [
+  '/', '/bin', '/boot', '/dev', '/etc', '/lib', '/lib32', '/lib64', '/libx32', '/opt', '/proc', '/root', '/run', '/sbin', '/srv', '/sys', '/usr', '/var', '/snap',
+  '/System', '/Library', '/Applications', '/private', '/cores', '/Volumes',
+  'C:\\Windows', 'C:\\Program Files', 'C:\\Program Files (x86)', 'C:\\ProgramData',
+];
+
+/** Whether `path` is `root` or lies under it; a filesystem root ('/', 'C:\\') matches only itself. */
+const within = (path: string, root: string) => path === root || (dirname(root) !== root && path.startsWith(root + sep));
+
+/** The real path of `path`'s nearest existing ancestor joined with the rest (symlinks resolved). */
+function realish(path: string): string {
+  let head = path;
+  const rest: string[] = [];
+  while (!existsSync(head) && dirname(head) !== head) {
+    rest.unshift(basename(head));
+    head = dirname(head);
+  }
+  try {
+    return join(realpathSync(head), ...rest);
+  } catch {
+    return path;
+  }
+}
+
+/**
+ * Why a new project may not be made at `path`, or null when it may: the folder must not exist
+ * yet or be empty, must be a folder, and must not be in or under a system folder. Checks only;
+ * writes nothing. (The engine-wide path policy for every write is a separate, wider module.)
+ */
+export function newProjectFolderProblem(path: string): string | null {
+  const dir = resolve(path);
+  const real = realish(dir);
+  const safeRoots = [homedir(), tmpdir()].map((r) => realish(resolve(r)));
+  const inSafe = safeRoots.some((r) => within(real, r) && real !== r);
+  const system = SYSTEM_FOLDERS.find((f) => within(real, f) || within(dir, f));
+  if (!inSafe && system) return `${dir} is ${real === system || dir === system ? 'a system folder' : `inside the system folder ${system}`}; choose a new or empty folder in your home or on a project drive`;
+  if (safeRoots.includes(real)) return `${dir} is your home or temporary folder itself; choose a new or empty folder inside it`;
+  if (existsSync(dir)) {
+    if (!statSync(dir).isDirectory()) return `${dir} is a file, not a folder`;
+    const entries = readdirSync(dir);
+    if (entries.length) return `${dir} is not empty (it holds ${entries.slice(0, 3).join(', ')}${entries.length > 3 ? `, … ${entries.length} entries` : ''}); a new project needs a new or empty folder`;
+  }
+  return null;
+}
+
+export const LOCK_FILE = '.plumbline-lock.json';
+/** Holders renew their lock every LOCK_RENEW_MS; one not renewed for LOCK_STALE_MS is stale (missed 4 renewals). Our own choice. */
+export const LOCK_RENEW_MS = 20_000;
+export const LOCK_STALE_MS = 90_000;
+
+function pidAlive(pid: number): boolean {
+  try {
+    process.kill(pid, 0);
+    return true;
+  } catch (err) {
+    // EPERM: the process exists but belongs to someone else.
+    return (err as NodeJS.ErrnoException).code === 'EPERM';
+  }
+}
+
+/** Reads a lock file; a torn or unreadable one counts as no lock. */
+function readLock(file: string): LockHolder | null {
+  try {
+    const v = JSON.parse(readFileSync(file, 'utf8')) as LockHolder;
+    return typeof v.pid === 'number' && typeof v.host === 'string' && typeof v.session === 'string' && typeof v.at === 'string' ? v : null;
+  } catch {
+    return null;
+  }
+}
+
+/** Whether a lock no longer holds: its process is gone (same machine) or it has not been renewed. */
+export function lockIsStale(holder: LockHolder, now = Date.now()): boolean {
+  if (holder.host === hostname() && !pidAlive(holder.pid)) return true;
+  const at = Date.parse(holder.at);
+  return !Number.isFinite(at) || now - at > LOCK_STALE_MS;
+}
+
+/**
+ * Takes or renews the project's lock for `session`. Returns the holder; the caller is read-only
+ * when the holder is another live session.
+ */
+export function acquireLock(dir: string, session: string): { readOnly: boolean; holder: LockHolder } {
+  const file = join(dir, LOCK_FILE);
+  const mine: LockHolder = { pid: process.pid, host: hostname(), session, at: new Date().toISOString() };
+  const current = existsSync(file) ? readLock(file) : null;
+  if (current && current.session !== session && !lockIsStale(current)) return { readOnly: true, holder: current };
+  if (!current && !existsSync(file)) {
+    try {
+      // Exclusive create: of two openers racing for a free project, exactly one wins.
+      writeFileSync(file, JSON.stringify(mine) + '\n', { flag: 'wx' });
+      return { readOnly: false, holder: mine };
+    } catch {
+      const raced = readLock(file);
+      if (raced && raced.session !== session) return { readOnly: true, holder: raced };
+    }
+  }
+  writeFileAtomic(file, JSON.stringify(mine) + '\n');
+  return { readOnly: false, holder: mine };
+}
+
+export function releaseLock(dir: string, session: string): void {
+  const file = join(dir, LOCK_FILE);
+  if (readLock(file)?.session === session) rmSync(file, { force: true });
+}
+
+/** A stored audit result of one direction, with the name it was stored under. */
+export type StoredAudit = AuditRecord & { name: string };
+
 export class Project {
   /** Entries refused on open or on loading, each with its reason (shown to the user, never silently dropped). */
   readonly refused: string[] = [];
   /** Temporary files of interrupted writes removed on open. */
   cleaned: string[] = [];
+  /** Set when another session holds the lock: every write is refused. */
+  readOnly = false;
+  lockHolder: LockHolder | null = null;
+  #audits: StoredAudit[] | null = null;
 
   private constructor(readonly dir: string, public doc: ProjectDoc) {}
 
@@ -62,6 +191,8 @@ export class Project {
     const file = join(dir, 'project.json');
     if (!existsSync(file)) {
       if (!create) throw new PlumblineError('file-missing', `${file}: no Plumbline project here (create one first)`, { file });
+      const problem = newProjectFolderProblem(dir);
+      if (problem) throw new PlumblineError('bad-request', `cannot create a project here: ${problem}`, { file: dir });
       for (const sub of PROJECT_FOLDERS) mkdirSync(join(dir, sub), { recursive: true });
       const p = new Project(dir, { format: PROJECT_FORMAT, version: 1, name: basename(dir), generator, directions: [], ui: null, savedAt: new Date().toISOString() });
       p.save();
@@ -88,7 +219,23 @@ export class Project {
     return p;
   }
 
+  /** Takes (or finds taken) the lock for a session; a project locked by another session becomes read-only. */
+  lock(session: string): { readOnly: boolean; holder: LockHolder } {
+    const r = acquireLock(this.dir, session);
+    this.readOnly = r.readOnly;
+    this.lockHolder = r.holder;
+    return r;
+  }
+
+  #writable(): void {
+    if (this.readOnly) {
+      const h = this.lockHolder;
+      throw new PlumblineError('bad-request', `${this.dir}: opened read-only — another window${h ? ` (process ${h.pid} on ${h.host}, since ${h.at})` : ''} has this project open; close it there to edit here`, { file: this.dir });
+    }
+  }
+
   save(): void {
+    this.#writable();
     this.doc.savedAt = new Date().toISOString();
     writeFileAtomic(join(this.dir, 'project.json'), JSON.stringify(this.doc, null, 2) + '\n');
   }
@@ -100,6 +247,7 @@ export class Project {
   }
 
   saveDirection(d: { name: string; target: string | null; layers: [number, number] | null; vector: Float32Array; notes: string; source: object }, space: 'z' | 'w' | 'w+'): void {
+    this.#writable();
     const problem = directionNameProblem(d.name);
     if (problem) throw new PlumblineError('directions-invalid', `${join(this.dir, 'project.json')}: cannot save direction '${String(d.name).slice(0, 60)}': the name ${problem}`, { file: join(this.dir, 'project.json') });
     const clash = this.doc.directions.find((x) => x.name !== d.name && directionNameKey(x.name) === directionNameKey(d.name));
@@ -109,8 +257,109 @@ export class Project {
     projectFile(this.dir, rel);
     projectFile(this.dir, `directions/${d.name}.json`);
     writeDirections(join(this.dir, rel), [d], space);
-    if (!this.doc.directions.some((x) => x.name === d.name)) this.doc.directions.push({ name: d.name, file: rel });
+    const hash = vectorHash(d.vector, d.layers);
+    const entry = this.doc.directions.find((x) => x.name === d.name);
+    if (!entry) this.doc.directions.push({ name: d.name, file: rel, hash, changedAt: new Date().toISOString() });
+    else if (entry.hash !== hash) Object.assign(entry, { hash, changedAt: new Date().toISOString() });
     this.save();
+  }
+
+  /**
+   * Renames a direction before it has a history: its review log entries and audits are keyed by
+   * name, so a direction that has either keeps its name (a copy under the new name is the way).
+   */
+  renameDirection(from: string, to: string): void {
+    this.#writable();
+    const entry = this.doc.directions.find((x) => x.name === from);
+    if (!entry) throw new PlumblineError('bad-request', `${this.dir}: no direction '${from}' in the project`);
+    const problem = directionNameProblem(to);
+    if (problem) throw new PlumblineError('bad-request', `cannot rename '${from}': the name ${problem}`);
+    const clash = this.doc.directions.find((x) => x !== entry && directionNameKey(x.name) === directionNameKey(to));
+    if (clash) throw new PlumblineError('bad-request', `a direction is already named '${clash.name}' (names are compared ignoring case)`);
+    if (this.reviews().some((e) => e.direction === from) || this.storedAudits().some((a) => a.name === from)) {
+      throw new PlumblineError('bad-request', `'${from}' has sign-off or audit history under its name; it keeps that name so the history stays attached`);
+    }
+    // Every file through the path policy: a symlinked directions/ cannot carry the move elsewhere.
+    const npy = projectFile(this.dir, entry.file);
+    const meta = projectFile(this.dir, entry.file.replace(/\.npy$/, '.json'));
+    const rel = `directions/${to}.npy`;
+    const target = projectFile(this.dir, rel);
+    projectFile(this.dir, `directions/${to}.json`);
+    if (existsSync(meta)) {
+      const doc = JSON.parse(readTextFile(meta, 'directions metadata')) as { file?: string; directions?: { name: string }[] };
+      doc.file = `${to}.npy`;
+      for (const d of doc.directions ?? []) if (d.name === from) d.name = to;
+      writeFileAtomic(join(this.dir, `directions/${to}.json`), JSON.stringify(doc, null, 2) + '\n');
+      rmSync(meta);
+    }
+    renameSync(npy, target);
+    Object.assign(entry, { name: to, file: rel });
+    this.save();
+  }
+
+  /**
+   * Takes a direction out of the project. Its files move to directions/deleted/ with a time
+   * stamp (nothing is destroyed); its review log and audits stay as history.
+   */
+  deleteDirection(name: string): void {
+    this.#writable();
+    const entry = this.doc.directions.find((x) => x.name === name);
+    if (!entry) throw new PlumblineError('bad-request', `${this.dir}: no direction '${name}' in the project`);
+    const stamp = new Date().toISOString().replace(/[:.]/g, '-');
+    mkdirSync(join(this.dir, 'directions', 'deleted'), { recursive: true });
+    for (const file of [entry.file, entry.file.replace(/\.npy$/, '.json')]) {
+      const from = projectFile(this.dir, file);
+      if (existsSync(from)) renameSync(from, projectFile(this.dir, `directions/deleted/${stamp}-${basename(file)}`));
+    }
+    this.doc.directions = this.doc.directions.filter((x) => x !== entry);
+    this.save();
+  }
+
+  /**
+   * Keeps an unkept discovery candidate (vector, metadata and its preview strip) in candidates/
+   * until it is kept or discarded, so a reload or a crash does not lose it.
+   */
+  saveCandidate(key: string, d: { name: string; target: string | null; layers: [number, number] | null; vector: Float32Array; notes: string; source: object }, space: 'z' | 'w' | 'w+', strip: { seeds: number[]; strengths: number[]; images: { width: number; height: number; rgba: Uint8Array }[] }): void {
+    this.#writable();
+    if (!/^[A-Za-z0-9_-]{1,80}$/.test(key)) throw new PlumblineError('bad-request', `bad candidate key '${key}'`);
+    writeDirections(projectFile(this.dir, `candidates/${key}.npy`), [d], space);
+    projectFile(this.dir, `candidates/${key}.json`);
+    const images = strip.images.map((i) => Buffer.from(encodePng({ width: i.width, height: i.height, data: new Uint8ClampedArray(i.rgba.buffer, i.rgba.byteOffset, i.rgba.byteLength) })).toString('base64'));
+    writeFileAtomic(projectFile(this.dir, `candidates/${key}.strip.json`), JSON.stringify({ seeds: strip.seeds, strengths: strip.strengths, png: images }) + '\n');
+  }
+
+  /** The candidates kept in candidates/, oldest first; unreadable ones are skipped. */
+  loadCandidates(layout: LatentLayout): { key: string; direction: Direction; strip: { seeds: number[]; strengths: number[]; images: { width: number; height: number; rgba: Uint8Array }[] } }[] {
+    const dir = join(this.dir, 'candidates');
+    if (!existsSync(dir)) return [];
+    return readdirSync(dir).filter((f) => f.endsWith('.npy')).sort().flatMap((f) => {
+      const key = f.slice(0, -4);
+      try {
+        // Read through the path policy with its size caps; an unreadable candidate is skipped.
+        const npy = projectFile(this.dir, `candidates/${f}`);
+        const metaFile = projectFile(this.dir, `candidates/${key}.json`);
+        const meta = parseDirectionsMeta(readTextFile(metaFile, 'candidate metadata'), metaFile);
+        const [direction] = readDirections(readRegularFile(npy, 'candidate array', READ_LIMITS.npyBytes), npy, meta, layout, key);
+        const s = JSON.parse(readTextFile(projectFile(this.dir, `candidates/${key}.strip.json`), 'candidate strip')) as { seeds: number[]; strengths: number[]; png: string[] };
+        const images = s.png.map((b) => {
+          const png = decodePng(Buffer.from(b, 'base64'));
+          return { width: png.width, height: png.height, rgba: new Uint8Array(png.data.buffer, png.data.byteOffset, png.data.byteLength) };
+        });
+        return [{ key, direction, strip: { seeds: s.seeds, strengths: s.strengths, images } }];
+      } catch {
+        return [];
+      }
+    });
+  }
+
+  removeCandidate(key: string): void {
+    this.#writable();
+    for (const ext of ['.npy', '.json', '.strip.json']) rmSync(join(this.dir, 'candidates', `${basename(key)}${ext}`), { force: true });
+  }
+
+  /** When a direction's vector last changed, as recorded (null for projects from before this was kept). */
+  changedAt(name: string): string | null {
+    return this.doc.directions.find((x) => x.name === name)?.changedAt ?? null;
   }
 
   /** The project's directions; an entry that cannot be read safely is refused (see `refused`), the rest load. */
@@ -130,10 +379,42 @@ export class Project {
     });
   }
 
-  saveAudit(report: object): string {
-    const name = `audit-${new Date().toISOString().replace(/[:.]/g, '-')}.json`;
-    writeFileAtomic(join(this.dir, 'audits', name), JSON.stringify(report, null, 2) + '\n');
+  /**
+   * Stores a full audit report (settings, probes, thumbnails) as a new file: audits are history
+   * and never overwrite one another. `hashes` gives each audited direction's vector hash, kept
+   * beside its result so sign-off can tell which version was audited.
+   */
+  saveAudit(report: { directions: { name: string }[] }, hashes: Record<string, string> = {}): string {
+    this.#writable();
+    const stamp = new Date().toISOString().replace(/[:.]/g, '-');
+    let name = `audit-${stamp}.json`;
+    for (let k = 2; existsSync(join(this.dir, 'audits', name)); k++) name = `audit-${stamp}-${k}.json`;
+    const stored = { ...report, directions: report.directions.map((d) => ({ ...d, vectorHash: hashes[d.name] ?? null })) };
+    writeFileAtomic(join(this.dir, 'audits', name), JSON.stringify(stored, null, 2) + '\n');
+    this.#audits = null;
     return `audits/${name}`;
+  }
+
+  /** Every stored result of every direction, oldest file first (read once, then cached). */
+  storedAudits(): StoredAudit[] {
+    if (this.#audits) return this.#audits;
+    const out: StoredAudit[] = [];
+    for (const file of this.audits()) {
+      const report = this.readAudit(file);
+      if (!report) continue;
+      for (const d of report.directions) out.push({ name: d.name, at: report.createdAt, file: `audits/${file}`, vectorHash: d.vectorHash ?? null, verdict: d.verdict, reason: d.reason, probes: report.probes.count, safeRange: d.safeRange });
+    }
+    return (this.#audits = out);
+  }
+
+  /** One stored report, or null when it cannot be read (skipped, never fatal). */
+  readAudit(file: string): StoredReport | null {
+    try {
+      const r = JSON.parse(readFileSync(join(this.dir, 'audits', basename(file)), 'utf8')) as StoredReport;
+      return Array.isArray(r.directions) && typeof r.createdAt === 'string' && r.probes ? r : null;
+    } catch {
+      return null;
+    }
   }
 
   audits(): string[] {
@@ -142,6 +423,7 @@ export class Project {
   }
 
   appendReview(entry: ReviewEntry): void {
+    this.#writable();
     const file = join(this.dir, 'review-log.jsonl');
     appendFileSync(file, JSON.stringify(reviewEntrySchema.parse(entry)) + '\n', { flag: 'a' });
     const fd = openSync(file, 'r+');
@@ -168,8 +450,87 @@ export class Project {
   signOff(name: string, hash: string): SignOff {
     const history = this.reviews().filter((e) => e.direction === name);
     const last = history.at(-1);
-    if (!last) return { status: 'draft', approvalReset: false, history };
-    if (last.vectorHash !== hash && (last.status === 'approved' || last.status === 'rejected')) return { status: 'in-review', approvalReset: true, history };
-    return { status: last.status, approvalReset: false, history };
+    const base = (status: ReviewStatusName, approvalReset: boolean): SignOff => {
+      const mine = this.storedAudits().filter((a) => a.name === name);
+      const changedAt = this.changedAt(name);
+      const gate = approvalGate({ vectorHash: hash, changedAt }, mine);
+      return {
+        status, approvalReset, history,
+        gate: { state: gate.state, explanation: gate.explanation },
+        transitions: transitions(status, gate),
+        audits: mine.map((a) => ({ at: a.at, file: a.file, verdict: a.verdict, reason: a.reason, probes: a.probes, current: a.vectorHash === hash && (!changedAt || a.at >= changedAt) })).reverse(),
+      };
+    };
+    if (!last) return base('draft', false);
+    if (last.vectorHash !== hash && (last.status === 'approved' || last.status === 'rejected')) return base('in-review', true);
+    return base(last.status, false);
   }
+
+  /**
+   * Records one sign-off step after the rule module allows it: refused for a no-op, and for an
+   * approval the audits do not support unless an override reason is given (then recorded as one).
+   */
+  review(name: string, hash: string, step: { status: ReviewStatusName; reviewer: string; note: string; override?: string }): SignOff {
+    const now = this.signOff(name, hash);
+    const gate = approvalGate({ vectorHash: hash, changedAt: this.changedAt(name) }, this.storedAudits().filter((a) => a.name === name));
+    const override: Override | null = step.override?.trim() ? { reason: step.override } : null;
+    const r = checkTransition(name, now.status, step.status, gate, override);
+    this.appendReview({
+      at: new Date().toISOString(), direction: name, vectorHash: hash, status: step.status, reviewer: step.reviewer, note: step.note,
+      ...(r.override ? { override: override!.reason.trim(), gate: gate.explanation } : {}),
+    });
+    return this.signOff(name, hash);
+  }
+}
+
+/** The fields of a stored audit report this module reads. */
+export interface StoredReport {
+  createdAt: string;
+  probes: { count: number };
+  directions: { name: string; vectorHash?: string | null; verdict: 'pass' | 'review' | 'fail'; reason: string; safeRange: [number, number]; worstProbes?: { seed: number; strength: number; attribute: string; leakage: number; before: string; after: string }[] }[];
+  attributes?: { name: string }[];
+  combinations?: unknown[];
+  warnings?: string[];
+}
+
+export interface AuditThumbnail { direction: string; seed: number; strength: number; attribute: string; leakage: number; before: Uint8Array; after: Uint8Array }
+
+/**
+ * Every stored audit merged into one report: for each direction of the project, its newest
+ * result (with the file and time it came from), so an audit of two directions never hides the
+ * earlier results of the others. Attributes are the union; combinations and warnings come from
+ * the newest report. Null when nothing was audited yet.
+ */
+export function mergedAuditHistory(project: Project, names: readonly string[]): { report: Record<string, unknown> | null; thumbnails: AuditThumbnail[]; files: string[] } {
+  const files = project.audits();
+  const reports = files.map((f) => ({ file: `audits/${f}`, report: project.readAudit(f) })).filter((r): r is { file: string; report: StoredReport } => !!r.report);
+  if (!reports.length) return { report: null, thumbnails: [], files };
+  reports.sort((a, b) => (a.report.createdAt < b.report.createdAt ? -1 : a.report.createdAt > b.report.createdAt ? 1 : 0));
+  const newest = reports.at(-1)!;
+  const latest = new Map<string, { entry: StoredReport['directions'][number]; file: string; at: string }>();
+  for (const r of reports) for (const d of r.report.directions) latest.set(d.name, { entry: d, file: r.file, at: r.report.createdAt });
+  const attributes = new Map<string, unknown>();
+  for (const r of [...reports].reverse()) for (const a of r.report.attributes ?? []) if (!attributes.has(a.name)) attributes.set(a.name, a);
+  const keep = names.filter((n) => latest.has(n));
+  const thumbnails: AuditThumbnail[] = keep.flatMap((n) => (latest.get(n)!.entry.worstProbes ?? []).map((w) => ({ direction: n, seed: w.seed, strength: w.strength, attribute: w.attribute, leakage: w.leakage, before: fromDataUri(w.before), after: fromDataUri(w.after) })));
+  const directions = keep.map((n) => {
+    const { entry, file, at } = latest.get(n)!;
+    const { worstProbes, ...rest } = entry;
+    return { ...rest, worstProbes: (worstProbes ?? []).map(({ before: _b, after: _a, ...w }) => w), auditedAt: at, auditFile: file };
+  });
+  return { report: { ...newest.report, attributes: [...attributes.values()], directions }, thumbnails, files };
+}
+
+function fromDataUri(uri: string): Uint8Array {
+  return new Uint8Array(Buffer.from(uri.slice(uri.indexOf(',') + 1), 'base64'));
+}
+
+/** What the use rules need to know of each direction: its sign-off status and its audited safe range. */
+export function directionUses(project: Project | null, dirs: readonly { name: string; vector: Float32Array; layers: [number, number] | null }[]): { name: string; status: ReviewStatusName | null; safeRange: [number, number] | null }[] {
+  return dirs.map((d) => {
+    if (!project) return { name: d.name, status: null, safeRange: null };
+    const hash = vectorHash(d.vector, d.layers);
+    const gate = approvalGate({ vectorHash: hash, changedAt: project.changedAt(d.name) }, project.storedAudits().filter((a) => a.name === d.name));
+    return { name: d.name, status: project.signOff(d.name, hash).status, safeRange: gate.audit?.safeRange ?? null };
+  });
 }

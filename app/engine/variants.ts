@@ -16,6 +16,7 @@ import { chosenOutputFolder, readTextFile } from '../core/path-policy.ts';
 import { variantLabelSchema } from '../protocol/names.ts';
 import { drawText, GLYPH_HEIGHT } from '../core/label-font.ts';
 import type { Generator } from './generator.ts';
+import { checkUse, useViolations, type Override, type ReviewStatus, type Violation } from '../core/signoff-rules.ts';
 
 export const recipeSchema = z.object({
   format: z.literal('plumbline.variant-recipe'),
@@ -33,6 +34,15 @@ export interface VariantDirection {
   layers: [number, number] | null;
   sigma: number;
   safeRange?: [number, number];
+  /** Sign-off status where known (a pack's directions are approved; a bare file's are unknown). */
+  status?: ReviewStatus | null;
+}
+
+export interface VariantOptions {
+  /** Force what the use rules refuse, with a written reason (recorded in the manifest). */
+  force?: Override | null;
+  /** A decision the caller already took with the rule module (the engine host does, with project sign-offs). */
+  forced?: { forced: Violation[]; reason: string | null };
 }
 
 const hashOf = (d: VariantDirection) => createHash('sha256').update(new Uint8Array(d.vector.buffer, d.vector.byteOffset, d.vector.byteLength)).update(JSON.stringify(d.layers)).digest('hex');
@@ -64,15 +74,13 @@ const previousSchema = z.object({
  * its file matches its hash and its key matches this recipe's entry; otherwise it is rendered
  * again and counted as replaced.
  */
-export async function* renderVariants(gen: Generator, recipe: Recipe, directions: VariantDirection[], outFolder: string, options: { force?: boolean } = {}): AsyncGenerator<{ done: number; total: number; label: string }, { manifest: object; rendered: number; reused: number; replaced: number }, void> {
+export async function* renderVariants(gen: Generator, recipe: Recipe, directions: VariantDirection[], outFolder: string, options: VariantOptions = {}): AsyncGenerator<{ done: number; total: number; label: string }, { manifest: object; rendered: number; reused: number; replaced: number }, void> {
   const out = chosenOutputFolder(outFolder, 'the variant-set folder');
   const byName = new Map(directions.map((d) => [d.name, d]));
   for (const s of recipe.settings)
-    for (const [name, strength] of Object.entries(s.strengths)) {
-      const d = byName.get(name);
-      if (!d) throw new PlumblineError('bad-request', `setting '${s.label}' uses unknown direction '${name}'; available: ${[...byName.keys()].join(', ')}`);
-      if (d.safeRange && !options.force && (strength < d.safeRange[0] || strength > d.safeRange[1])) throw new PlumblineError('bad-request', `setting '${s.label}': ${name}=${strength} is outside its audited safe range ${d.safeRange[0]}…${d.safeRange[1]} (use --force to render anyway)`);
-    }
+    for (const name of Object.keys(s.strengths)) if (!byName.has(name)) throw new PlumblineError('bad-request', `setting '${s.label}' uses unknown direction '${name}'; available: ${[...byName.keys()].join(', ')}`);
+  // The rules shared with the engine host and apply (app/core/signoff-rules.ts).
+  const decision = options.forced ?? checkUse(useViolations(recipe.settings, directions.map((d) => ({ name: d.name, status: d.status ?? null, safeRange: d.safeRange ?? null }))), options.force ?? null, 'pass --force --reason "…" to render anyway (recorded in the manifest)');
   const manifestFile = join(out, 'manifest.json');
   // A manifest.json that is not ours is someone else's file: never overwrite it.
   const previous = existsSync(manifestFile) ? parseJsonFile(previousSchema, readTextFile(manifestFile, 'variant-set manifest'), manifestFile, 'not a variant-set manifest (choose another folder)', 'would-overwrite') : null;
@@ -96,6 +104,7 @@ export async function* renderVariants(gen: Generator, recipe: Recipe, directions
       latents: recipe.seeds.map((seed) => ({ seed })),
       directions: directions.map((d) => ({ name: d.name, sha256: hashOf(d), sigma: d.sigma, layers: d.layers })),
       settings: recipe.settings,
+      forced: decision.forced.length ? { reason: decision.reason, settings: decision.forced } : null,
       images,
     }, null, 2) + '\n');
   for (let at = 0; at < jobs.length; at += gen.batchSize) {

@@ -34,6 +34,8 @@ export class Workspace {
   #directions = new Map<string, LoadedDirection>();
   #nextDirection = 1;
   #project: Project | null = null;
+  /** Where each unkept candidate is kept in the project (candidates/<key>.*). */
+  #candidateKeys = new Map<string, string>();
 
   constructor(options: { threads?: number } = {}) {
     this.threads = options.threads ?? defaultThreads();
@@ -112,13 +114,62 @@ export class Workspace {
       Object.assign(d, before);
       throw err;
     }
+    this.#forgetCandidate(id);
     return d;
+  }
+
+  /**
+   * Keeps a discovery candidate in the project's candidates/ until it is kept or discarded, so a
+   * reload or a crash does not lose it (nothing is written into a read-only project).
+   */
+  saveCandidate(d: LoadedDirection, strip: { seeds: number[]; strengths: number[]; images: { width: number; height: number; rgba: Uint8Array }[] }): void {
+    if (!this.#project || this.#project.readOnly) return;
+    const key = `${new Date().toISOString().replace(/[^0-9]/g, '')}-${this.#candidateKeys.size + 1}`;
+    this.#project.saveCandidate(key, d, this.requireGenerator().layout.space, strip);
+    this.#candidateKeys.set(d.id, key);
+  }
+
+  #forgetCandidate(id: string): void {
+    const key = this.#candidateKeys.get(id);
+    if (key && this.#project && !this.#project.readOnly) this.#project.removeCandidate(key);
+    this.#candidateKeys.delete(id);
+  }
+
+  /** Drops unkept candidates, here and in the project. */
+  discard(ids: string[]): number {
+    let n = 0;
+    for (const id of ids) {
+      const d = this.#directions.get(id);
+      if (!d || d.kept) continue;
+      this.#directions.delete(id);
+      this.#forgetCandidate(id);
+      n++;
+    }
+    return n;
+  }
+
+  /** Renames a kept direction (in the project too, where it has no history yet). */
+  rename(id: string, name: string): LoadedDirection {
+    const d = this.direction(id);
+    // Names become file names; compared ignoring case as keep() does.
+    const taken = this.kept().find((x) => directionNameKey(x.name) === directionNameKey(name) && x.id !== d.id);
+    if (taken) throw new PlumblineError('bad-request', `a kept direction is already named '${taken.name}' (names are compared ignoring case)`);
+    if (d.kept && this.#project?.doc.directions.some((x) => x.name === d.name)) this.#project.renameDirection(d.name, name);
+    d.name = name;
+    return d;
+  }
+
+  /** Takes a kept direction out (its project files move to directions/deleted/). */
+  remove(id: string): void {
+    const d = this.direction(id);
+    if (this.#project?.doc.directions.some((x) => x.name === d.name)) this.#project.deleteDirection(d.name);
+    this.#directions.delete(d.id);
   }
 
   /** `base`, or base2, base3… if a kept direction already has that name. */
   uniqueName(base: string): string {
     let name = base;
-    for (let k = 2; this.kept().some((x) => x.name === name); k++) name = `${base}${k}`;
+    for (let k = 2; this.kept().some((x) => directionNameKey(x.name) === directionNameKey(name)); k++) name = `${base}${k}`;
     return name;
   }
 
@@ -150,15 +201,31 @@ export class Workspace {
   /** Opens (or creates) a project folder for this generator. */
   openProject(p: Params<'project.open'>): Outcome<'project.open'> {
     const gen = this.requireGenerator();
-    const project = Project.open(p.path, p.create, { name: gen.info.name, fingerprint: gen.info.fingerprint });
+    const opened = Project.open(p.path, p.create, { name: gen.info.name, fingerprint: gen.info.fingerprint });
+    const lock = p.session ? opened.lock(p.session) : null;
+    // A second tab of this same engine on a project it already holds keeps the writable instance.
+    const project = lock?.readOnly && this.#project?.dir === opened.dir ? this.#project : opened;
     this.#project = project;
     const created = p.create && project.doc.directions.length === 0;
-    if (created) {
+    if (project !== opened) {
+      // Another tab of this engine holds the project: share its directions as they are (reloading
+      // them would give them new ids under the holder's feet).
+    } else if (created) {
       // A new project starts with the directions already on the workbench.
       for (const d of this.kept()) this.save(d);
     } else {
       for (const d of this.kept()) this.#directions.delete(d.id);
       for (const d of project.loadDirections(gen.layout)) this.register(d, true);
+    }
+    // Candidates left in the project come back (unkept); the same ones already here are not doubled.
+    const candidates: Outcome<'project.open'>['candidates'] = [];
+    for (const c of project.loadCandidates(gen.layout)) {
+      let id = [...this.#candidateKeys].find(([, k]) => k === c.key)?.[0];
+      if (!id || !this.#directions.has(id)) {
+        id = this.register(c.direction, false).id;
+        this.#candidateKeys.set(id, c.key);
+      }
+      candidates.push({ direction: this.info(this.direction(id)), strip: c.strip.images, stripSeeds: c.strip.seeds, stripStrengths: c.strip.strengths });
     }
     const fingerprint = project.doc.generator?.fingerprint ?? null;
     return {
@@ -170,6 +237,9 @@ export class Workspace {
       audits: project.audits(),
       ui: project.doc.ui,
       refused: [...project.refused],
+      readOnly: lock?.readOnly ?? false,
+      lockHolder: lock?.holder ?? null,
+      candidates,
     };
   }
 

@@ -2,7 +2,7 @@
 // the engine runs in a utilityProcess and talks to the renderer over a MessagePort directly.
 import { app, BrowserWindow, Menu, MessageChannelMain, dialog, nativeTheme, net, protocol, session, utilityProcess, ipcMain, type UtilityProcess, type MenuItemConstructorOptions } from 'electron';
 import Store from 'electron-store';
-import { existsSync, statSync } from 'node:fs';
+import { existsSync, renameSync, statSync, writeFileSync } from 'node:fs';
 import { dirname, join, normalize, resolve, sep } from 'node:path';
 import { fileURLToPath, pathToFileURL } from 'node:url';
 import { DESKTOP_CHANNELS as C, desktopSchemas } from '../protocol/desktop.ts';
@@ -159,13 +159,35 @@ function registerIpc(): void {
   const isMainFrame = (e: Pick<Electron.IpcMainInvokeEvent, 'senderFrame'>) => !!win && e.senderFrame === win.webContents.mainFrame;
   ipcMain.handle(C.chooseFile, guarded(desktopSchemas[C.chooseFile], async ({ kind }) => {
     if (!win) return null;
-    if (kind === 'project') {
+    if (kind === 'project' || kind === 'folder') {
       const r = await dialog.showOpenDialog(win, { properties: ['openDirectory', 'createDirectory'] });
       return r.canceled ? null : r.filePaths[0] ?? null;
     }
-    const filters = kind === 'generator' ? [{ name: 'Generators and model cards', extensions: ['json', 'onnx'] }] : [{ name: 'Directions', extensions: ['npy', 'json'] }];
+    if (kind === 'pack-save') {
+      const r = await dialog.showSaveDialog(win, { filters: [{ name: 'Preset packs', extensions: ['plpack'] }] });
+      return r.canceled ? null : r.filePath ?? null;
+    }
+    const filters = kind === 'generator' ? [{ name: 'Generators and model cards', extensions: ['json', 'onnx'] }] : kind === 'pack' ? [{ name: 'Preset packs', extensions: ['plpack'] }] : [{ name: 'Directions', extensions: ['npy', 'json'] }];
     const r = await dialog.showOpenDialog(win, { properties: ['openFile'], filters });
     return r.canceled ? null : r.filePaths[0] ?? null;
+  }, isMainFrame));
+  ipcMain.handle(C.printPdf, guarded(desktopSchemas[C.printPdf], async ({ html, name }) => {
+    if (!win) return null;
+    const target = await dialog.showSaveDialog(win, { defaultPath: `${name}.pdf`, filters: [{ name: 'PDF', extensions: ['pdf'] }] });
+    if (target.canceled || !target.filePath) return null;
+    // An offscreen, script-less window renders the report (it fetches nothing: images are data URIs).
+    const page = new BrowserWindow({ show: false, webPreferences: { javascript: false, sandbox: true, contextIsolation: true } });
+    try {
+      await page.loadURL(`data:text/html;charset=utf-8,${encodeURIComponent(html)}`);
+      const pdf = await page.webContents.printToPDF({ printBackground: true, pageSize: 'A4' });
+      // Atomic: a temporary file beside the target, then a rename.
+      const temp = `${target.filePath}.${process.pid}.tmp`;
+      writeFileSync(temp, pdf);
+      renameSync(temp, target.filePath);
+      return target.filePath;
+    } finally {
+      page.destroy();
+    }
   }, isMainFrame));
   ipcMain.handle(C.recentList, guarded(desktopSchemas[C.recentList], () => store.get('recent'), isMainFrame));
   ipcMain.handle(C.recentAdd, guarded(desktopSchemas[C.recentAdd], ({ path }) => {

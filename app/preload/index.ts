@@ -12,7 +12,8 @@ ipcRenderer.on(C.enginePort, (event) => {
 
 contextBridge.exposeInMainWorld('plumbline', {
   platform: 'electron',
-  chooseFile: (kind: 'generator' | 'directions' | 'project') => ipcRenderer.invoke(C.chooseFile, { kind }),
+  chooseFile: (kind: 'generator' | 'directions' | 'project' | 'pack' | 'pack-save' | 'folder') => ipcRenderer.invoke(C.chooseFile, { kind }),
+  printPdf: (html: string, name: string) => ipcRenderer.invoke(C.printPdf, { html, name }),
   pathForFile: (file: File) => webUtils.getPathForFile(file),
   recent: () => ipcRenderer.invoke(C.recentList, {}),
   addRecent: (path: string) => ipcRenderer.invoke(C.recentAdd, { path }),

@@ -6,6 +6,7 @@ export const DESKTOP_CHANNELS = {
   recentAdd: 'plumbline:recent-add',
   settingGet: 'plumbline:setting-get',
   settingSet: 'plumbline:setting-set',
+  printPdf: 'plumbline:print-pdf',
   menu: 'plumbline:menu',
   enginePort: 'plumbline:engine-port',
   engineStopped: 'plumbline:engine-stopped',

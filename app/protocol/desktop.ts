@@ -8,7 +8,10 @@ export { DESKTOP_CHANNELS, MENU_COMMANDS, type MenuCommand } from './channels.ts
 
 export const settingKey = z.enum(['theme', 'threads']);
 export const desktopSchemas = {
-  [DESKTOP_CHANNELS.chooseFile]: z.object({ kind: z.enum(['generator', 'directions', 'project']) }),
+  /** pack: an existing .plpack; pack-save: where to write one; folder: an output folder. */
+  [DESKTOP_CHANNELS.chooseFile]: z.object({ kind: z.enum(['generator', 'directions', 'project', 'pack', 'pack-save', 'folder']) }),
+  /** A self-contained HTML report printed to PDF by Chromium, saved where the user picks. */
+  [DESKTOP_CHANNELS.printPdf]: z.object({ html: z.string().min(1).max(64 * 1024 * 1024), name: z.string().regex(/^[A-Za-z0-9_. -]{1,120}$/) }),
   [DESKTOP_CHANNELS.recentList]: z.object({}),
   [DESKTOP_CHANNELS.recentAdd]: z.object({ path: z.string().min(1).max(4096) }),
   [DESKTOP_CHANNELS.settingGet]: z.object({ key: settingKey }),

@@ -18,6 +18,21 @@ const strength = z.number().finite().min(-50).max(50);
 /** A named reference (a located latent pinned in the project); same rule as app/engine/references.ts. */
 const referenceName = /^[A-Za-z0-9_-][A-Za-z0-9_.-]{0,119}$/;
 
+/** Random probe latents an audit accepts; with pinned seeds the set must still hold at least 2 (an interval needs 2). */
+export const PROBE_LIMITS = { min: 0, max: 100_000, minTotal: 2 } as const;
+/** Per-tab session id: names the holder of a project's lock (kept in sessionStorage, so a reload keeps it). */
+const session = z.string().regex(/^[A-Za-z0-9_-]{8,64}$/);
+/** A written reason for an override or a forced render (the rule module sets the minimum length). */
+const reason = z.string().max(4000);
+/** Variant-set settings as the studio keeps them in the project (strengths by direction name). */
+export const variantDraftSchema = z.object({
+  name: z.string().max(80),
+  seeds: z.string().max(400),
+  out: z.string().max(4096),
+  settings: z.array(z.object({ label: z.string().max(60), strengths: z.record(z.string(), strength) })).max(200),
+});
+export type VariantDraft = z.infer<typeof variantDraftSchema>;
+
 export const editSchema = z.object({ direction: z.string().min(1), strength });
 export type Edit = z.infer<typeof editSchema>;
 
@@ -44,6 +59,7 @@ export const modelInfoSchema = z.object({
 });
 export type ModelInfo = z.infer<typeof modelInfoSchema>;
 
+export type ReviewStatusName = 'draft' | 'in-review' | 'approved' | 'rejected';
 export const reviewEntrySchema = z.object({
   at: z.string(),
   direction: z.string(),
@@ -51,6 +67,10 @@ export const reviewEntrySchema = z.object({
   status: z.enum(['draft', 'in-review', 'approved', 'rejected']),
   reviewer: z.string(),
   note: z.string(),
+  /** Present when the step broke a sign-off rule on purpose: the written reason. */
+  override: z.string().optional(),
+  /** What the approval gate said at the time of an override (e.g. "its last audit failed: …"). */
+  gate: z.string().optional(),
 });
 export type ReviewEntry = z.infer<typeof reviewEntrySchema>;
 
@@ -59,6 +79,12 @@ export const signOffSchema = z.object({
   /** True when the last approval was for a different vector: the direction changed since. */
   approvalReset: z.boolean(),
   history: z.array(reviewEntrySchema),
+  /** The approval gate from app/core/signoff-rules.ts: may it be approved plainly, and why not. */
+  gate: z.object({ state: z.enum(['passing', 'failed', 'needs-review', 'too-few-probes', 'stale', 'unaudited']), explanation: z.string() }).optional(),
+  /** Each status and whether this direction may move there now: yes, only with an override, or no. */
+  transitions: z.array(z.object({ to: z.enum(['draft', 'in-review', 'approved', 'rejected']), allowed: z.enum(['yes', 'override', 'no']), why: z.string() })).optional(),
+  /** Every stored audit of this direction, newest first; current = of its present vector. */
+  audits: z.array(z.object({ at: z.string(), file: z.string(), verdict: z.enum(['pass', 'review', 'fail']), reason: z.string(), probes: z.number(), current: z.boolean() })).optional(),
 });
 export type SignOff = z.infer<typeof signOffSchema>;
 
@@ -130,7 +156,14 @@ function declare<L extends Lane, P extends z.ZodType, R extends z.ZodObject | z.
 export const referenceInfoSchema = z.object({ name: z.string(), ssim: z.number(), deltaE: z.number(), found: z.boolean(), imageSha256: z.string(), evaluations: z.number().int(), budget: z.number().int() });
 export type ReferenceInfo = z.infer<typeof referenceInfoSchema>;
 
-const uiStateSchema = z.object({ seed, psi, strengths: z.record(z.string(), strength), pinned: z.array(seed).max(10_000), tags: z.record(z.string(), z.enum(['has', 'lacks'])) });
+const uiStateSchema = z.object({
+  seed, psi, strengths: z.record(z.string(), strength), pinned: z.array(seed).max(10_000), tags: z.record(z.string(), z.enum(['has', 'lacks'])),
+  variants: variantDraftSchema.optional(),
+  auditProbes: z.number().int().min(PROBE_LIMITS.min).max(PROBE_LIMITS.max).optional(),
+});
+/** Who holds a project's lock: process, machine, session and when it last renewed. */
+export const lockHolderSchema = z.object({ pid: z.number().int(), host: z.string(), session: z.string(), at: z.string() });
+export type LockHolder = z.infer<typeof lockHolderSchema>;
 const candidateSchema = z.object({ direction: directionInfoSchema, strip: z.array(imageSchema), stripSeeds: z.array(seed), stripStrengths: z.array(z.number()) });
 const thumbnailSchema = z.object({ direction: z.string(), seed, strength: z.number(), attribute: z.string(), leakage: z.number(), before: bytes, after: bytes });
 
@@ -169,7 +202,7 @@ export const methods = {
   }), z.object({ candidates: z.array(candidateSchema) })),
   'audit.run': declare('job', z.object({
     directions: z.array(z.string().min(1)).min(1).max(64),
-    probes: z.number().int().min(0).max(100_000).default(64),
+    probes: z.number().int().min(PROBE_LIMITS.min).max(PROBE_LIMITS.max).default(64),
     pinnedSeeds: z.array(seed).max(10_000).default([]),
     psi: psi.default(0.7),
     seed: z.number().int().min(0).max(0xffffffff).default(1),
@@ -180,10 +213,31 @@ export const methods = {
   }), z.object({ report: auditWireSchema, thumbnails: z.array(thumbnailSchema), savedAs: z.string().nullable() })),
   'lab.repair': declare('job', z.object({ direction: z.string().min(1), against: z.array(z.string().min(1)).min(1).max(32), hold: z.union([z.literal('others'), z.array(z.string())]).default([]) }),
     z.object({ direction: directionInfoSchema, boundaries: z.array(z.object({ attribute: z.string(), accuracy: z.number(), role: z.string() })) })),
-  'project.open': declare('control', z.object({ path: z.string().min(1), create: z.boolean().default(false) }),
-    z.object({ path: z.string(), name: z.string(), generatorFingerprint: z.string().nullable(), generatorMatches: z.boolean(), directions: z.array(directionInfoSchema), audits: z.array(z.string()), ui: uiStateSchema.nullable(), /** Entries refused on open (bad names, files outside the project), each with its reason. */ refused: z.array(z.string()).optional() })),
+  'project.open': declare('control', z.object({ path: z.string().min(1), create: z.boolean().default(false), session: session.optional() }),
+    z.object({
+      path: z.string(), name: z.string(), generatorFingerprint: z.string().nullable(), generatorMatches: z.boolean(), directions: z.array(directionInfoSchema), audits: z.array(z.string()), ui: uiStateSchema.nullable(),
+      /** Entries refused on open (bad names, files outside the project), each with its reason. */
+      refused: z.array(z.string()).optional(),
+      /** True when another window or tab holds the project's lock: this one may look but not write. */
+      readOnly: z.boolean().default(false),
+      lockHolder: lockHolderSchema.nullable().default(null),
+      /** Discovery candidates not yet kept or discarded, as left in the project. */
+      candidates: z.array(candidateSchema).default([]),
+    })),
+  /** Renews (or, once free, takes) this session's lock on the open project; releases it with release. */
+  'project.lock': declare('control', z.object({ session, release: z.boolean().default(false) }), z.object({ readOnly: z.boolean(), lockHolder: lockHolderSchema.nullable() })),
+  /** Every stored audit of the open project merged: the newest result per direction, with history. */
+  'audit.history': declare('control', z.object({}), z.object({ report: auditWireSchema.nullable(), thumbnails: z.array(thumbnailSchema), files: z.array(z.string()) })),
+  /** Full-size images of probes before and after a direction's edit (enlarged worst probes; repair before/after). */
+  'lab.probeImages': declare('control', z.object({ direction: z.string().min(1), seeds: z.array(seed).min(1).max(8), strength, psi }), z.object({ images: z.array(z.object({ seed, before: bytes, after: bytes })) })),
+  /** Renamed under the same name rule as keep (app/protocol/names.ts). */
+  'directions.rename': declare('control', z.object({ id: z.string().min(1), name: directionNameSchema }), directionInfoSchema),
+  /** Takes a kept direction out (its project files move to directions/deleted/). */
+  'directions.delete': declare('control', z.object({ id: z.string().min(1) }), z.object({ directions: z.array(directionInfoSchema) })),
+  /** Drops unkept discovery candidates (and their copies in the project's candidates/). */
+  'directions.discard': declare('control', z.object({ ids: z.array(z.string().min(1)).min(1).max(256) }), z.object({ discarded: z.number().int() })),
   'project.saveUi': declare('control', uiStateSchema, z.object({ savedAt: z.string() })),
-  'project.review': declare('control', z.object({ direction: z.string().min(1), status: z.enum(['draft', 'in-review', 'approved', 'rejected']), reviewer: z.string().min(1).max(120), note: z.string().max(4000).default('') }),
+  'project.review': declare('control', z.object({ direction: z.string().min(1), status: z.enum(['draft', 'in-review', 'approved', 'rejected']), reviewer: z.string().min(1).max(120), note: z.string().max(4000).default(''), override: reason.optional() }),
     z.object({ direction: z.string(), signOff: signOffSchema })),
   'variants.render': declare('job', z.object({
     name: z.string().regex(/^[A-Za-z0-9_.-]{1,80}$/, 'letters, digits, _ . - only'),
@@ -192,6 +246,8 @@ export const methods = {
     /** Strengths keyed by direction id. */
     settings: z.array(z.object({ label: variantLabelSchema, strengths: z.record(z.string(), strength) })).min(1).max(200),
     out: z.string().min(1),
+    /** Forces settings the use rules refuse (unapproved, rejected, outside the safe range); recorded in the manifest. */
+    forceReason: reason.optional(),
   }), z.object({ out: z.string(), rendered: z.number(), reused: z.number(), replaced: z.number().optional(), contactSheet: bytes })),
   /** `out` is the absolute path the user chose; an existing file is replaced only with `overwrite`. */
   'pack.build': declare('control', z.object({ out: z.string().min(1), overwrite: z.boolean().optional() }), z.object({ file: z.string(), directions: z.array(z.string()), skipped: z.array(z.string()), bytes: z.number() })),

@@ -14,6 +14,7 @@ import { WebSocketServer, type WebSocket } from 'ws';
 import { decodeFrame, encodeFrame } from '../protocol/frames.ts';
 import { ENGINE_NAME } from '../protocol/version.ts';
 import { PROTOCOL_VERSION, event, parseMessage, type Message, type ResponseMessage } from '../protocol/messages.ts';
+import { browseRoots, listFolder } from './browse.ts';
 
 const here = dirname(fileURLToPath(import.meta.url));
 const root = resolve(here, '..', '..');
@@ -74,6 +75,7 @@ export async function startWebShell(options: WebShellOptions = {}): Promise<WebS
   const rendererDir = resolve(options.rendererDir ?? join(root, 'out', 'renderer'));
   if (!existsSync(join(rendererDir, 'index.html'))) throw new Error(`${rendererDir}: no built renderer (run npm run build first)`);
   const token = randomBytes(24).toString('hex');
+  const roots = browseRoots();
   const log = (s: string) => !options.quiet && process.stderr.write(`[web shell] ${s}\n`);
 
   // Engine child and request routing: client request ids are remapped to host-wide ids.
@@ -143,7 +145,7 @@ export async function startWebShell(options: WebShellOptions = {}): Promise<WebS
       "style-src 'self' 'unsafe-inline'",
       "img-src 'self' data: blob:",
       "font-src 'self'",
-      `connect-src ws://${host}`,
+      `connect-src 'self' ws://${host}`,
       "base-uri 'none'",
       "form-action 'none'",
       "frame-ancestors 'none'",
@@ -174,6 +176,20 @@ export async function startWebShell(options: WebShellOptions = {}): Promise<WebS
     if (options.testHooks && req.method === 'POST' && url.pathname === '/__test/kill-engine' && tokenOk(url.searchParams.get('token'))) {
       child?.kill('SIGKILL');
       res.writeHead(204).end();
+      return;
+    }
+    if (req.method === 'GET' && url.pathname === '/__browse') {
+      // The folder browser: same token as the engine socket; home and chosen roots only.
+      if (!tokenOk(url.searchParams.get('token'))) {
+        res.writeHead(403).end();
+        return;
+      }
+      try {
+        const listing = listFolder(url.searchParams.get('path'), roots);
+        res.writeHead(200, { 'content-type': 'application/json', 'cache-control': 'no-store', 'x-content-type-options': 'nosniff' }).end(JSON.stringify(listing));
+      } catch (err) {
+        res.writeHead(400, { 'content-type': 'application/json' }).end(JSON.stringify({ error: (err as Error).message }));
+      }
       return;
     }
     if (req.method !== 'GET' && req.method !== 'HEAD') {
@@ -235,12 +251,16 @@ export async function startWebShell(options: WebShellOptions = {}): Promise<WebS
       if (child) send(client, event('engine.ready', { engine: ENGINE_NAME, restarted: false }));
       ws.on('message', (data, isBinary) => {
         let m: Message;
+        let raw: unknown = null;
         try {
           if (!isBinary) throw new Error('text frames are not accepted; send binary protocol frames');
           const buf = Array.isArray(data) ? Buffer.concat(data) : Buffer.from(data as ArrayBuffer);
-          m = parseMessage(decodeFrame(new Uint8Array(buf.buffer, buf.byteOffset, buf.byteLength)));
+          raw = decodeFrame(new Uint8Array(buf.buffer, buf.byteOffset, buf.byteLength));
+          m = parseMessage(raw);
         } catch (err) {
-          send(client, { v: PROTOCOL_VERSION, type: 'response', id: -1, ok: false, error: { code: 'protocol', message: (err as Error).message } } as ResponseMessage);
+          // Answer under the request's own id when it has one, so the caller's wait ends with the error.
+          const id = typeof (raw as { id?: unknown } | null)?.id === 'number' ? (raw as { id: number }).id : -1;
+          send(client, { v: PROTOCOL_VERSION, type: 'response', id, ok: false, error: { code: 'protocol', message: (err as Error).message } } as ResponseMessage);
           return;
         }
         if (m.type !== 'request') return;

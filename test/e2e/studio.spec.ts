@@ -104,6 +104,10 @@ test('create, discover, audit, repair, approve, reload; the engine dies mid-audi
   await page.getByLabel('Variant seeds').fill('0-3');
   await page.getByLabel('Output folder').fill(join(projectDir, 'renders', 'set1'));
   await page.getByRole('button', { name: 'Render variant set' }).click();
+  // crest_size was never signed off: the same rule as the CLI refuses it unless forced with a reason (issue 11).
+  await expect(page.getByTestId('variant-error')).toContainText('crest_size is not approved (draft)');
+  await page.getByLabel('Reason to force the variant set').fill('look-development only, not for shipping');
+  await page.getByRole('button', { name: 'Force with this reason' }).click();
   await expect(page.getByRole('status').filter({ hasText: '8 rendered, 0 kept' })).toBeVisible({ timeout: 60_000 });
   await expect(page.getByAltText('Contact sheet of variant_set')).toBeVisible();
   await page.screenshot({ path: join(shots, 'studio-variants.png') });

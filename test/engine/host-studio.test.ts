@@ -90,12 +90,15 @@ test('a project keeps directions, audits and an append-only review log; approval
   const turn = opened.directions.find((d) => d.name === 'turn')!;
   assert.equal(turn.signOff?.status, 'draft');
   await call('project.review', { direction: turn.id, status: 'in-review', reviewer: 'Ines', note: 'looks clean' });
-  const approved = await call('project.review', { direction: turn.id, status: 'approved', reviewer: 'Ines', note: 'ship it' });
+  // Never audited: a plain approval is refused (issue 11), an override with a reason is recorded.
+  await assert.rejects(call('project.review', { direction: turn.id, status: 'approved', reviewer: 'Ines', note: 'ship it' }), /cannot be approved plainly: never audited/);
+  const approved = await call('project.review', { direction: turn.id, status: 'approved', reviewer: 'Ines', note: 'ship it', override: 'demo direction with documented truth' });
   assert.equal(approved.signOff.status, 'approved');
   assert.equal(approved.signOff.history.length, 2);
   const log = readFileSync(join(dir, 'review-log.jsonl'), 'utf8').trim().split('\n');
   assert.equal(log.length, 2);
   assert.equal(JSON.parse(log[1]).reviewer, 'Ines');
+  assert.equal(JSON.parse(log[1]).override, 'demo direction with documented truth');
   await call('project.saveUi', { seed: 12, psi: 0.6, strengths: { [turn.id]: 1.5 }, pinned: [3, 4], tags: { '7': 'has' } });
 
   // Someone edits the saved direction file: reopening shows the approval reset, history intact.

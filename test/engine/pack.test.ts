@@ -4,7 +4,7 @@
 // fuzzing (fast-check) shows the readers never crash and never write anything.
 import { test, before } from 'node:test';
 import assert from 'node:assert/strict';
-import { readFileSync, readdirSync, writeFileSync } from 'node:fs';
+import { existsSync, readFileSync, readdirSync, writeFileSync } from 'node:fs';
 import { join } from 'node:path';
 import { spawnSync } from 'node:child_process';
 import fc from 'fast-check';
@@ -84,11 +84,18 @@ test('apply reproduces the pack previews bit for bit and guards the safe range',
   assert.equal(readdirSync(join(out, 'prod')).filter((f) => f.endsWith('.png')).length, 3);
   const refused = cli('apply', '--pack', packFile, '--seeds', '0', '--set', 'crest_size=4', '--out', join(out, 'no'));
   assert.equal(refused.status, 2);
-  assert.match(refused.stderr, /refusing strengths outside the audited safe range: crest_size=4 \(safe -3…3\); pass --force/);
-  const forced = cli('apply', '--pack', packFile, '--seeds', '0', '--set', 'crest_size=4', '--force', '--out', join(out, 'forced'));
-  assert.equal(forced.status, 0);
+  assert.match(refused.stderr, /refusing setting 'apply': crest_size=4 is outside its audited safe range -3…3 σ; pass --force --reason/);
+  assert.equal(existsSync(join(out, 'no')), false);
+  // Forcing needs a written reason (issue 11: "refused unless forced with a reason, which the manifest records").
+  const bare = cli('apply', '--pack', packFile, '--seeds', '0', '--set', 'crest_size=4', '--force', '--out', join(out, 'bare'));
+  assert.equal(bare.status, 2);
+  assert.match(bare.stderr, /needs a written reason/);
+  const forced = cli('apply', '--pack', packFile, '--seeds', '0', '--set', 'crest_size=4', '--force', '--reason', 'client wants the oversized crest', '--out', join(out, 'forced'));
+  assert.equal(forced.status, 0, forced.stderr);
   assert.match(forced.stderr, /forced outside the safe range/);
-  assert.equal(JSON.parse(readFileSync(join(out, 'forced', 'manifest.json'), 'utf8')).settings[0].forced, true);
+  const manifest = JSON.parse(readFileSync(join(out, 'forced', 'manifest.json'), 'utf8'));
+  assert.equal(manifest.settings[0].forced, true);
+  assert.equal(manifest.forceReason, 'client wants the oversized crest');
 });
 
 test('apply --latents renders stored codes exactly as the same codes from seeds (W+ [N, 3, 32] and W [N, 32])', async () => {

@@ -1,7 +1,7 @@
 // Chart data mapping: audit values to heatmap cells and curve rows with their CI bands.
 import { test } from 'node:test';
 import assert from 'node:assert/strict';
-import { curveRows, heatmapCells, leadingAttributes, pathRows } from '../../renderer/src/lib/charts.ts';
+import { ATTRIBUTE_PALETTE, attributeColors, curveRows, heatDomain, heatmapCells, leadingAttributes, logTicks, niceMax, pathRows, tickLabel } from '../../renderer/src/lib/charts.ts';
 import type { AuditWire } from '../../app/protocol/messages.ts';
 
 const iv = (value: number, low: number, high: number) => ({ value, low, high });
@@ -42,4 +42,49 @@ test('curve rows pair every strength with its band', () => {
   assert.deepEqual(leadingAttributes(report, 'bold', 1), ['size', 'backdrop']);
   assert.deepEqual(pathRows(report, 'bold').map((r) => [r.strength, r.low, r.high]), [[-1, 0.9, 1.1], [0, 0.9, 1.1], [1, 1.5, 2.5]]);
   assert.deepEqual(curveRows(report, 'missing'), []);
+});
+
+test('the heatmap legend covers the largest coloured cell; its end is the nice() value d3-scale gives', async () => {
+  // Outside reference: d3-scale 4 (a dependency of Observable Plot), scaleLinear().domain([0, max]).nice().
+  // @ts-expect-error d3-scale ships no types; only scaleLinear().domain().nice().domain() is used.
+  const { scaleLinear } = (await import('d3-scale')) as { scaleLinear: () => { domain(d?: number[]): any } };
+  for (const max of [2.71, 0.37, 0.049, 1, 7.3, 13.2, 0.9999, 123.4]) {
+    const d3End = scaleLinear().domain([0, max]).nice().domain()[1];
+    assert.ok(Math.abs(niceMax(max) - d3End) < 1e-9, `max ${max}: ours ${niceMax(max)}, d3 ${d3End}`);
+    assert.ok(niceMax(max) >= max);
+  }
+  // The issue's case: cells reach 2.71 σ while the legend stopped at 1.
+  const wide = { ...report, directions: [{ ...report.directions[0], dependency: { size: iv(2, 1.9, 2.1), backdrop: iv(2.71, 2.5, 2.9), hue: iv(0.1, 0.05, 0.15) } }] } as unknown as AuditWire;
+  const [lo, hi] = heatDomain(heatmapCells(wide));
+  assert.equal(lo, 0);
+  assert.ok(hi >= 2.71 && Math.abs(hi - 2.8) < 1e-9, `legend ends at ${hi}`); // d3: 2.71 → 2.8
+});
+
+test('one colour per attribute, fixed by its place in the report (hiding some never recolours the rest)', () => {
+  const colours = attributeColors(report);
+  assert.deepEqual(Object.keys(colours), ['size', 'backdrop', 'hue']);
+  assert.equal(new Set(ATTRIBUTE_PALETTE).size, ATTRIBUTE_PALETTE.length);
+  assert.equal(colours.hue, ATTRIBUTE_PALETTE[2]);
+  // Every colour is a valid sRGB hex colour and differs visibly from the dark background (#14181d):
+  // WCAG 2.x relative luminance contrast of at least 3:1 for graphical objects (WCAG 2.1, 1.4.11).
+  const lum = (hex: string) => {
+    const c = [1, 3, 5].map((i) => parseInt(hex.slice(i, i + 2), 16) / 255).map((v) => (v <= 0.04045 ? v / 12.92 : ((v + 0.055) / 1.055) ** 2.4));
+    return 0.2126 * c[0] + 0.7152 * c[1] + 0.0722 * c[2];
+  };
+  for (const c of ATTRIBUTE_PALETTE) {
+    assert.match(c, /^#[0-9a-f]{6}$/);
+    assert.ok((lum(c) + 0.05) / (lum('#14181d') + 0.05) >= 3, `${c} too dark on the slate background`);
+  }
+});
+
+test('tick labels are plain numbers (no bare exponents for ordinary values)', () => {
+  assert.deepEqual([0, 0.5, 2, 0.01, 0.002, 150, 2e-5, 30000].map(tickLabel), ['0', '0.5', '2', '0.01', '0.002', '150', '2e-5', '3e4']);
+});
+
+test('log-axis ticks: every one a 1-2-5 value inside the range, each labelled', () => {
+  // The 1-2-5 series is the common practice for decade axes (as in E-series and d3's log ticks).
+  assert.deepEqual(logTicks(0.0031, 0.024), [0.005, 0.01, 0.02]);
+  assert.deepEqual(logTicks(0.0011, 0.0019), [0.0011, 0.0019]);
+  assert.deepEqual(logTicks(1e-5, 10), [1e-5, 1e-4, 0.001, 0.01, 0.1, 1, 10]);
+  for (const v of logTicks(0.0031, 0.024)) assert.notEqual(tickLabel(v), '');
 });

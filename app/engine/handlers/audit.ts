@@ -3,6 +3,7 @@
 import { auditReportFile, auditReportWire } from '../../core/audit/report.ts';
 import { runAudit } from '../audit/run.ts';
 import { driveSteps, type AreaHandlers } from './context.ts';
+import { vectorHash } from '../project.ts';
 
 /** Progress is forwarded every this many batches (the audit runs hundreds), not every batch. */
 const AUDIT_PROGRESS_EVERY = 4;
@@ -15,7 +16,9 @@ export const auditHandlers: AreaHandlers<'audit.run'> = {
     const report = await driveSteps(runAudit(gen, directions, {
       probes: p.probes, pinnedSeeds: p.pinnedSeeds, psi: p.psi, seed: p.seed, referenceStrength: p.referenceStrength, leakPass: p.leakPass, leakFail: p.leakFail, combinations: p.combinations,
     }), ctx, AUDIT_PROGRESS_EVERY);
-    const savedAs = workspace.project ? workspace.project.saveAudit(auditReportFile(report)) : null;
+    // Kept as history with each direction's vector hash, so sign-off can tell which version passed.
+    const project = workspace.project && !workspace.project.readOnly ? workspace.project : null;
+    const savedAs = project ? project.saveAudit(auditReportFile(report), Object.fromEntries(directions.map((d) => [d.name, vectorHash(d.vector, d.layers)]))) : null;
     const { report: wire, thumbnails } = auditReportWire(report);
     return { report: wire as never, thumbnails, savedAs };
   },

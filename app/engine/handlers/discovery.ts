@@ -20,7 +20,9 @@ export const discoveryHandlers: AreaHandlers<'lab.discover'> = {
     for (const f of found) {
       const d = workspace.register({ name: f.name, target: f.target, layers: f.layers, vector: f.vector, notes: f.notes, method: f.source.method, source: f.source as unknown as Record<string, unknown> }, false);
       const images = await renderAlong(gen, d, { seeds: p.stripSeeds, strengths: p.stripStrengths, psi: gen.info.defaultPsi });
-      candidates.push({ direction: workspace.info(d), strip: images.map((img) => shrink(img, STRIP_IMAGE_SIZE)), stripSeeds: p.stripSeeds, stripStrengths: p.stripStrengths });
+      const strip = images.map((img) => shrink(img, STRIP_IMAGE_SIZE));
+      candidates.push({ direction: workspace.info(d), strip, stripSeeds: p.stripSeeds, stripStrengths: p.stripStrengths });
+      workspace.saveCandidate(d, { seeds: p.stripSeeds, strengths: p.stripStrengths, images: strip });
       await checkpoint();
     }
     return { candidates };

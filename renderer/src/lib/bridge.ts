@@ -2,7 +2,9 @@
 // interface falls back to typed paths and a WebSocket.
 export interface DesktopBridge {
   platform: 'electron';
-  chooseFile(kind: 'generator' | 'directions' | 'project'): Promise<string | null>;
+  chooseFile(kind: 'generator' | 'directions' | 'project' | 'pack' | 'pack-save' | 'folder'): Promise<string | null>;
+  /** Prints a self-contained HTML report to PDF (Chromium's print-to-PDF) and saves it where the user picks; the saved path or null. */
+  printPdf?(html: string, name: string): Promise<string | null>;
   pathForFile(file: File): string;
   onMenu(listener: (command: string, arg?: string) => void): () => void;
   /** Main's engine.stopped protocol event (Electron only: the MessagePort cannot say its engine died). */

@@ -73,4 +73,60 @@ export function pathRows(report: AuditWire, direction: string): CurveRow[] {
   return c.strengths.map((strength, i) => ({ attribute: 'path length', strength, mean: c.mean[i], low: c.low[i], high: c.high[i] }));
 }
 
+/**
+ * The upper end of a colour scale that covers every value: the smallest multiple of a "nice" step
+ * (1, 2 or 5 × 10^k, aiming at about `count` steps) at or above the largest value. Same rule as
+ * d3-array's tickIncrement / d3-scale's nice(), written from its definition.
+ */
+export function niceMax(max: number, count = 10): number {
+  if (!(max > 0) || !Number.isFinite(max)) return 1;
+  const raw = max / count;
+  const power = Math.floor(Math.log10(raw));
+  const error = raw / 10 ** power;
+  const factor = error >= Math.sqrt(50) ? 10 : error >= Math.sqrt(10) ? 5 : error >= Math.sqrt(2) ? 2 : 1;
+  const step = factor * 10 ** power;
+  return Number((Math.ceil(max / step - 1e-9) * step).toPrecision(12));
+}
+
+/** Colour domain of the heatmap: from 0 to a nice value at or above the largest coloured cell. */
+export function heatDomain(cells: HeatCell[]): [number, number] {
+  return [0, niceMax(Math.max(0, ...cells.filter((c) => !c.isTarget).map((c) => c.value)))];
+}
+
+/**
+ * One colour per attribute, the same in every chart and caption of a report: picked by the
+ * attribute's place in the report's attribute list, so hiding some never recolours the others.
+ * Our own twelve hues, spaced for the dark slate background; more attributes repeat them.
+ */
+export const ATTRIBUTE_PALETTE = ['#4fb3a1', '#e0a84a', '#8fa8ff', '#e26d5c', '#b58ad9', '#7cc36e', '#e88bb8', '#57b8e0', '#d4c45a', '#c98f5f', '#9aa7b4', '#5fd1c0'];
+
+export function attributeColors(report: AuditWire): Record<string, string> {
+  return Object.fromEntries(report.attributes.map((a, i) => [a.name, ATTRIBUTE_PALETTE[i % ATTRIBUTE_PALETTE.length]]));
+}
+
+/** Tick labels that read as numbers with their unit, on linear and log axes alike (no "1e-3" runs). */
+export function tickLabel(v: number): string {
+  if (v === 0) return '0';
+  const a = Math.abs(v);
+  if (a >= 1000 || a < 0.001) return v.toExponential(0).replace('e+', 'e');
+  return String(Number(v.toPrecision(2)));
+}
+
+/**
+ * Tick values for a log axis from lo to hi, every one to be labelled: 1, 2 and 5 × 10^k inside
+ * the range, thinned to powers of ten when there would be more than `max`; the range's own ends
+ * (rounded to two digits) when no such value falls inside.
+ */
+export function logTicks(lo: number, hi: number, max = 7): number[] {
+  if (!(lo > 0) || !(hi >= lo)) return [];
+  const out: number[] = [];
+  for (let k = Math.floor(Math.log10(lo)); k <= Math.ceil(Math.log10(hi)); k++)
+    for (const m of [1, 2, 5]) {
+      const v = Number((m * 10 ** k).toPrecision(12));
+      if (v >= lo && v <= hi) out.push(v);
+    }
+  const thinned = out.length > max ? out.filter((v) => Math.abs(Math.log10(v) - Math.round(Math.log10(v))) < 1e-9) : out;
+  return thinned.length >= 2 ? thinned : [...new Set([Number(lo.toPrecision(2)), ...thinned, Number(hi.toPrecision(2))])].sort((a, b) => a - b);
+}
+
 export const VERDICT_LABEL: Record<string, string> = { pass: 'Pass', review: 'Needs review', fail: 'Fail' };

@@ -2,7 +2,7 @@
 // the web shell's WebSocket). Every incoming message is validated; results are checked per method.
 import { decodeFrame, encodeFrame } from '../../../app/protocol/frames.ts';
 import {
-  parseMessage, parseResult, request, type EventData, type EventName, type Message, type Method, type Params, type Result, type WireError, type ErrorCode,
+  parseMessage, parseResult, request, requestSchemas, type EventData, type EventName, type Message, type Method, type Params, type Result, type WireError, type ErrorCode,
 } from '../../../app/protocol/messages.ts';
 
 export class EngineRequestError extends Error {
@@ -33,6 +33,7 @@ type Listener = (data: never) => void;
 export class EngineClient {
   #transport: Transport | null = null;
   #nextId = 1;
+  #lastSent = -1;
   #pending = new Map<number, Pending>();
   #listeners = new Map<string, Set<Listener>>();
 
@@ -69,16 +70,36 @@ export class EngineClient {
 
   request<M extends Method>(method: M, params: Params<M>, onProgress?: Pending['onProgress']): Promise<Result<M>> {
     if (!this.#transport) return Promise.reject(new EngineRequestError({ code: 'engine-stopped', message: 'not connected to the engine' }));
+    // Checked here too, so a request the engine would refuse fails at once with the same message.
+    const checked = requestSchemas[method].safeParse(params);
+    if (!checked.success) {
+      this.#lastSent = -1;
+      const why = checked.error.issues.slice(0, 3).map((i) => `${i.path.join('.') || 'request'}: ${i.message}`).join('; ');
+      return Promise.reject(new EngineRequestError({ code: 'bad-request', message: `${method} refused: ${why}` }));
+    }
     const id = this.#nextId++;
+    this.#lastSent = id;
     return new Promise((resolve, reject) => {
       this.#pending.set(id, { resolve: resolve as (v: unknown) => void, reject, method, onProgress });
       this.#transport!.send(request(id, method, params));
     });
   }
 
+  /**
+   * Ends the wait for a job at once: asks the engine to cancel it and settles the caller's promise
+   * as cancelled, whatever the engine answers later (or if it never does).
+   */
+  cancel(requestId: number): void {
+    const p = this.#pending.get(requestId);
+    if (this.#transport) this.#transport.send(request(this.#nextId++, 'job.cancel', { requestId }));
+    if (!p) return;
+    this.#pending.delete(requestId);
+    p.resolve({ cancelled: true });
+  }
+
   /** Request id of the most recent request: job.cancel names a job by it. */
   get lastRequestId(): number {
-    return this.#nextId - 1;
+    return this.#lastSent;
   }
 
   on<E extends EventName>(name: E, listener: (data: EventData<E>) => void): () => void {

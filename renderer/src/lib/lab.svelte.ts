@@ -1,8 +1,10 @@
 // State and intents of the lab screens: project, discovery, audit, repair and sign-off. Works
 // through the same engine client as the workbench (Studio) and keeps Studio's direction list
 // in step with the engine's.
-import type { AuditWire, DirectionInfo, Params, Result, WireImage } from '../../../app/protocol/messages.ts';
+import { PROBE_LIMITS, type AuditWire, type DirectionInfo, type LockHolder, type Params, type Result, type VariantDraft, type WireImage } from '../../../app/protocol/messages.ts';
 import { EngineRequestError } from './engine.ts';
+import { desktop } from './bridge.ts';
+import { reportHtml } from './report.ts';
 import type { Studio } from './studio.svelte.ts';
 
 export type View = 'workbench' | 'discover' | 'audit' | 'signoff' | 'variants';
@@ -15,15 +17,58 @@ const LAST_PROJECT_KEY = 'plumbline.lastProject';
 const RECENT_KEY = 'plumbline.recentProjects';
 const RECENT_LIMIT = 8;
 
-function readRecent(): string[] {
+const RECENT_GENERATORS_KEY = 'plumbline.recentGenerators';
+
+function readRecent(key = RECENT_KEY): string[] {
   try {
-    const v = JSON.parse(globalThis.localStorage?.getItem(RECENT_KEY) ?? '[]');
+    const v = JSON.parse(globalThis.localStorage?.getItem(key) ?? '[]');
     return Array.isArray(v) ? v.filter((x): x is string => typeof x === 'string').slice(0, RECENT_LIMIT) : [];
   } catch {
     return [];
   }
 }
 const REVIEWER_KEY = 'plumbline.reviewer';
+const SESSION_KEY = 'plumbline.session';
+/** How often an open project's lock is renewed; the engine treats one silent for 90 s as stale. */
+const LOCK_RENEW_MS = 20_000;
+
+/** This tab's session id: sessionStorage keeps it across a reload of the tab, a new tab gets its own. */
+function sessionId(): string {
+  const store = globalThis.sessionStorage;
+  let id = store?.getItem(SESSION_KEY);
+  if (!id || !/^[A-Za-z0-9_-]{8,64}$/.test(id)) {
+    id = Array.from(globalThis.crypto.getRandomValues(new Uint8Array(12)), (b) => b.toString(16).padStart(2, '0')).join('');
+    store?.setItem(SESSION_KEY, id);
+  }
+  return id;
+}
+
+/** The message for a probe count, or null when it is acceptable (same limits as the engine's schema). */
+export function probesProblem(value: unknown, pinned: number): string | null {
+  if (typeof value !== 'number' || !Number.isFinite(value)) return 'Enter a whole number of probes.';
+  if (!Number.isInteger(value)) return 'Probes must be a whole number.';
+  if (value < PROBE_LIMITS.min) return `Probes cannot be negative (0–${PROBE_LIMITS.max.toLocaleString()}).`;
+  if (value > PROBE_LIMITS.max) return `At most ${PROBE_LIMITS.max.toLocaleString()} probes.`;
+  if (value + pinned < PROBE_LIMITS.minTotal) return `An audit needs at least ${PROBE_LIMITS.minTotal} probes in all (random plus ${pinned} pinned).`;
+  return null;
+}
+
+/** The message for a whole number field with inclusive limits, or null. */
+export function wholeProblem(value: unknown, min: number, max: number, what: string): string | null {
+  if (typeof value !== 'number' || !Number.isFinite(value) || !Number.isInteger(value)) return `${what}: enter a whole number from ${min} to ${max}.`;
+  if (value < min || value > max) return `${what} must be from ${min} to ${max}.`;
+  return null;
+}
+
+/** The message for a seed list like "0-7,12", or null. */
+export function seedListProblem(text: string): string | null {
+  try {
+    parseSeedList(text);
+    return null;
+  } catch (err) {
+    return (err as Error).message;
+  }
+}
 
 export class Lab {
   view = $state<View>('workbench');
@@ -31,6 +76,13 @@ export class Lab {
   reviewer = $state(globalThis.localStorage?.getItem(REVIEWER_KEY) ?? '');
   /** Recently opened project folders, newest first. */
   recent = $state<string[]>(readRecent());
+  /** Recently opened generators (model cards or .onnx), newest first. */
+  recentGenerators = $state<string[]>(readRecent(RECENT_GENERATORS_KEY));
+  /** Another window or tab holds this project's lock: look, do not write. */
+  readOnly = $state(false);
+  lockHolder = $state.raw<LockHolder | null>(null);
+  readonly session = sessionId();
+  #lockTimer: ReturnType<typeof setInterval> | null = null;
 
   method = $state<Params<'lab.discover'>['method']>('sefa');
   components = $state(6);
@@ -40,7 +92,11 @@ export class Lab {
   discovering = $state(false);
 
   auditSelection = $state<string[]>([]);
-  probes = $state(64);
+  probes = $state<number>(64);
+  /** Candidates waiting for "discard all" to be confirmed. */
+  confirmingDiscard = $state(false);
+  /** Audit history files of the project (every audit is kept). */
+  auditFiles = $state.raw<string[]>([]);
   auditProgress = $state<{ done: number; total: number; label: string } | null>(null);
   report = $state.raw<AuditWire | null>(null);
   previousReport = $state.raw<AuditWire | null>(null);
@@ -56,7 +112,14 @@ export class Lab {
   contactSheet = $state<string | null>(null);
   variantSummary = $state<string | null>(null);
   #variantRequest = 0;
+  /** The engine's refusal of the last variant render (shown beside the button), and a reason to force it. */
+  variantError = $state<string | null>(null);
+  forceReason = $state('');
 
+  /** A worst probe shown large (rendered at full size on request). */
+  enlarged = $state.raw<{ direction: string; seed: number; strength: number; attribute: string; leakage: number; before: string; after: string } | null>(null);
+  /** Repair before/after on the same probes, by repaired direction name. */
+  repairImages = $state.raw<Record<string, { parent: string; strength: number; rows: { seed: number; before: string; original: string; repaired: string }[] }>>({});
   repairAgainst = $state<string[]>([]);
   holdOthers = $state(true);
   repairing = $state(false);
@@ -87,30 +150,108 @@ export class Lab {
     this.studio.strengths = Object.fromEntries(dirs.map((d) => [d.id, this.studio.strengths[d.id] ?? 0]));
   }
 
-  async openProject(path: string, create: boolean): Promise<void> {
+  async openProject(path: string, create: boolean): Promise<boolean> {
     const ok = await this.#guard(create ? `Creating project ${path}` : `Opening project ${path}`, async () => {
-      const p = await this.engine.request('project.open', { path, create });
+      const p = await this.engine.request('project.open', { path, create, session: this.session });
       this.project = p;
+      this.readOnly = p.readOnly;
+      this.lockHolder = p.lockHolder;
       globalThis.localStorage?.setItem(LAST_PROJECT_KEY, path);
       this.recent = [path, ...this.recent.filter((r) => r !== path)].slice(0, RECENT_LIMIT);
       globalThis.localStorage?.setItem(RECENT_KEY, JSON.stringify(this.recent));
-      this.studio.onAutosave = (ui) => this.engine.request('project.saveUi', ui).then((r) => r.savedAt);
-      this.studio.onRecover = () => this.openProject(path, false);
+      // A read-only window saves nothing: the holder's autosave is the one that counts.
+      this.studio.onAutosave = p.readOnly ? null : (ui) => this.engine.request('project.saveUi', { ...ui, variants: this.variantDraft(), auditProbes: this.probesProblem ? undefined : this.probes }).then((r) => r.savedAt);
+      this.studio.onRecover = () => this.openProject(path, false).then(() => undefined);
       await this.refreshDirections(p.directions);
-      if (p.ui) this.studio.restoreUi(p.ui);
-      if (p.refused?.length) this.studio.banner = { kind: 'warning', text: `Opened with ${p.refused.length} entr${p.refused.length === 1 ? 'y' : 'ies'} refused: ${p.refused.join('; ')}` };
-      if (!p.generatorMatches) this.studio.banner = { kind: 'warning', text: `This project was made with another generator (fingerprint ${p.generatorFingerprint?.slice(0, 12)}…). Its directions and sign-offs may not hold for ${this.studio.model?.name}.` };
+      if (p.ui) {
+        this.studio.restoreUi(p.ui);
+        if (p.ui.variants) this.#restoreVariants(p.ui.variants);
+        if (p.ui.auditProbes !== undefined) this.probes = p.ui.auditProbes;
+      }
+      await this.loadAuditHistory();
+      // Candidates left unkept in the project come back until they are kept or discarded.
+      this.candidates = [...this.candidates.filter((c) => !p.candidates.some((n) => n.direction.id === c.direction.id)), ...p.candidates];
+      this.#keepLock();
+      if (p.readOnly) {
+        const h = p.lockHolder;
+        this.studio.banner = { kind: 'warning', text: `Opened read-only: another window has this project open${h ? ` (process ${h.pid} on ${h.host}, active ${new Date(h.at).toLocaleString()})` : ''}. You can look around; changes are not saved here.` };
+      } else if (!p.generatorMatches) this.studio.banner = { kind: 'warning', text: `This project was made with another generator (fingerprint ${p.generatorFingerprint?.slice(0, 12)}…). Its directions and sign-offs may not hold for ${this.studio.model?.name}.` };
+      else if (p.refused?.length) this.studio.banner = { kind: 'warning', text: `Opened with ${p.refused.length} entr${p.refused.length === 1 ? 'y' : 'ies'} refused: ${p.refused.join('; ')}` };
     });
     if (ok) await Promise.all([this.studio.refreshGrid(), this.studio.requestPreview()]);
+    return ok;
+  }
+
+  rememberGenerator(path: string): void {
+    this.recentGenerators = [path, ...this.recentGenerators.filter((r) => r !== path)].slice(0, RECENT_LIMIT);
+    globalThis.localStorage?.setItem(RECENT_GENERATORS_KEY, JSON.stringify(this.recentGenerators));
+  }
+
+  /** Renews this tab's lock while it holds one; releases it when the page goes away. */
+  #keepLock(): void {
+    if (this.#lockTimer) clearInterval(this.#lockTimer);
+    this.#lockTimer = null;
+    if (this.readOnly) return;
+    this.#lockTimer = setInterval(() => void this.engine.request('project.lock', { session: this.session, release: false }).catch(() => undefined), LOCK_RENEW_MS);
+  }
+
+  /** Called on pagehide: lets another window take the project at once. */
+  releaseLock(): void {
+    if (this.project && !this.readOnly) void this.engine.request('project.lock', { session: this.session, release: true }).catch(() => undefined);
+  }
+
+  /** Every stored audit of the project, merged: the newest result of each direction. */
+  async loadAuditHistory(): Promise<void> {
+    const h = await this.engine.request('audit.history', {});
+    this.auditFiles = h.files;
+    if (!h.report) return;
+    if (this.report) this.previousReport = this.report;
+    this.report = h.report;
+    this.thumbnails = h.thumbnails;
+    if (!this.focus || !h.report.directions.some((d) => d.name === this.focus)) this.focus = h.report.directions.find((d) => d.verdict !== 'pass')?.name ?? h.report.directions[0]?.name ?? null;
+  }
+
+  get probesProblem(): string | null {
+    return probesProblem(this.probes, this.studio.pinned.length);
+  }
+
+  get componentsProblem(): string | null {
+    return wholeProblem(this.components, 1, 64, 'Components');
+  }
+
+  get variantSeedsProblem(): string | null {
+    return seedListProblem(this.variantSeeds);
+  }
+
+  get variantNameProblem(): string | null {
+    return /^[A-Za-z0-9_.-]{1,80}$/.test(this.variantName) ? null : 'Name: 1–80 letters, digits, _ . or - (it names the folder).';
+  }
+
+  /** Variant-set settings as stored in the project: strengths by direction name. */
+  variantDraft(): VariantDraft {
+    const nameOf = Object.fromEntries(this.studio.directions.map((d) => [d.id, d.name]));
+    return {
+      name: this.variantName.slice(0, 80), seeds: this.variantSeeds.slice(0, 400), out: this.variantOut.slice(0, 4096),
+      settings: this.variantSettings.map((s) => ({ label: s.label, strengths: Object.fromEntries(Object.entries(s.strengths).filter(([id]) => nameOf[id]).map(([id, v]) => [nameOf[id], v])) })),
+    };
+  }
+
+  #restoreVariants(v: VariantDraft): void {
+    const idOf = Object.fromEntries(this.studio.directions.map((d) => [d.name, d.id]));
+    this.variantName = v.name || this.variantName;
+    this.variantSeeds = v.seeds || this.variantSeeds;
+    this.variantOut = v.out;
+    if (v.settings.length) this.variantSettings = v.settings.map((s) => ({ label: s.label, strengths: Object.fromEntries(Object.entries(s.strengths).filter(([n]) => idOf[n]).map(([n, x]) => [idOf[n], x])) }));
   }
 
   /** Reopens the last project after a reload or a crash. */
-  async restoreLastProject(): Promise<void> {
+  async restoreLastProject(): Promise<boolean> {
     const last = globalThis.localStorage?.getItem(LAST_PROJECT_KEY);
-    if (last) await this.openProject(last, false);
+    return last ? this.openProject(last, false) : false;
   }
 
   async discover(): Promise<void> {
+    if (this.method !== 'boundary' && this.method !== 'means' && this.componentsProblem) return;
     this.discovering = true;
     await this.#guard(`Discovering (${this.method})`, async () => {
       const tags = Object.entries(this.studio.tags);
@@ -127,7 +268,8 @@ export class Lab {
         stripSeeds: [this.studio.seed, this.studio.seed + 1, this.studio.seed + 2],
         stripStrengths: [-3, -1.5, 0, 1.5, 3],
       });
-      if (!r.cancelled) this.candidates = r.candidates;
+      // New candidates join the unkept ones; nothing is thrown away without being asked.
+      if (!r.cancelled) this.candidates = [...this.candidates.filter((c) => !r.candidates.some((n) => n.direction.id === c.direction.id)), ...r.candidates];
     });
     this.discovering = false;
   }
@@ -140,8 +282,30 @@ export class Lab {
     });
   }
 
+  /** Discards candidates: dropped from the engine and from the project's candidates/. */
+  async discardCandidates(ids: string[]): Promise<void> {
+    if (!ids.length) return;
+    await this.#guard('Discarding candidates', async () => {
+      await this.engine.request('directions.discard', { ids });
+      this.candidates = this.candidates.filter((c) => !ids.includes(c.direction.id));
+    });
+  }
+
+  async discardCandidate(id: string): Promise<void> {
+    await this.discardCandidates([id]);
+  }
+
+  async discardAll(confirmed: boolean): Promise<void> {
+    if (!confirmed) {
+      this.confirmingDiscard = true;
+      return;
+    }
+    this.confirmingDiscard = false;
+    await this.discardCandidates(this.candidates.map((c) => c.direction.id));
+  }
+
   async runAudit(ids = this.auditSelection): Promise<void> {
-    if (ids.length === 0) return;
+    if (ids.length === 0 || this.probesProblem) return;
     this.auditProgress = { done: 0, total: 1, label: 'starting' };
     await this.#guard('Auditing', async () => {
       const pending = this.engine.request(
@@ -155,16 +319,26 @@ export class Lab {
         this.studio.banner = { kind: 'info', text: 'Audit cancelled.' };
         return;
       }
-      if (this.report) this.previousReport = this.report;
-      this.report = r.report;
-      this.thumbnails = r.thumbnails;
-      this.focus = r.report.directions.find((d) => d.verdict !== 'pass')?.name ?? r.report.directions[0]?.name ?? null;
+      if (r.savedAs && this.project) {
+        // Stored in the project: show every direction's newest result, not only this audit's.
+        await this.loadAuditHistory();
+        this.focus = r.report.directions.find((d) => d.verdict !== 'pass')?.name ?? r.report.directions[0]?.name ?? null;
+      } else {
+        if (this.report) this.previousReport = this.report;
+        this.report = mergeReports(this.report, r.report);
+        this.thumbnails = [...this.thumbnails.filter((t) => !r.report.directions.some((d) => d.name === t.direction)), ...r.thumbnails];
+        this.focus = r.report.directions.find((d) => d.verdict !== 'pass')?.name ?? r.report.directions[0]?.name ?? null;
+      }
+      await this.refreshDirections();
     });
+    this.#auditRequest = 0;
     this.auditProgress = null;
   }
 
-  async cancelAudit(): Promise<void> {
-    if (this.#auditRequest) await this.engine.request('job.cancel', { requestId: this.#auditRequest });
+  /** Ends the wait at once, whatever the engine does with the cancel. */
+  cancelAudit(): void {
+    if (this.#auditRequest > 0) this.engine.cancel(this.#auditRequest);
+    this.auditProgress = null;
   }
 
   async repair(directionName: string): Promise<void> {
@@ -179,17 +353,61 @@ export class Lab {
       this.auditSelection = [d.id, r.direction.id];
     });
     this.repairing = false;
-    if (this.auditSelection.length === 2) await this.runAudit();
+    if (this.auditSelection.length === 2) {
+      await this.runAudit();
+      const child = this.studio.directions.find((x) => x.id === this.auditSelection[1]);
+      if (child) await this.loadRepairImages(directionName, child.name);
+    }
   }
 
-  async review(direction: DirectionInfo, status: Status, note: string): Promise<void> {
+  /** Renders the parent's worst probes with the original and with the repaired direction, at the same strength. */
+  async loadRepairImages(parent: string, child: string): Promise<void> {
+    const p = this.report?.directions.find((d) => d.name === parent);
+    if (!p || !this.report) return;
+    const seeds = this.thumbnails.filter((t) => t.direction === parent).map((t) => t.seed).slice(0, 4);
+    if (!seeds.length) return;
+    const strength = p.leakage.strength;
+    const psi = this.report.probes.psi;
+    await this.#guard(`Rendering ${parent} and ${child} on the same probes`, async () => {
+      const [a, b] = [await this.engine.request('lab.probeImages', { direction: parent, seeds, strength, psi }), await this.engine.request('lab.probeImages', { direction: child, seeds, strength, psi })];
+      const rows = a.images.map((x, i) => ({ seed: x.seed, before: this.thumbUrl(x.before), original: this.thumbUrl(x.after), repaired: this.thumbUrl(b.images[i].after) }));
+      this.repairImages = { ...this.repairImages, [child]: { parent, strength, rows } };
+    });
+  }
+
+  async enlarge(t: Thumb): Promise<void> {
+    const psi = this.report?.probes.psi ?? this.studio.psi;
+    await this.#guard(`Rendering seed ${t.seed} at full size`, async () => {
+      const r = await this.engine.request('lab.probeImages', { direction: t.direction, seeds: [t.seed], strength: t.strength, psi });
+      const img = r.images[0];
+      this.enlarged = { direction: t.direction, seed: t.seed, strength: t.strength, attribute: t.attribute, leakage: t.leakage, before: this.thumbUrl(img.before), after: this.thumbUrl(img.after) };
+    });
+  }
+
+  async renameDirection(direction: DirectionInfo, name: string): Promise<boolean> {
+    return this.#guard(`Renaming ${direction.name}`, async () => {
+      const r = await this.engine.request('directions.rename', { id: direction.id, name });
+      this.studio.directions = this.studio.directions.map((d) => (d.id === r.id ? r : d));
+    });
+  }
+
+  async deleteDirection(direction: DirectionInfo): Promise<void> {
+    await this.#guard(`Deleting ${direction.name}`, async () => {
+      const r = await this.engine.request('directions.delete', { id: direction.id });
+      await this.refreshDirections(r.directions);
+      this.studio.banner = { kind: 'info', text: `Deleted ${direction.name}; its files are kept in the project's directions/deleted/ and its history stays in the review log.` };
+    });
+  }
+
+  /** Records a sign-off step; `override` is the written reason when the audits do not support it. */
+  async review(direction: DirectionInfo, status: Status, note: string, override?: string): Promise<boolean> {
     if (!this.reviewer.trim()) {
       this.studio.banner = { kind: 'warning', text: 'Enter your name as reviewer first; the review log records who signed off.' };
-      return;
+      return false;
     }
     globalThis.localStorage?.setItem(REVIEWER_KEY, this.reviewer.trim());
-    await this.#guard(`Recording ${status} for ${direction.name}`, async () => {
-      const r = await this.engine.request('project.review', { direction: direction.id, status, reviewer: this.reviewer.trim(), note });
+    return this.#guard(`Recording ${status} for ${direction.name}`, async () => {
+      const r = await this.engine.request('project.review', { direction: direction.id, status, reviewer: this.reviewer.trim(), note, ...(override?.trim() ? { override: override.trim() } : {}) });
       this.studio.directions = this.studio.directions.map((d) => (d.id === direction.id ? { ...d, signOff: r.signOff } : d));
     });
   }
@@ -200,23 +418,25 @@ export class Lab {
     // Same rule as the protocol's variantLabelSchema: one folder name, no leading or trailing dots.
     const clean = label.replace(/[^A-Za-z0-9_.=+-]/g, '_').replace(/^\.+|\.+$/g, '').slice(0, 60).replace(/\.+$/, '') || `setting_${this.variantSettings.length}`;
     this.variantSettings = [...this.variantSettings.filter((s) => s.label !== clean), { label: clean, strengths }];
+    this.variantError = null;
+    this.studio.scheduleSave();
   }
 
   removeSetting(label: string): void {
     this.variantSettings = this.variantSettings.filter((s) => s.label !== label);
+    this.variantError = null;
+    this.studio.scheduleSave();
   }
 
-  async renderVariants(): Promise<void> {
-    let seeds: number[];
-    try {
-      seeds = parseSeedList(this.variantSeeds);
-    } catch (err) {
-      this.studio.banner = { kind: 'error', text: (err as Error).message };
-      return;
-    }
+  async renderVariants(force = false): Promise<void> {
+    if (this.variantSeedsProblem || this.variantNameProblem) return;
+    const seeds = parseSeedList(this.variantSeeds);
+    this.studio.scheduleSave();
+    this.variantError = null;
     this.variantProgress = { done: 0, total: 1, label: 'starting' };
-    await this.#guard('Rendering the variant set', async () => {
-      const pending = this.engine.request('variants.render', { name: this.variantName, seeds, psi: this.studio.psi, settings: this.variantSettings, out: this.variantOut }, (done, total, label) => (this.variantProgress = { done, total, label }));
+    this.studio.busy = 'Rendering the variant set';
+    try {
+      const pending = this.engine.request('variants.render', { name: this.variantName, seeds, psi: this.studio.psi, settings: this.variantSettings, out: this.variantOut, ...(force ? { forceReason: this.forceReason } : {}) }, (done, total, label) => (this.variantProgress = { done, total, label }));
       this.#variantRequest = this.engine.lastRequestId;
       const r = await pending;
       if (r.cancelled) {
@@ -224,13 +444,20 @@ export class Lab {
         return;
       }
       this.contactSheet = this.thumbUrl(r.contactSheet);
-      this.variantSummary = `${r.rendered} rendered, ${r.reused} kept from an earlier run, in ${r.out}`;
-    });
-    this.variantProgress = null;
+      this.variantSummary = `${r.rendered} rendered, ${r.reused} kept from an earlier run, in ${r.out}${force ? ` (forced: ${this.forceReason})` : ''}`;
+    } catch (err) {
+      // Refusals by the use rules are shown beside the button, with the way to force them.
+      this.variantError = (err as Error).message;
+    } finally {
+      this.#variantRequest = 0;
+      this.variantProgress = null;
+      this.studio.busy = null;
+    }
   }
 
-  async cancelVariants(): Promise<void> {
-    if (this.#variantRequest) await this.engine.request('job.cancel', { requestId: this.#variantRequest });
+  cancelVariants(): void {
+    if (this.#variantRequest > 0) this.engine.cancel(this.#variantRequest);
+    this.variantProgress = null;
   }
 
   async buildPack(out: string): Promise<void> {
@@ -255,6 +482,23 @@ export class Lab {
     });
   }
 
+  /** The audit and sign-off report as one self-contained HTML file; in the desktop app, also as PDF. */
+  async exportReport(asPdf = false): Promise<void> {
+    const name = (this.project?.name ?? 'plumbline').replace(/[^A-Za-z0-9_. -]/g, '_').slice(0, 100);
+    const html = reportHtml({ project: this.project?.name ?? 'Plumbline', generator: this.studio.model ? { name: this.studio.model.name, fingerprint: this.studio.model.fingerprint } : null, report: this.report, directions: this.studio.directions, thumbnails: this.thumbnails, createdAt: new Date().toISOString() });
+    const bridge = desktop();
+    if (asPdf && bridge?.printPdf) {
+      const saved = await bridge.printPdf(html, `${name}-sign-off`);
+      if (saved) this.studio.banner = { kind: 'info', text: `Saved ${saved}.` };
+      return;
+    }
+    const a = document.createElement('a');
+    a.href = URL.createObjectURL(new Blob([html], { type: 'text/html' }));
+    a.download = `${name}-sign-off.html`;
+    a.click();
+    setTimeout(() => URL.revokeObjectURL(a.href), 10_000);
+  }
+
   thumbUrl(bytes: Uint8Array): string {
     return URL.createObjectURL(new Blob([bytes as Uint8Array<ArrayBuffer>], { type: 'image/png' }));
   }
@@ -266,6 +510,14 @@ export class Lab {
   safeRange(name: string): [number, number] | null {
     return this.report?.directions.find((d) => d.name === name)?.safeRange ?? null;
   }
+}
+
+/** The newer report's directions replace the older's of the same name; the others stay. */
+export function mergeReports(older: AuditWire | null, newer: AuditWire): AuditWire {
+  if (!older) return newer;
+  const names = new Set(newer.directions.map((d) => d.name));
+  const attributes = [...newer.attributes, ...older.attributes.filter((a) => !newer.attributes.some((b) => b.name === a.name))];
+  return { ...newer, attributes, directions: [...older.directions.filter((d) => !names.has(d.name)), ...newer.directions] };
 }
 
 /** "0-7,12" → [0..7, 12]. */

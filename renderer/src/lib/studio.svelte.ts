@@ -67,8 +67,8 @@ export class Studio {
   canRedo = $derived.by(() => (this.historyVersion, this.history.canRedo));
   edited = $derived(Object.values(this.strengths).some((s) => s !== 0));
 
-  /** Connects to the engine and opens the demo generator. */
-  async start(): Promise<void> {
+  /** Connects, opens the demo generator, then `afterModel` (reopening a project; true when it did), else the grid. */
+  async start(afterModel?: () => Promise<boolean>): Promise<void> {
     this.engine.on('engine.stopped', (d) => {
       this.engineState = d.restarting ? 'restarting' : 'stopped';
       this.banner = { kind: 'error', text: `The engine stopped (${d.reason}).${d.restarting ? ' Restarting it; your work is kept.' : ''}` };
@@ -81,12 +81,30 @@ export class Studio {
     const token = params.get('token');
     if (token) this.engine.connectWebSocket(`ws://${location.host}/engine?token=${encodeURIComponent(token)}`);
     else await this.#connectDesktop();
+    // Another window or tab may already work with this engine: join its generator and directions
+    // instead of reopening the demo, which would reset them under that window's feet.
+    const hello = await this.engine.request('engine.hello', {}).catch(() => null);
+    if (hello?.model) {
+      const model = hello.model;
+      await this.#guard('Joining the open generator', async () => {
+        this.model = model;
+        this.psi = model.defaultPsi;
+        const list = await this.engine.request('directions.list', {});
+        this.directions = list.directions;
+        this.strengths = Object.fromEntries(list.directions.map((d) => [d.id, 0]));
+      });
+      if (await afterModel?.()) return;
+      await Promise.all([this.refreshGrid(), this.requestPreview()]);
+      return;
+    }
     await this.#guard('Opening the demo generator', async () => {
       this.model = await this.engine.request('model.openDemo', {});
       this.#modelPath = null;
       this.psi = this.model.defaultPsi;
       if (this.model.demoDirections) await this.#loadDirections(this.model.demoDirections);
     });
+    // A project to reopen comes first (it renders the grid and preview with its own state).
+    if (await afterModel?.()) return;
     await Promise.all([this.refreshGrid(), this.requestPreview()]);
   }
 
