@@ -5,8 +5,9 @@ import { PlumblineError } from '../core/errors.ts';
 import { differenceOfMeans, linearBoundary, pcaDirections, projectOff, sefaDirections } from '../core/discovery/methods.ts';
 import { decodeModel } from '../core/onnx/inspect.ts';
 import { latentWeights } from '../core/onnx/trace.ts';
-import { directionSigma } from '../core/latent.ts';
-import { dci, mig } from '../core/metrics.ts';
+import { dci, mig, type Score } from '../core/metrics.ts';
+import { applyEdits, directionSigma } from '../core/latent.ts';
+import { Random } from '../core/random.ts';
 import { resolveAttributes, scoreBatch } from './attributes.ts';
 import type { Generator } from './generator.ts';
 
@@ -188,30 +189,42 @@ export async function repairDirection(
   };
 }
 
+/** Strength range of the random edits for MIG/DCI on responses: ±this many σ (the audit's default reference strength). */
+export const RESPONSE_STRENGTH = 2;
+
 /**
  * MIG and DCI of a set of directions against the generator's declared factors (its card's
- * attribute outputs): each direction's code is the projection of a sample's centred latent onto it.
+ * attribute outputs), computed from what the edits DO: each sample is a random probe with every
+ * direction applied at an independent random strength s_j ~ U(−2, 2) σ_j (through the same edit
+ * rule as the audit, so per-layer W+ vectors and layer ranges count in full); its codes are the
+ * strengths s_j and its factors the change of each declared attribute against the unedited
+ * probe. A clean set moves each factor through one direction only (high MIG and D), whatever W's
+ * own statistics are. Scores the definition leaves undefined (one code, one factor) are 'undefined'.
  */
-export async function groundTruthMetrics(gen: Generator, directions: { name: string; vector: Float32Array }[], samples = 2000, seed = 1) {
+export async function groundTruthMetrics(gen: Generator, directions: { name: string; vector: Float32Array; layers: [number, number] | null; sigma: number }[], samples = 2000, seed = 1, checkpoint?: () => Promise<void>) {
   const factorsNames = gen.attributeNames;
   if (!factorsNames.length) return null;
   const J = directions.length;
   const K = factorsNames.length;
-  const { seeds, codes: w } = await sampleCodes(gen, samples, seed + 7);
-  const size = gen.layout.size;
+  const seeds = Array.from({ length: samples }, (_, i) => DISCOVERY_SEED_BASE + (seed + 7) * 100_003 + i);
+  const rng = new Random(seed, 0x3161);
   const codes = new Float64Array(samples * J);
-  for (let i = 0; i < samples; i++)
-    directions.forEach((d, j) => {
-      let s = 0;
-      for (let k = 0; k < size; k++) s += (w[i * size + k] - gen.centre[k]) * d.vector[k % d.vector.length];
-      codes[i * J + j] = s;
-    });
+  for (let i = 0; i < samples * J; i++) codes[i] = (2 * rng.uniform() - 1) * RESPONSE_STRENGTH;
   const factors = new Float64Array(samples * K);
+  const per = gen.layout.layers * gen.layout.size;
   for (let at = 0; at < samples; at += gen.batchSize) {
-    const out = await gen.renderSeeds(seeds.slice(at, at + gen.batchSize), 1, []);
-    if (out.attributes) factors.set(out.attributes, at * K);
+    const m = Math.min(gen.batchSize, samples - at);
+    const base = await gen.codesForSeeds(seeds.slice(at, at + m), 1);
+    const before = await gen.synthesize(base, m);
+    for (let i = 0; i < m; i++) {
+      const one = base.subarray(i * per, (i + 1) * per);
+      applyEdits(one, gen.layout, directions.map((d, j) => ({ vector: d.vector, layers: d.layers, step: codes[(at + i) * J + j] * d.sigma })));
+    }
+    const after = await gen.synthesize(base, m);
+    if (before.attributes && after.attributes) for (let k = 0; k < m * K; k++) factors[at * K + k] = after.attributes[k] - before.attributes[k];
+    await checkpoint?.();
   }
-  // Factors that never vary carry no information and would make H(v) = 0.
+  // Factors that no edit moves carry no information and would make H(v) = 0.
   const varying = factorsNames.map((_, k) => k).filter((k) => {
     let lo = Infinity;
     let hi = -Infinity;
@@ -219,17 +232,18 @@ export async function groundTruthMetrics(gen: Generator, directions: { name: str
       lo = Math.min(lo, factors[i * K + k]);
       hi = Math.max(hi, factors[i * K + k]);
     }
-    return hi > lo;
+    return hi - lo > 1e-6 * Math.max(1, Math.abs(hi), Math.abs(lo));
   });
   const F = new Float64Array(samples * varying.length);
   for (let i = 0; i < samples; i++) varying.forEach((k, c) => (F[i * varying.length + c] = factors[i * K + k]));
-  const m = J >= 2 ? mig(codes, J, F, varying.length) : null;
-  const d = dci(codes, J, F, varying.length);
+  const four = (v: Score) => (typeof v === 'number' ? Number(v.toFixed(4)) : v);
+  const m = varying.length ? mig(codes, J, F, varying.length) : { mig: 'undefined' as const };
+  const d = varying.length ? dci(codes, J, F, varying.length) : { disentanglement: 'undefined' as const, completeness: 'undefined' as const, informativeness: 'undefined' as const };
   return {
     samples,
     factors: varying.map((k) => factorsNames[k]),
-    mig: m ? Number(m.mig.toFixed(4)) : null,
-    dci: { disentanglement: Number(d.disentanglement.toFixed(4)), completeness: Number(d.completeness.toFixed(4)), informativeness: Number(d.informativeness.toFixed(4)) },
-    method: 'MIG: 20 equal-width bins, MI in nats (Chen et al. 2018); DCI: |standardised linear-regression coefficients| as importances, held-out R² as informativeness (Eastwood & Williams 2018)',
+    mig: four(m.mig),
+    dci: { disentanglement: four(d.disentanglement), completeness: four(d.completeness), informativeness: four(d.informativeness) },
+    method: `on the edits' responses: codes = random strengths U(−${RESPONSE_STRENGTH}, ${RESPONSE_STRENGTH}) σ of every direction at once, factors = change of each declared attribute; MIG: 20 equal-width bins, MI in nats (Chen et al. 2018); DCI: |standardised linear-regression coefficients| as importances, held-out R² as informativeness (Eastwood & Williams 2018); 'undefined' where the definition is (one code for MIG or completeness, one factor for disentanglement)`,
   };
 }

@@ -140,9 +140,32 @@ test('MIG and DCI against the declared factors rank the clean demo set above the
   const pick = (names: string[]) => directions.filter((d) => names.includes(d.name));
   const clean = await groundTruthMetrics(host.generator!, pick(['crest_size', 'turn', 'hue_shift', 'gem_grow']), 1500);
   const mixed = await groundTruthMetrics(host.generator!, pick(['axis_07', 'outline_bold', 'glow_surge', 'turn']), 1500);
-  for (const m of [clean!, mixed!]) for (const v of [m.mig!, m.dci.disentanglement, m.dci.completeness]) assert.ok(v >= 0 && v <= 1);
-  assert.ok(clean!.mig! > mixed!.mig!, `MIG ${clean!.mig} vs ${mixed!.mig}`);
-  assert.ok(clean!.dci.disentanglement > mixed!.dci.disentanglement);
+  const defined = (v: number | string) => {
+    assert.equal(typeof v, 'number', `four directions and several factors: every score is defined (${v})`);
+    return v as number;
+  };
+  for (const m of [clean!, mixed!]) for (const v of [m.mig, m.dci.disentanglement, m.dci.completeness]) assert.ok(defined(v) >= 0 && defined(v) <= 1);
+  assert.ok(defined(clean!.mig) > defined(mixed!.mig), `MIG ${clean!.mig} vs ${mixed!.mig}`);
+  assert.ok(defined(clean!.dci.disentanglement) > defined(mixed!.dci.disentanglement));
+});
+
+test('MIG and DCI read a per-layer W+ direction in full, not its first row', async () => {
+  // hue_shift acts on W+ row 2 and gem_grow on row 1 through their layer ranges. Written as
+  // per-row vectors (zeros on the other rows, no layer range) they are the same edits, so the
+  // scores must be identical; reading only the first row (all zeros) would lose both.
+  const gen = host.generator!;
+  const size = gen.layout.size;
+  const pick = directions.filter((d) => ['crest_size', 'turn', 'hue_shift', 'gem_grow'].includes(d.name));
+  const perRow = pick.map((d) => {
+    if (!d.layers) return d;
+    const v = new Float32Array(gen.layout.layers * size);
+    for (let l = d.layers[0]; l < d.layers[1]; l++) v.set(d.vector, l * size);
+    return { ...d, vector: v, layers: null };
+  });
+  const a = await groundTruthMetrics(gen, pick, 600);
+  const b = await groundTruthMetrics(gen, perRow, 600);
+  assert.deepEqual(b, a);
+  assert.ok(a!.factors.includes('hue') && a!.factors.includes('gem'), `factors moved by the row-2 and row-1 edits: ${a!.factors}`);
 });
 
 test('path length of a linear generator equals its analytic value', async () => {
