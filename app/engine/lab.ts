@@ -101,6 +101,9 @@ export interface BoundaryOptions {
   fraction?: number;
   seed?: number;
   attributes?: 'default' | 'card' | 'image' | 'all';
+  /** Fit in whitened coordinates (shrunk covariance) instead of W's own, the published default. */
+  whiten?: boolean;
+  shrinkage?: number | 'ledoit-wolf';
   /** Awaited between batches: lets a host serve previews and cancel. */
   checkpoint?: () => Promise<void>;
 }
@@ -121,7 +124,7 @@ export async function fitBoundaries(gen: Generator, attributes: string[], option
   }
   return specs.map((spec, j) => {
     const column = Float64Array.from({ length: samples }, (_, i) => scores[i * K + j]);
-    const r = linearBoundary(codes, gen.layout.size, column, { fraction, seed });
+    const r = linearBoundary(codes, gen.layout.size, column, { fraction, seed, whiten: options.whiten ?? false, shrinkage: options.shrinkage });
     return {
       name: `boundary_${spec.name}`,
       target: spec.name,
@@ -129,7 +132,7 @@ export async function fitBoundaries(gen: Generator, attributes: string[], option
       vector: r.vector,
       sigma: sigmaOf(gen, r.vector, null),
       notes: `linear SVM boundary for ${spec.name}: ${r.perSide} samples per side, held-out accuracy ${(r.accuracy * 100).toFixed(1)}%`,
-      source: provenance(gen, 'boundary', { attribute: spec.name, fraction, perSide: r.perSide, heldOutAccuracy: r.accuracy, whitened: true }, samples, seed),
+      source: provenance(gen, 'boundary', { attribute: spec.name, fraction, perSide: r.perSide, heldOutAccuracy: r.accuracy, coordinates: r.shrinkage === null ? 'latent' : 'whitened', shrinkage: r.shrinkage }, samples, seed),
       accuracy: r.accuracy,
     };
   });
