@@ -125,12 +125,13 @@ function reportHtml(m: Omit<PackManifest, 'entries'>, files: { path: string; byt
     return f ? `data:image/png;base64,${Buffer.from(f.bytes).toString('base64')}` : '';
   };
   const bar = (v: number | null) => {
-    const w = Math.min(1, Math.max(0, (v ?? 0) / 0.5)) * 200;
-    return `<svg width="220" height="14" role="img" aria-label="leakage ${v}"><rect width="200" height="10" y="2" fill="#2f3a46"/><rect width="${w.toFixed(1)}" height="10" y="2" fill="${(v ?? 0) < 0.15 ? '#4fb3a1' : (v ?? 0) < 0.35 ? '#e0a84a' : '#e26d5c'}"/><line x1="60" x2="60" y1="0" y2="14" stroke="#e6e9ec"/><line x1="140" x2="140" y1="0" y2="14" stroke="#e6e9ec"/></svg>`;
+    // Scale 0–1 σ; marks at the default pass (0.2 σ) and fail (0.5 σ) thresholds of the leak.
+    const w = Math.min(1, Math.max(0, v ?? 0)) * 200;
+    return `<svg width="220" height="14" role="img" aria-label="leakage ${v} σ"><rect width="200" height="10" y="2" fill="#2f3a46"/><rect width="${w.toFixed(1)}" height="10" y="2" fill="${(v ?? 0) < 0.2 ? '#4fb3a1' : (v ?? 0) < 0.5 ? '#e0a84a' : '#e26d5c'}"/><line x1="40" x2="40" y1="0" y2="14" stroke="#e6e9ec"/><line x1="100" x2="100" y1="0" y2="14" stroke="#e6e9ec"/></svg>`;
   };
   const rows = m.directions.map((d) => `<section><h2>${esc(d.name)} <small>→ ${esc(d.target ?? 'no target')}</small></h2>
 <p><b>${esc(d.audit.verdict)}</b> — ${esc(d.audit.reason)}</p>
-<p>leakage ${d.audit.leakage.value?.toFixed(3)} [${d.audit.leakage.low?.toFixed(3)}–${d.audit.leakage.high?.toFixed(3)}] ${bar(d.audit.leakage.value)} (marks at 0.15 and 0.35) · path length ${d.audit.pathLength.value?.toPrecision(3)} · safe range ${d.safeRange[0]} to ${d.safeRange[1]} σ · ${d.audit.probes} probes</p>
+<p>leakage ${d.audit.leakage.value?.toFixed(3)} [${d.audit.leakage.low?.toFixed(3)}–${d.audit.leakage.high?.toFixed(3)}] ${bar(d.audit.leakage.value)} σ (marks at 0.2 and 0.5 σ) · path length ${d.audit.pathLength.value?.toPrecision(3)} · safe range ${d.safeRange[0]} to ${d.safeRange[1]} σ · ${d.audit.probes} probes</p>
 <p>approved by ${esc(d.signOff.reviewer)} on ${esc(d.signOff.at)}${d.signOff.note ? ` — ${esc(d.signOff.note)}` : ''}</p>
 <figure><img alt="${esc(d.name)} preview: seeds ${d.previewSpec?.seeds.join(', ')} at strengths ${d.previewSpec?.strengths.join(', ')}" src="${png(d.preview)}"><figcaption>rows: seeds ${d.previewSpec?.seeds.join(', ')}; columns: strengths ${d.previewSpec?.strengths.join(', ')} σ at ψ ${d.previewSpec?.psi}</figcaption></figure></section>`).join('\n');
   return `<!doctype html><html lang="en"><head><meta charset="utf-8"><meta http-equiv="Content-Security-Policy" content="default-src 'none'; img-src data:; style-src 'unsafe-inline'"><title>${esc(m.project)} — preset pack</title>

@@ -53,8 +53,9 @@ export const requestSchemas = {
     psi: psi.default(0.7),
     seed: z.number().int().min(0).max(0xffffffff).default(1),
     referenceStrength: z.number().positive().max(10).default(2),
-    leakPass: z.number().positive().max(10).default(0.15),
-    leakFail: z.number().positive().max(10).default(0.35),
+    /** Leak thresholds in σ of the leaked attribute (see VERDICT_RULE in app/protocol/audit-rule.ts). */
+    leakPass: z.number().positive().max(10).default(0.2),
+    leakFail: z.number().positive().max(10).default(0.5),
     combinations: z.enum(['all', 'none']).default('all'),
   }),
   'lab.repair': z.object({ direction: z.string().min(1), against: z.array(z.string().min(1)).min(1).max(32), hold: z.union([z.literal('others'), z.array(z.string())]).default([]) }),

@@ -117,6 +117,10 @@ test('safe range is searched on both sides and a negative-side break is found an
   const onset = findBreaks(rangeInput({ leaks }));
   assert.equal(onset.negative!.strength, -3);
   assert.match(onset.negative!.cause, /leak into b reaches 0\.70 σ/);
+  // A leak growing in step with the strength (0.19 σ per σ: clean at ±1, its lower bound 0.54
+  // past the fail threshold at ±3) is a leak, not a break.
+  const linear = rangeInput({ leaks: clean.strengths.map((s) => (s === 0 ? null : { value: 0.19 * Math.abs(s), low: 0.18 * Math.abs(s), high: 0.199 * Math.abs(s), attribute: 1 })) });
+  assert.deepEqual(findBreaks(linear), { negative: null, positive: null });
   // An upper bound that touches the pass threshold ends the safe range there, without a break.
   const wide = clean.leaks.slice();
   wide[5] = { value: 0.1, low: 0.05, high: 0.25, attribute: 1 };

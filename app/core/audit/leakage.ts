@@ -131,9 +131,10 @@ export interface SafeRangeInput {
 
 /**
  * Breaks on each side: the first strength (moving out from 0) where the path length spikes
- * (more than spikeRatio × its median over |t| ≤ 1) or where a leak that started clean (upper
- * bound under leakPass at the first grid point of that side) is confidently past leakFail
- * (lower bound at or above it). A direction leaky from the start is leaky, not broken.
+ * (more than spikeRatio × its median over |t| ≤ 1), or where a leak sets in: it started clean
+ * (upper bound under leakPass at the first grid point of that side), is now confidently past
+ * leakFail (lower bound at or above it) and grows per unit strength at least spikeRatio × faster
+ * than at that first point. A leak that grows in step with the strength is a leak, not a break.
  */
 export function findBreaks(x: SafeRangeInput): { negative: BreakPoint | null; positive: BreakPoint | null } {
   const side = (sign: 1 | -1): BreakPoint | null => {
@@ -147,7 +148,8 @@ export function findBreaks(x: SafeRangeInput): { negative: BreakPoint | null; po
         return { strength: s, side: sign > 0 ? 'positive' : 'negative', cause: `path length spikes ×${(p / x.calmPathLength).toFixed(1)}` };
       }
       const l = x.leaks[i];
-      if (cleanStart && l && l.low >= x.leakFail) return { strength: s, side: sign > 0 ? 'positive' : 'negative', cause: `leak into ${x.attributeNames[l.attribute]} reaches ${l.value.toFixed(2)} σ (95% CI ${l.low.toFixed(2)}–${l.high.toFixed(2)})` };
+      const onset = first !== null && l !== null && l.value / Math.abs(s) >= x.spikeRatio * (first.value / Math.abs(order[0][0]));
+      if (cleanStart && l && l.low >= x.leakFail && onset) return { strength: s, side: sign > 0 ? 'positive' : 'negative', cause: `leak into ${x.attributeNames[l.attribute]} reaches ${l.value.toFixed(2)} σ (95% CI ${l.low.toFixed(2)}–${l.high.toFixed(2)})` };
     }
     return null;
   };
