@@ -154,8 +154,12 @@ export const auditWireSchema = z.object({
     reason: z.string(),
     targetEffect: interval,
     dependency: z.record(z.string(), interval),
-    leakage: interval.extend({ strength: z.number(), attribute: z.string() }),
-    pathLength: interval.extend({ distance: z.string() }).passthrough(),
+    leakage: interval.extend({ strength: z.number(), attribute: z.string() }).passthrough(),
+    /** Probes whose own leak reaches leakPass, with the Clopper–Pearson interval of their share. */
+    exceedance: z.object({ threshold: z.number(), probes: z.number(), count: z.number(), share: z.number(), low: z.number(), high: z.number() }).optional(),
+    /** Percentiles among random directions (null baseline); null when none ran. */
+    nullBaseline: z.object({ count: z.number(), targetEffect: z.number(), leakage: z.number(), pathLength: z.number() }).nullable().optional(),
+    pathLength: interval.extend({ distance: z.string(), units: z.string().optional() }).passthrough(),
     safeRange: z.tuple([z.number(), z.number()]),
     breaksAt: z.number().nullable(),
     curves: z.object({ strengths: z.array(z.number()), attributes: z.record(z.string(), z.object({ mean: z.array(z.number()), low: z.array(z.number()), high: z.array(z.number()) })) }),

@@ -30,7 +30,7 @@ export function judgeDirection(stats: DirectionStatistics, x: { reference: numbe
   const { settings: S, reference: ref } = x;
   const { verdict, decidedBy } = verdictFor({
     leak: L,
-    target: L.targetChange,
+    target: stats.targetEffect,
     exceedanceHigh: stats.exceedance.high,
     safeRange: stats.safeRange,
     reference: ref,
@@ -46,6 +46,7 @@ export function judgeDirection(stats: DirectionStatistics, x: { reference: numbe
   const leakText = `leaks into ${L.attribute}: ${fmt2(L.value)} σ at strength ${formatStrength(L.strength)} (95% CI ${fmt2(L.low)}–${fmt2(L.high)}) against the target's own ${fmt2(L.targetChange.value)} σ`;
   if (decidedBy === 'target barely moves') parts.push(`barely moves its target ${stats.target} (${fmt2(stats.targetEffect.value)} σ at ${formatStrength(ref)})`);
   else if (verdict === 'pass') parts.push(`clean within ±${ref}: largest leak ${fmt2(L.value)} σ (${L.attribute}, 95% CI up to ${fmt2(L.high)}) against the target's ${fmt2(L.targetChange.value)} σ`);
+  else if (L.high < S.leakPass) parts.push(`largest leak ${fmt2(L.value)} σ (${L.attribute}, 95% CI up to ${fmt2(L.high)}) against the target's ${fmt2(L.targetChange.value)} σ`);
   else parts.push(leakText);
   parts.push(exceedText);
   for (const b of [stats.breaks.negative, stats.breaks.positive]) if (b) parts.push(`breaks from ${formatStrength(b.strength)} (${b.side} side): ${b.cause}`);
