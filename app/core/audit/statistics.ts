@@ -101,17 +101,17 @@ export function nullSummary(m: DirectionMeasurements, plan: Pick<StatisticsGrid,
 
 /**
  * Percentiles (mid-rank, in %) of a direction's target effect, leak and path length among the
- * null directions, each null read the same way for this direction's target: its mean |Δ target|
- * at +reference, its largest mean |Δ| over the other attributes at ±reference, its path length.
+ * null directions, the direction and every null read the same way (both summarised by
+ * nullSummary) for this direction's target: mean |Δ target| at +reference, the largest mean |Δ|
+ * over the other attributes at ±reference, and the filtered path length.
  */
-export function nullPercentiles(stats: DirectionStatistics, attributes: string[], nulls: NullSummary[]): { count: number; targetEffect: number; leakage: number; pathLength: number } {
-  const t = attributes.indexOf(stats.target);
-  const leakOf = (x: NullSummary) => Math.max(0, ...[x.plus, x.minus].flatMap((side) => side.filter((_, j) => j !== t)));
+export function nullPercentiles(direction: NullSummary, target: number, nulls: NullSummary[]): { count: number; targetEffect: number; leakage: number; pathLength: number } {
+  const leakOf = (x: NullSummary) => Math.max(0, ...[x.plus, x.minus].flatMap((side) => side.filter((_, j) => j !== target)));
   return {
     count: nulls.length,
-    targetEffect: significant(percentileRank(nulls.map((x) => x.plus[t]), Math.abs(stats.targetEffect.value)), 4),
-    leakage: significant(percentileRank(nulls.map(leakOf), stats.leakage.value), 4),
-    pathLength: significant(percentileRank(nulls.map((x) => x.pathLength), stats.pathLength.value), 4),
+    targetEffect: significant(percentileRank(nulls.map((x) => x.plus[target]), direction.plus[target]), 4),
+    leakage: significant(percentileRank(nulls.map(leakOf), leakOf(direction)), 4),
+    pathLength: significant(percentileRank(nulls.map((x) => x.pathLength), direction.pathLength), 4),
   };
 }
 

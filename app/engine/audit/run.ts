@@ -58,11 +58,11 @@ export async function* runAudit(gen: Generator, directions: AuditDirection[], ra
     const bootstrap = new ProbeBootstrap(plan.seeds.length, plan.settings.bootstrapResamples, plan.settings.seed);
     const reports: DirectionReport[] = [];
     const runs: DirectionRun[] = [];
-    const measured: { d: AuditDirection; stats: DirectionStatistics }[] = [];
+    const measured: { d: AuditDirection; stats: DirectionStatistics; summary: NullSummary }[] = [];
     for (const d of directions) {
       const run = yield* measureDirection(context, d, tick);
       runs.push(run);
-      measured.push({ d, stats: directionStatistics(run.measurements, plan, names, plan.seeds, d.target, bootstrap) });
+      measured.push({ d, stats: directionStatistics(run.measurements, plan, names, plan.seeds, d.target, bootstrap), summary: nullSummary(run.measurements, plan) });
     }
     // Null baseline (METHODS §10): K random unit directions for each layer rule in use, with the
     // same σ scaling, probes and edit rule, measured at ±reference and along |s| ≤ reference.
@@ -82,8 +82,8 @@ export async function* runAudit(gen: Generator, directions: AuditDirection[], ra
         nulls.set(key, list);
       }
     }
-    for (const { d, stats } of measured) {
-      const nullRow = K > 0 ? nullPercentiles(stats, names, nulls.get(layerKey(d.layers))!) : null;
+    for (const { d, stats, summary } of measured) {
+      const nullRow = K > 0 ? nullPercentiles(summary, names.indexOf(stats.target), nulls.get(layerKey(d.layers))!) : null;
       const judged = judgeDirection(stats, { reference: plan.reference, settings: plan.settings, fewProbes: tooFewProbes(plan.seeds.length), pathLengthGrid: plan.pathLengthGrid, nulls: nullRow });
       reports.push(directionReport(d.name, stats, judged, plan, await renderWorstProbes(context, d, stats.worstProbes), nullRow));
     }
