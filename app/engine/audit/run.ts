@@ -42,8 +42,7 @@ export async function* runAudit(gen: Generator, directions: AuditDirection[], ra
   const plan = planAudit(rawSettings, directions, gen.layout, resolved.map((s) => s.name), !!models.features);
   let done = 0;
   const probeBatches = Math.ceil(plan.seeds.length / gen.batchSize);
-  const innerPath = plan.pathLengthGrid.filter((s) => Math.abs(s) <= plan.reference).length;
-  const total = auditWorkUnits(plan, directions.length, gen.batchSize) + layerRules(directions).length * plan.settings.nullDirections * (2 + innerPath) * probeBatches + Math.ceil(plan.settings.referencePathSamples / gen.batchSize);
+  const total = auditWorkUnits(plan, directions.length, gen.batchSize) + layerRules(directions).length * plan.settings.nullDirections * 3 * probeBatches + Math.ceil(plan.settings.referencePathSamples / gen.batchSize);
   const tick = (label: string): AuditProgress => ({ done: ++done, total, label });
 
   const spread = yield* measureAttributeSpread(gen, plan, resolved, directions, tick);
@@ -65,12 +64,12 @@ export async function* runAudit(gen: Generator, directions: AuditDirection[], ra
       measured.push({ d, stats: directionStatistics(run.measurements, plan, names, plan.seeds, d.target, bootstrap), summary: nullSummary(run.measurements, plan) });
     }
     // Null baseline (METHODS §10): K random unit directions for each layer rule in use, with the
-    // same σ scaling, probes and edit rule, measured at ±reference and along |s| ≤ reference.
+    // same σ scaling, probes and edit rule, measured at ±reference and, for path length, at the
+    // probes themselves (strength 0: the end-point form), which every audited direction also has.
     const nulls = new Map<string, NullSummary[]>();
     const K = plan.settings.nullDirections;
     if (K > 0) {
-      const inner = plan.pathLengthGrid.filter((s) => Math.abs(s) <= plan.reference);
-      const nullPlan = { ...plan, grid: [-plan.reference, 0, plan.reference], pathLengthGrid: inner };
+      const nullPlan = { ...plan, grid: [-plan.reference, 0, plan.reference], pathLengthGrid: [0] };
       const nullContext: MeasureContext = { ...context, plan: nullPlan };
       for (const layers of layerRules(directions)) {
         const key = layerKey(layers);
