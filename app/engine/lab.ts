@@ -194,11 +194,14 @@ export async function repairDirection(
 
 /** Strength range of the random edits for MIG/DCI on responses: ±this many σ (the audit's default reference strength). */
 export const RESPONSE_STRENGTH = 2;
+/** Random edits measured against each rendered base latent (MIG/DCI on responses). */
+const EDITS_PER_BASE = 4;
 
 /**
  * MIG and DCI of a set of directions against the generator's declared factors (its card's
  * attribute outputs), computed from what the edits DO: each sample is a random probe with every
- * direction applied at an independent random strength s_j ~ U(−2, 2) σ_j (through the same edit
+ * direction applied at an independent random strength s_j ~ U(−2, 2) σ_j (four such edits per
+ * random base latent; through the same edit
  * rule as the audit, so per-layer W+ vectors and layer ranges count in full); its codes are the
  * strengths s_j and its factors the change of each declared attribute against the unedited
  * probe. A clean set moves each factor through one direction only (high MIG and D), whatever W's
@@ -209,22 +212,38 @@ export async function groundTruthMetrics(gen: Generator, directions: { name: str
   if (!factorsNames.length) return null;
   const J = directions.length;
   const K = factorsNames.length;
-  const seeds = Array.from({ length: samples }, (_, i) => DISCOVERY_SEED_BASE + (seed + 7) * 100_003 + i);
+  // Each random base latent carries EDITS_PER_BASE independent random edits: a sample costs
+  // 1 + 1/EDITS_PER_BASE renders instead of 2, and every change is still against its own base.
+  const bases = Math.ceil(samples / EDITS_PER_BASE);
+  const baseSeeds = Array.from({ length: bases }, (_, i) => DISCOVERY_SEED_BASE + (seed + 7) * 100_003 + i);
   const rng = new Random(seed, 0x3161);
   const codes = new Float64Array(samples * J);
   for (let i = 0; i < samples * J; i++) codes[i] = (2 * rng.uniform() - 1) * RESPONSE_STRENGTH;
   const factors = new Float64Array(samples * K);
   const per = gen.layout.layers * gen.layout.size;
+  const baseCodes = await gen.codesForSeeds(baseSeeds, 1);
+  const baseAttributes = new Float64Array(bases * K);
+  for (let at = 0; at < bases; at += gen.batchSize) {
+    const m = Math.min(gen.batchSize, bases - at);
+    const out = await gen.synthesize(baseCodes.slice(at * per, (at + m) * per), m);
+    if (out.attributes) baseAttributes.set(out.attributes, at * K);
+    await checkpoint?.();
+  }
   for (let at = 0; at < samples; at += gen.batchSize) {
     const m = Math.min(gen.batchSize, samples - at);
-    const base = await gen.codesForSeeds(seeds.slice(at, at + m), 1);
-    const before = await gen.synthesize(base, m);
+    const edited = new Float32Array(m * per);
     for (let i = 0; i < m; i++) {
-      const one = base.subarray(i * per, (i + 1) * per);
+      const b = Math.floor((at + i) / EDITS_PER_BASE);
+      const one = edited.subarray(i * per, (i + 1) * per);
+      one.set(baseCodes.subarray(b * per, (b + 1) * per));
       applyEdits(one, gen.layout, directions.map((d, j) => ({ vector: d.vector, layers: d.layers, step: codes[(at + i) * J + j] * d.sigma })));
     }
-    const after = await gen.synthesize(base, m);
-    if (before.attributes && after.attributes) for (let k = 0; k < m * K; k++) factors[at * K + k] = after.attributes[k] - before.attributes[k];
+    const after = await gen.synthesize(edited, m);
+    if (after.attributes)
+      for (let i = 0; i < m; i++) {
+        const b = Math.floor((at + i) / EDITS_PER_BASE);
+        for (let k = 0; k < K; k++) factors[(at + i) * K + k] = after.attributes[i * K + k] - baseAttributes[b * K + k];
+      }
     await checkpoint?.();
   }
   // Factors that no edit moves carry no information and would make H(v) = 0.
