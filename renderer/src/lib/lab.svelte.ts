@@ -146,7 +146,7 @@ export class Lab {
     await this.#guard('Auditing', async () => {
       const pending = this.engine.request(
         'audit.run',
-        { directions: ids, probes: this.probes, pinnedSeeds: this.studio.pinned, psi: this.studio.psi, seed: 1, referenceStrength: 2, leakPass: 0.15, leakFail: 0.35, combinations: 'all' },
+        { directions: ids, probes: this.probes, pinnedSeeds: this.studio.pinned, psi: this.studio.psi, seed: 1, referenceStrength: 2, leakPass: 0.2, leakFail: 0.5, combinations: 'all' },
         (done, total, label) => (this.auditProgress = { done, total, label }),
       );
       this.#auditRequest = this.engine.lastRequestId;
