@@ -16,6 +16,13 @@ const seed = z.number().int().min(0).max(0xffffffff);
 const psi = z.number().min(0).max(2);
 const strength = z.number().finite().min(-50).max(50);
 
+/**
+ * Random directions per layer rule in the app's null baseline. Smaller than the CLI's 16 so an
+ * interactive audit stays quick; percentiles among 8 are coarse (steps of 12.5%), which is why
+ * the audit screen and the report state the count beside each percentile. Ask for more per audit.
+ */
+export const APP_NULL_DIRECTIONS = 8;
+
 export const editSchema = z.object({ direction: z.string().min(1), strength });
 export type Edit = z.infer<typeof editSchema>;
 
@@ -176,6 +183,8 @@ export const methods = {
     /** Leak thresholds in σ of the leaked attribute (see VERDICT_RULE in app/protocol/verdict-rule.ts). */
     leakPass: z.number().positive().max(10).default(0.2),
     leakFail: z.number().positive().max(10).default(0.5),
+    /** Random directions per layer rule for the null baseline (0 skips it); the report states the count beside every percentile. */
+    nullDirections: z.number().int().min(0).max(256).default(APP_NULL_DIRECTIONS),
     combinations: z.enum(['all', 'none']).default('all'),
   }), z.object({ report: auditWireSchema, thumbnails: z.array(thumbnailSchema), savedAs: z.string().nullable() })),
   'lab.repair': declare('job', z.object({ direction: z.string().min(1), against: z.array(z.string().min(1)).min(1).max(32), hold: z.union([z.literal('others'), z.array(z.string())]).default([]) }),

@@ -87,6 +87,43 @@ export async function* measureDirection(c: MeasureContext, d: AuditDirection, ti
 }
 
 /**
+ * The null baseline's measurements (METHODS §10) for random directions, on the grid
+ * [−reference, 0, +reference] with the end-point path length at 0: the same numbers
+ * measureDirection gives on that grid, but each probe batch's unedited render is made once and
+ * shared by every random direction (its scores are the probe set's base scores, already
+ * computed), so only edited renders are new: three per direction and batch (±reference and one ε
+ * step) instead of four.
+ */
+export async function* measureNullBaseline(c: MeasureContext, nulls: AuditDirection[], tick: Tick): AsyncGenerator<AuditProgress, DirectionMeasurements[], void> {
+  const { gen, plan, probes, specs, sigma } = c;
+  const n = probes.seeds.length;
+  const K = specs.length;
+  const batch = gen.batchSize;
+  const { reference: ref, epsilon: eps, exponent } = plan;
+  const out: DirectionMeasurements[] = nulls.map(() => ({
+    change: [specs.map(() => new Float64Array(n)), null, specs.map(() => new Float64Array(n))],
+    pathLength: [new Float64Array(n)],
+  }));
+  for (let at = 0; at < n; at += batch) {
+    const m = Math.min(batch, n - at);
+    // Strength 0 is the probe itself: rendered once per batch for all random directions.
+    const base = await gen.synthesize(editedProbes(c, at, m, []), m);
+    for (let k = 0; k < nulls.length; k++) {
+      const d = nulls[k];
+      for (const [row, s] of [[0, -ref], [2, ref]] as const) {
+        const sc = await scoreBatch(gen, await gen.synthesize(editedProbes(c, at, m, [{ d, s }]), m), specs);
+        for (let i = 0; i < m; i++) for (let j = 0; j < K; j++) out[k].change[row]![j][at + i] = attributeDelta(probes.baseScores[(at + i) * K + j], sc[i * K + j], specs[j].period) / sigma[j];
+      }
+      const next = await gen.synthesize(editedProbes(c, at, m, [{ d, s: eps }]), m);
+      const raw = await pairDistances(c, base.images, next.images, m);
+      for (let i = 0; i < m; i++) out[k].pathLength[0][at + i] = raw[i] / eps ** exponent;
+      yield tick(`null baseline: random direction ${k + 1} of ${nulls.length}`);
+    }
+  }
+  return out;
+}
+
+/**
  * The path-length distance between image i of two float batches, for i < m: on the generator's
  * float output throughout (never 8-bit), natively for SSIM when the images are NCHW.
  */

@@ -19,7 +19,7 @@ import type { ScorerModel } from '../scorer-model.ts';
 import { SsimDistanceModel } from '../distance-model.ts';
 import { groundTruthMetrics } from '../lab.ts';
 import { measureAttributeSpread, sampleProbes } from './probes.ts';
-import { measureDirection, measurePair, pairDistances, renderWorstProbes, type DirectionRun, type MeasureContext } from './measure.ts';
+import { measureDirection, measureNullBaseline, measurePair, pairDistances, renderWorstProbes, type DirectionRun, type MeasureContext } from './measure.ts';
 import type { AuditDirection as Direction } from '../../core/audit/plan.ts';
 import type { Tick } from './probes.ts';
 
@@ -42,7 +42,7 @@ export async function* runAudit(gen: Generator, directions: AuditDirection[], ra
   const plan = planAudit(rawSettings, directions, gen.layout, resolved.map((s) => s.name), !!models.features);
   let done = 0;
   const probeBatches = Math.ceil(plan.seeds.length / gen.batchSize);
-  const total = auditWorkUnits(plan, directions.length, gen.batchSize) + layerRules(directions).length * plan.settings.nullDirections * 3 * probeBatches + Math.ceil(plan.settings.referencePathSamples / gen.batchSize);
+  const total = auditWorkUnits(plan, directions.length, gen.batchSize) + layerRules(directions).length * plan.settings.nullDirections * probeBatches + Math.ceil(plan.settings.referencePathSamples / gen.batchSize);
   const tick = (label: string): AuditProgress => ({ done: ++done, total, label });
 
   const spread = yield* measureAttributeSpread(gen, plan, resolved, directions, tick);
@@ -66,19 +66,16 @@ export async function* runAudit(gen: Generator, directions: AuditDirection[], ra
     // Null baseline (METHODS §10): K random unit directions for each layer rule in use, with the
     // same σ scaling, probes and edit rule, measured at ±reference and, for path length, at the
     // probes themselves (strength 0: the end-point form), which every audited direction also has.
+    // The unedited renders and scores are shared (measureNullBaseline); K is the caller's
+    // (the CLI's default is 16, the app's APP_NULL_DIRECTIONS) and every report states it.
     const nulls = new Map<string, NullSummary[]>();
     const K = plan.settings.nullDirections;
     if (K > 0) {
       const nullPlan = { ...plan, grid: [-plan.reference, 0, plan.reference], pathLengthGrid: [0] };
       const nullContext: MeasureContext = { ...context, plan: nullPlan };
       for (const layers of layerRules(directions)) {
-        const key = layerKey(layers);
-        const list: NullSummary[] = [];
-        for (const d of nullDirections(gen, K, layers, plan.settings.seed)) {
-          const run = yield* measureDirection(nullContext, d, tick);
-          list.push(nullSummary(run.measurements, nullPlan));
-        }
-        nulls.set(key, list);
+        const runs = yield* measureNullBaseline(nullContext, nullDirections(gen, K, layers, plan.settings.seed), tick);
+        nulls.set(layerKey(layers), runs.map((r) => nullSummary(r, nullPlan)));
       }
     }
     for (const { d, stats, summary } of measured) {

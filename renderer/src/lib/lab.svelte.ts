@@ -1,7 +1,7 @@
 // State and intents of the lab screens: project, discovery, audit, repair and sign-off. Works
 // through the same engine client as the workbench (Studio) and keeps Studio's direction list
 // in step with the engine's.
-import type { AuditWire, DirectionInfo, Params, Result, WireImage } from '../../../app/protocol/messages.ts';
+import { APP_NULL_DIRECTIONS, type AuditWire, type DirectionInfo, type Params, type Result, type WireImage } from '../../../app/protocol/messages.ts';
 import { EngineRequestError } from './engine.ts';
 import type { Studio } from './studio.svelte.ts';
 
@@ -146,7 +146,7 @@ export class Lab {
     await this.#guard('Auditing', async () => {
       const pending = this.engine.request(
         'audit.run',
-        { directions: ids, probes: this.probes, pinnedSeeds: this.studio.pinned, psi: this.studio.psi, seed: 1, referenceStrength: 2, leakPass: 0.2, leakFail: 0.5, combinations: 'all' },
+        { directions: ids, probes: this.probes, pinnedSeeds: this.studio.pinned, psi: this.studio.psi, seed: 1, referenceStrength: 2, leakPass: 0.2, leakFail: 0.5, nullDirections: APP_NULL_DIRECTIONS, combinations: 'all' },
         (done, total, label) => (this.auditProgress = { done, total, label }),
       );
       this.#auditRequest = this.engine.lastRequestId;
