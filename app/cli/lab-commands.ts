@@ -74,6 +74,7 @@ export function loadDirections(workspace: Workspace, file: string, only?: string
 const pad = (s: string, n: number) => (s.length > n ? s.slice(0, n - 1) + '…' : s.padEnd(n));
 const f2 = (v: number) => (Number.isFinite(v) ? v.toFixed(2) : '—');
 const sgn = (v: number) => (v > 0 ? `+${v}` : `${v}`);
+const pc = (v: number) => `${(v * 100).toFixed(1)}%`;
 
 export function auditTable(report: AuditReport): string {
   const rows = report.directions.map((d) => [
@@ -83,10 +84,12 @@ export function auditTable(report: AuditReport): string {
     `${f2(d.leakage.value)} [${f2(d.leakage.low)}–${f2(d.leakage.high)}]`,
     d.leakage.attribute,
     `${f2(d.targetEffect.value)} σ`,
+    `${d.exceedance.count}/${d.exceedance.probes} [${pc(d.exceedance.low)}–${pc(d.exceedance.high)}]`,
+    d.nullBaseline ? `${Math.round(d.nullBaseline.targetEffect)}/${Math.round(d.nullBaseline.leakage)}/${Math.round(d.nullBaseline.pathLength)}` : '—',
     `${d.pathLength.value.toPrecision(3)}`,
     `${sgn(d.safeRange[0])}…${sgn(d.safeRange[1])}`,
   ]);
-  const head = ['direction', 'target', 'verdict', `leakage @±${report.settings.referenceStrength} [95% CI]`, 'leaks most into', 'target effect', `path length (${report.settings.pathLength.distance})`, 'safe range'];
+  const head = ['direction', 'target', 'verdict', `leakage @±${report.settings.referenceStrength} σ [95% CI]`, 'leaks most into', 'target effect', `probes ≥ ${report.settings.leakPass} σ [95% CI]`, 'null pct t/l/p', `path length (${report.settings.pathLength.distance})`, 'safe range'];
   const widths = head.map((h, k) => Math.max(h.length, ...rows.map((r) => r[k].length)));
   const line = (r: string[]) => r.map((c, k) => pad(c, widths[k])).join('  ');
   const out = [line(head), widths.map((w) => '─'.repeat(w)).join('  '), ...rows.map(line), ''];
@@ -97,6 +100,14 @@ export function auditTable(report: AuditReport): string {
     for (const c of flagged) out.push(`  ${c.a} + ${c.b}: interact in ${c.attribute} (${f2(c.attributeInteraction.value)} σ [${f2(c.attributeInteraction.low)}–${f2(c.attributeInteraction.high)}] beyond the sum at +${report.settings.referenceStrength})`);
   }
   if (report.directions.some((d) => d.targetChosen)) out.push('', '* no target named: the attribute the direction moves most');
+  const first = report.directions[0];
+  if (first) out.push('', `leakage: largest mean |Δ|/σ of a non-target attribute (attribute dependency); path length in ${first.pathLength.units}, ε = ${first.pathLength.epsilon} σ, 1st/99th-percentile filtered`);
+  if (report.nullBaseline) out.push(`null pct: percentile of target effect / leak / path length among ${report.nullBaseline.directions} random directions per layer rule (${report.nullBaseline.rules.join('; ')})`);
+  if (report.referencePathLength) {
+    const r = report.referencePathLength;
+    out.push(`generator reference: ${r.form}: ${r.value.toPrecision(4)} [${r.low.toPrecision(4)}–${r.high.toPrecision(4)}] ${r.units} over ${r.samples} pairs`);
+  }
+  out.push('', 'rule:', ...report.verdictRule.map((l) => `  ${l}`));
   if (report.groundTruth) {
     const g = report.groundTruth;
     out.push('', `ground truth (${g.factors.length} declared factors, ${g.samples} samples): MIG ${g.mig ?? '—'}, DCI disentanglement ${g.dci.disentanglement}, completeness ${g.dci.completeness}, informativeness ${g.dci.informativeness}`);
@@ -165,9 +176,10 @@ export function addLabCommands(program: Command, ctx: CliContext, number: (n: st
     .option('--strengths <grid>', 'strength grid in σ units: from:to:step or a list', '-3:3:0.5')
     .option('--reference <s>', 'strength at which leakage is summarised (±)', number('--reference', 0.01, 20), 2)
     .option('--attributes <set>', 'default | card | image | all | a,b,c', 'default')
-    .option('--pass <leakage>', 'leakage below this passes', number('--pass', 0, 10), 0.15)
-    .option('--fail <leakage>', 'leakage at or above this fails', number('--fail', 0, 10), 0.35)
-    .option('--distance <name>', 'path-length distance: ssim | ciede2000 | l2 | features', 'ssim')
+    .option('--pass <σ>', 'pass threshold for the leak, in σ of the leaked attribute (its upper 95% bound must be under it)', number('--pass', 0, 10), 0.2)
+    .option('--fail <σ>', 'fail threshold for the leak, in σ (its lower 95% bound at or above it fails)', number('--fail', 0, 10), 0.5)
+    .option('--distance <name>', 'path-length distance: ssim-lab | ssim | ciede2000 | l2 | features', 'ssim-lab')
+    .option('--nulls <k>', 'random directions per layer rule for the null baseline (0 skips)', integer('--nulls', 0, 256), 16)
     .option('--scorer <card>', 'a scorer card (.json) for a user ONNX attribute model; repeatable', (v: string, prev: string[]) => [...prev, v], [] as string[])
     .option('--feature-scorer <card>', "scorer card whose features output serves the 'features' distance")
     .option('--combinations <which>', 'all | none', 'all')
@@ -175,7 +187,7 @@ export function addLabCommands(program: Command, ctx: CliContext, number: (n: st
     .option('--json <file>', 'write the full report as JSON')
     .option('--threads <n>', 'inference threads', integer('--threads', 1, 256))
     .action(async (o) => {
-      if (!['ssim', 'ciede2000', 'l2', 'features'].includes(o.distance)) throw ctx.usage(`--distance must be ssim, ciede2000, l2 or features; got '${o.distance}'`);
+      if (!['ssim-lab', 'ssim', 'ciede2000', 'l2', 'features'].includes(o.distance)) throw ctx.usage(`--distance must be ssim-lab, ssim, ciede2000, l2 or features; got '${o.distance}'`);
       if (o.distance === 'features' && !o.featureScorer) throw ctx.usage("--distance features needs --feature-scorer <card>");
       if (!['all', 'none'].includes(o.combinations)) throw ctx.usage(`--combinations must be all or none; got '${o.combinations}'`);
       if (o.pass >= o.fail) throw ctx.usage(`--pass (${o.pass}) must be below --fail (${o.fail})`);
@@ -201,6 +213,7 @@ export function addLabCommands(program: Command, ctx: CliContext, number: (n: st
           leakPass: o.pass,
           leakFail: o.fail,
           pathLength: { distance: o.distance, epsilon: 0.01, spikeRatio: 5 },
+          nullDirections: o.nulls,
           combinations: o.combinations,
           bootstrapResamples: o.resamples,
           scorerCards: (o.scorer as string[]).map((c) => resolve(c)),

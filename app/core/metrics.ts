@@ -8,6 +8,9 @@
 //    held-out R². Importances here are absolute standardised coefficients of a linear
 //    regression per factor (the paper uses Lasso or random forests; a linear regressor keeps
 //    it dependency-free and deterministic).
+// A score that its definition leaves undefined is reported as 'undefined', never as a number:
+// MIG needs a second code for its gap (one code: undefined); DCI disentanglement takes entropy
+// in base K (one factor: undefined) and completeness in base J (one code: undefined).
 import { Matrix, solve } from 'ml-matrix';
 
 export const MIG_BINS = 20;
@@ -47,9 +50,11 @@ export function mutualInformation(a: Int32Array, b: Int32Array): number {
   return Math.max(0, mi);
 }
 
-/** codes [n × J], factors [n × K], row-major. */
-export function mig(codes: Float64Array, J: number, factors: Float64Array, K: number): { mig: number; perFactor: number[] } {
-  if (J < 2) throw new RangeError('MIG needs at least two codes (directions)');
+export type Score = number | 'undefined';
+
+/** codes [n × J], factors [n × K], row-major. perFactor is NaN for a factor with no entropy. */
+export function mig(codes: Float64Array, J: number, factors: Float64Array, K: number): { mig: Score; perFactor: number[] } {
+  if (J < 2) return { mig: 'undefined', perFactor: Array.from({ length: K }, () => NaN) };
   const n = codes.length / J;
   const col = (m: Float64Array, w: number, j: number) => Float64Array.from({ length: n }, (_, i) => m[i * w + j]);
   const dc = Array.from({ length: J }, (_, j) => discretise(col(codes, J, j)));
@@ -65,7 +70,7 @@ export function mig(codes: Float64Array, J: number, factors: Float64Array, K: nu
     perFactor.push((mis[0] - mis[1]) / h);
   }
   const valid = perFactor.filter(Number.isFinite);
-  return { mig: valid.reduce((a, b) => a + b, 0) / valid.length, perFactor };
+  return { mig: valid.length ? valid.reduce((a, b) => a + b, 0) / valid.length : 'undefined', perFactor };
 }
 
 function entropy(p: number[], base: number): number {
@@ -75,7 +80,7 @@ function entropy(p: number[], base: number): number {
 }
 
 /** D and C from an importance matrix R [J codes × K factors]. */
-export function dciFromImportance(R: number[][]): { disentanglement: number; completeness: number; perCode: number[]; perFactor: number[] } {
+export function dciFromImportance(R: number[][]): { disentanglement: Score; completeness: Score; perCode: number[]; perFactor: number[] } {
   const J = R.length;
   const K = R[0].length;
   const total = R.flat().reduce((a, b) => a + b, 0);
@@ -88,8 +93,8 @@ export function dciFromImportance(R: number[][]): { disentanglement: number; com
     const s = colv.reduce((a, b) => a + b, 0);
     return s > 0 ? 1 - entropy(colv.map((v) => v / s), J) : 0;
   });
-  const disentanglement = R.reduce((acc, row, j) => acc + (row.reduce((a, b) => a + b, 0) / total) * perCode[j], 0);
-  const completeness = perFactor.reduce((acc, c, k) => acc + (R.reduce((a, row) => a + row[k], 0) / total) * c, 0);
+  const disentanglement = K < 2 || !(total > 0) ? 'undefined' : R.reduce((acc, row, j) => acc + (row.reduce((a, b) => a + b, 0) / total) * perCode[j], 0);
+  const completeness = J < 2 || !(total > 0) ? 'undefined' : perFactor.reduce((acc, c, k) => acc + (R.reduce((a, row) => a + row[k], 0) / total) * c, 0);
   return { disentanglement, completeness, perCode, perFactor };
 }
 
@@ -136,5 +141,6 @@ export function dci(codes: Float64Array, J: number, factors: Float64Array, K: nu
     informativeness.push(st > 0 ? 1 - ss / st : NaN);
   }
   const finite = informativeness.filter(Number.isFinite);
-  return { ...dciFromImportance(R), informativeness: finite.reduce((a, b) => a + b, 0) / finite.length, importance: R };
+  const informative: Score = finite.length ? finite.reduce((a, b) => a + b, 0) / finite.length : 'undefined';
+  return { ...dciFromImportance(R), informativeness: informative, importance: R };
 }

@@ -53,7 +53,11 @@ export const evidenceSchema = z.object({
   auditGenerator: z.string().regex(/^[0-9a-f]{64}$/),
   strengths: z.array(z.number()).min(2).max(1000),
   leakageCurve: z.array(z.number().nullable()).max(1000),
+  /** The leak's 95% bounds at each strength: the safe range reads the upper, breaks the lower. Absent in packs made before the two-sided rule; verify then asks for a rebuild. */
+  leakageLower: z.array(z.number().nullable()).max(1000).optional(),
+  leakageUpper: z.array(z.number().nullable()).max(1000).optional(),
   leakPass: z.number().positive(),
+  leakFail: z.number().positive().optional(),
   pathLength: z.object({ strengths: z.array(z.number()).max(1000), mean: z.array(z.number()).max(1000) }),
   spikeRatio: z.number().min(1),
 });

@@ -1,5 +1,5 @@
-// Runs the SSIM path-length distance graph (core/audit/ssim-graph.ts) in onnxruntime: one
-// session per audit, batched over image pairs.
+// Runs an SSIM path-length distance graph (core/audit/ssim-graph.ts: luma, or the three CIELAB
+// channels) in onnxruntime: one session per audit, batched over image pairs.
 import * as ort from 'onnxruntime-node';
 import { ssimDistanceGraph } from '../core/audit/ssim-graph.ts';
 import { createSession } from './sessions.ts';
@@ -7,8 +7,8 @@ import { createSession } from './sessions.ts';
 export class SsimDistanceModel {
   private constructor(private session: ort.InferenceSession | null, private dims: [number, number]) {}
 
-  static async create(height: number, width: number, range: [number, number], threads?: number): Promise<SsimDistanceModel> {
-    const session = await createSession(ssimDistanceGraph(height, width, range), 'ssim distance graph', { threads });
+  static async create(height: number, width: number, range: [number, number], threads?: number, space: 'luma' | 'lab' = 'luma'): Promise<SsimDistanceModel> {
+    const session = await createSession(ssimDistanceGraph(height, width, range, space), `ssim (${space}) distance graph`, { threads });
     return new SsimDistanceModel(session, [height, width]);
   }
 

@@ -5,7 +5,9 @@ import { PlumblineError } from '../core/errors.ts';
 import { differenceOfMeans, linearBoundary, pcaDirections, projectOff, sefaDirections } from '../core/discovery/methods.ts';
 import { decodeModel } from '../core/onnx/inspect.ts';
 import { latentWeights } from '../core/onnx/trace.ts';
-import { dci, mig } from '../core/metrics.ts';
+import { dci, mig, type Score } from '../core/metrics.ts';
+import { applyEdits } from '../core/latent.ts';
+import { Random } from '../core/random.ts';
 import { resolveAttributes, scoreBatch } from './attributes.ts';
 import type { Generator } from './generator.ts';
 
@@ -95,6 +97,9 @@ export interface BoundaryOptions {
   fraction?: number;
   seed?: number;
   attributes?: 'default' | 'card' | 'image' | 'all';
+  /** Fit in whitened coordinates (shrunk covariance) instead of W's own, the published default. */
+  whiten?: boolean;
+  shrinkage?: number | 'ledoit-wolf';
   /** Awaited between batches: lets a host serve previews and cancel. */
   checkpoint?: () => Promise<void>;
 }
@@ -115,7 +120,7 @@ export async function fitBoundaries(gen: Generator, attributes: string[], option
   }
   return specs.map((spec, j) => {
     const column = Float64Array.from({ length: samples }, (_, i) => scores[i * K + j]);
-    const r = linearBoundary(codes, gen.layout.size, column, { fraction, seed });
+    const r = linearBoundary(codes, gen.layout.size, column, { fraction, seed, whiten: options.whiten ?? false, shrinkage: options.shrinkage });
     return {
       name: `boundary_${spec.name}`,
       target: spec.name,
@@ -123,7 +128,7 @@ export async function fitBoundaries(gen: Generator, attributes: string[], option
       vector: r.vector,
       sigma: gen.sigmaOf(r.vector, null),
       notes: `linear SVM boundary for ${spec.name}: ${r.perSide} samples per side, held-out accuracy ${(r.accuracy * 100).toFixed(1)}%`,
-      source: provenance(gen, 'boundary', { attribute: spec.name, fraction, perSide: r.perSide, heldOutAccuracy: r.accuracy, whitened: true }, samples, seed),
+      source: provenance(gen, 'boundary', { attribute: spec.name, fraction, perSide: r.perSide, heldOutAccuracy: r.accuracy, coordinates: r.shrinkage === null ? 'latent' : 'whitened', shrinkage: r.shrinkage }, samples, seed),
       accuracy: r.accuracy,
     };
   });
@@ -216,30 +221,61 @@ export async function discover(gen: Generator, r: DiscoveryRequest, checkpoint?:
   return found.map((f) => (r.name && found.length === 1 ? { ...f, name: r.name } : f));
 }
 
+/** Strength range of the random edits for MIG/DCI on responses: ±this many σ (the audit's default reference strength). */
+export const RESPONSE_STRENGTH = 2;
+/** Random edits measured against each rendered base latent (MIG/DCI on responses). */
+const EDITS_PER_BASE = 4;
+
 /**
  * MIG and DCI of a set of directions against the generator's declared factors (its card's
- * attribute outputs): each direction's code is the projection of a sample's centred latent onto it.
+ * attribute outputs), computed from what the edits DO: each sample is a random probe with every
+ * direction applied at an independent random strength s_j ~ U(−2, 2) σ_j (four such edits per
+ * random base latent; through the same edit
+ * rule as the audit, so per-layer W+ vectors and layer ranges count in full); its codes are the
+ * strengths s_j and its factors the change of each declared attribute against the unedited
+ * probe. A clean set moves each factor through one direction only (high MIG and D), whatever W's
+ * own statistics are. Scores the definition leaves undefined (one code, one factor) are 'undefined'.
  */
-export async function groundTruthMetrics(gen: Generator, directions: { name: string; vector: Float32Array }[], samples = 2000, seed = 1) {
+export async function groundTruthMetrics(gen: Generator, directions: { name: string; vector: Float32Array; layers: [number, number] | null; sigma: number }[], samples = 2000, seed = 1, checkpoint?: () => Promise<void>) {
   const factorsNames = gen.attributeNames;
   if (!factorsNames.length) return null;
   const J = directions.length;
   const K = factorsNames.length;
-  const { seeds, codes: w } = await sampleCodes(gen, samples, seed + 7);
-  const size = gen.layout.size;
+  // Each random base latent carries EDITS_PER_BASE independent random edits: a sample costs
+  // 1 + 1/EDITS_PER_BASE renders instead of 2, and every change is still against its own base.
+  const bases = Math.ceil(samples / EDITS_PER_BASE);
+  const baseSeeds = Array.from({ length: bases }, (_, i) => DISCOVERY_SEED_BASE + (seed + 7) * 100_003 + i);
+  const rng = new Random(seed, 0x3161);
   const codes = new Float64Array(samples * J);
-  for (let i = 0; i < samples; i++)
-    directions.forEach((d, j) => {
-      let s = 0;
-      for (let k = 0; k < size; k++) s += (w[i * size + k] - gen.centre[k]) * d.vector[k % d.vector.length];
-      codes[i * J + j] = s;
-    });
+  for (let i = 0; i < samples * J; i++) codes[i] = (2 * rng.uniform() - 1) * RESPONSE_STRENGTH;
   const factors = new Float64Array(samples * K);
-  for (let at = 0; at < samples; at += gen.batchSize) {
-    const out = await gen.renderSeeds(seeds.slice(at, at + gen.batchSize), 1, []);
-    if (out.attributes) factors.set(out.attributes, at * K);
+  const per = gen.layout.layers * gen.layout.size;
+  const baseCodes = await gen.codesForSeeds(baseSeeds, 1);
+  const baseAttributes = new Float64Array(bases * K);
+  for (let at = 0; at < bases; at += gen.batchSize) {
+    const m = Math.min(gen.batchSize, bases - at);
+    const out = await gen.synthesize(baseCodes.slice(at * per, (at + m) * per), m);
+    if (out.attributes) baseAttributes.set(out.attributes, at * K);
+    await checkpoint?.();
   }
-  // Factors that never vary carry no information and would make H(v) = 0.
+  for (let at = 0; at < samples; at += gen.batchSize) {
+    const m = Math.min(gen.batchSize, samples - at);
+    const edited = new Float32Array(m * per);
+    for (let i = 0; i < m; i++) {
+      const b = Math.floor((at + i) / EDITS_PER_BASE);
+      const one = edited.subarray(i * per, (i + 1) * per);
+      one.set(baseCodes.subarray(b * per, (b + 1) * per));
+      applyEdits(one, gen.layout, directions.map((d, j) => ({ vector: d.vector, layers: d.layers, step: codes[(at + i) * J + j] * d.sigma })));
+    }
+    const after = await gen.synthesize(edited, m);
+    if (after.attributes)
+      for (let i = 0; i < m; i++) {
+        const b = Math.floor((at + i) / EDITS_PER_BASE);
+        for (let k = 0; k < K; k++) factors[(at + i) * K + k] = after.attributes[i * K + k] - baseAttributes[b * K + k];
+      }
+    await checkpoint?.();
+  }
+  // Factors that no edit moves carry no information and would make H(v) = 0.
   const varying = factorsNames.map((_, k) => k).filter((k) => {
     let lo = Infinity;
     let hi = -Infinity;
@@ -247,17 +283,18 @@ export async function groundTruthMetrics(gen: Generator, directions: { name: str
       lo = Math.min(lo, factors[i * K + k]);
       hi = Math.max(hi, factors[i * K + k]);
     }
-    return hi > lo;
+    return hi - lo > 1e-6 * Math.max(1, Math.abs(hi), Math.abs(lo));
   });
   const F = new Float64Array(samples * varying.length);
   for (let i = 0; i < samples; i++) varying.forEach((k, c) => (F[i * varying.length + c] = factors[i * K + k]));
-  const m = J >= 2 ? mig(codes, J, F, varying.length) : null;
-  const d = dci(codes, J, F, varying.length);
+  const four = (v: Score) => (typeof v === 'number' ? Number(v.toFixed(4)) : v);
+  const m = varying.length ? mig(codes, J, F, varying.length) : { mig: 'undefined' as const };
+  const d = varying.length ? dci(codes, J, F, varying.length) : { disentanglement: 'undefined' as const, completeness: 'undefined' as const, informativeness: 'undefined' as const };
   return {
     samples,
     factors: varying.map((k) => factorsNames[k]),
-    mig: m ? Number(m.mig.toFixed(4)) : null,
-    dci: { disentanglement: Number(d.disentanglement.toFixed(4)), completeness: Number(d.completeness.toFixed(4)), informativeness: Number(d.informativeness.toFixed(4)) },
-    method: 'MIG: 20 equal-width bins, MI in nats (Chen et al. 2018); DCI: |standardised linear-regression coefficients| as importances, held-out R² as informativeness (Eastwood & Williams 2018)',
+    mig: four(m.mig),
+    dci: { disentanglement: four(d.disentanglement), completeness: four(d.completeness), informativeness: four(d.informativeness) },
+    method: `on the edits' responses: codes = random strengths U(−${RESPONSE_STRENGTH}, ${RESPONSE_STRENGTH}) σ of every direction at once, factors = change of each declared attribute; MIG: 20 equal-width bins, MI in nats (Chen et al. 2018); DCI: |standardised linear-regression coefficients| as importances, held-out R² as informativeness (Eastwood & Williams 2018); 'undefined' where the definition is (one code for MIG or completeness, one factor for disentanglement)`,
   };
 }

@@ -44,6 +44,8 @@ interface AuditEntry {
   safeRange: [number, number];
   curves?: { strengths: number[] };
   leakageCurve?: (number | null)[];
+  leakageLower?: (number | null)[];
+  leakageUpper?: (number | null)[];
   pathLengthCurve?: { strengths: number[]; mean: number[] };
 }
 
@@ -52,7 +54,7 @@ interface AuditFound {
   probes: number;
   file: string;
   generator: string;
-  settings: { leakPass: number; pathLength: { spikeRatio: number } };
+  settings: { leakPass: number; leakFail: number; pathLength: { spikeRatio: number } };
 }
 
 /** The newest audit in the project that covers each direction. */
@@ -74,12 +76,15 @@ function latestAudits(projectDir: string): Map<string, AuditFound> {
 /** The audit curves a safe range was derived from, as the pack carries them; null when the audit lacks them. */
 function evidenceOf(a: AuditFound): PackEvidence | null {
   const e = a.entry;
-  if (!e.curves?.strengths || !e.leakageCurve || !e.pathLengthCurve) return null;
+  if (!e.curves?.strengths || !e.leakageCurve || !e.leakageLower || !e.leakageUpper || !e.pathLengthCurve) return null;
   return {
     auditGenerator: a.generator,
     strengths: e.curves.strengths,
     leakageCurve: e.leakageCurve,
+    leakageLower: e.leakageLower,
+    leakageUpper: e.leakageUpper,
     leakPass: a.settings.leakPass,
+    leakFail: a.settings.leakFail,
     pathLength: { strengths: e.pathLengthCurve.strengths, mean: e.pathLengthCurve.mean },
     spikeRatio: a.settings.pathLength.spikeRatio,
   };
@@ -158,12 +163,13 @@ function reportHtml(m: Omit<PackManifest, 'entries'>, files: { path: string; byt
     return f ? `data:image/png;base64,${Buffer.from(f.bytes).toString('base64')}` : '';
   };
   const bar = (v: number | null) => {
-    const w = Math.min(1, Math.max(0, (v ?? 0) / 0.5)) * 200;
-    return `<svg width="220" height="14" role="img" aria-label="leakage ${esc(v)}"><rect width="200" height="10" y="2" fill="#2f3a46"/><rect width="${w.toFixed(1)}" height="10" y="2" fill="${(v ?? 0) < 0.15 ? '#4fb3a1' : (v ?? 0) < 0.35 ? '#e0a84a' : '#e26d5c'}"/><line x1="60" x2="60" y1="0" y2="14" stroke="#e6e9ec"/><line x1="140" x2="140" y1="0" y2="14" stroke="#e6e9ec"/></svg>`;
+    // Scale 0–1 σ; marks at the default pass (0.2 σ) and fail (0.5 σ) thresholds of the leak.
+    const w = Math.min(1, Math.max(0, v ?? 0)) * 200;
+    return `<svg width="220" height="14" role="img" aria-label="leakage ${esc(v)} σ"><rect width="200" height="10" y="2" fill="#2f3a46"/><rect width="${w.toFixed(1)}" height="10" y="2" fill="${(v ?? 0) < 0.2 ? '#4fb3a1' : (v ?? 0) < 0.5 ? '#e0a84a' : '#e26d5c'}"/><line x1="40" x2="40" y1="0" y2="14" stroke="#e6e9ec"/><line x1="100" x2="100" y1="0" y2="14" stroke="#e6e9ec"/></svg>`;
   };
   const rows = m.directions.map((d) => `<section><h2>${esc(d.name)} <small>→ ${esc(d.target ?? 'no target')}</small></h2>
 <p><b>${esc(d.audit.verdict)}</b> — ${esc(d.audit.reason)}</p>
-<p>leakage ${esc(d.audit.leakage.value?.toFixed(3))} [${esc(d.audit.leakage.low?.toFixed(3))}–${esc(d.audit.leakage.high?.toFixed(3))}] ${bar(d.audit.leakage.value)} (marks at 0.15 and 0.35) · path length ${esc(d.audit.pathLength.value?.toPrecision(3))} · safe range ${esc(d.safeRange[0])} to ${esc(d.safeRange[1])} σ · ${esc(d.audit.probes)} probes</p>
+<p>leakage ${esc(d.audit.leakage.value?.toFixed(3))} [${esc(d.audit.leakage.low?.toFixed(3))}–${esc(d.audit.leakage.high?.toFixed(3))}] ${bar(d.audit.leakage.value)} σ (marks at 0.2 and 0.5 σ) · path length ${esc(d.audit.pathLength.value?.toPrecision(3))} · safe range ${esc(d.safeRange[0])} to ${esc(d.safeRange[1])} σ · ${esc(d.audit.probes)} probes</p>
 <p>approved by ${esc(d.signOff.reviewer)} on ${esc(d.signOff.at)}${d.signOff.note ? ` — ${esc(d.signOff.note)}` : ''}</p>${d.signOff.override ? `
 <p style="border-left:4px solid #e26d5c;padding-left:8px"><b>Approved by override</b> although ${esc(d.signOff.gate ?? 'its audit did not support it')}. Reason given: ${esc(d.signOff.override)}</p>` : ''}
 <figure><img alt="${esc(d.name)} preview: seeds ${esc(d.previewSpec?.seeds.join(', '))} at strengths ${esc(d.previewSpec?.strengths.join(', '))}" src="${esc(png(d.preview))}"><figcaption>rows: seeds ${esc(d.previewSpec?.seeds.join(', '))}; columns: strengths ${esc(d.previewSpec?.strengths.join(', '))} σ at ψ ${esc(d.previewSpec?.psi)}</figcaption></figure></section>`).join('\n');
@@ -221,7 +227,9 @@ export async function verifyPack(bytes: Uint8Array, label: string, gen: Generato
     if (!e) throw new PackError('range', `${label}: direction '${d.name}' carries no audit curves, so its safe range [${lo}, ${hi}] cannot be checked; rebuild the pack`);
     if (e.auditGenerator !== gen.info.fingerprint) throw new PackError('range', `${label}: direction '${d.name}' was audited on generator ${e.auditGenerator.slice(0, 16)}…, not this one`);
     if (e.leakageCurve.length !== e.strengths.length || e.pathLength.mean.length !== e.pathLength.strengths.length) throw new PackError('range', `${label}: direction '${d.name}': its audit curves have mismatched lengths`);
-    const [elo, ehi] = safeRangeFromCurves(e);
+    if (!e.leakageLower || !e.leakageUpper || e.leakFail === undefined) throw new PackError('range', `${label}: direction '${d.name}' carries audit curves without the leak's confidence bounds (a pack made before the two-sided safe-range rule), so its safe range cannot be checked; audit again and rebuild the pack`);
+    if (e.leakageLower.length !== e.strengths.length || e.leakageUpper.length !== e.strengths.length) throw new PackError('range', `${label}: direction '${d.name}': its audit curves have mismatched lengths`);
+    const [elo, ehi] = safeRangeFromCurves({ ...e, leakageLower: e.leakageLower, leakageUpper: e.leakageUpper, leakFail: e.leakFail }).safeRange;
     if (elo !== lo || ehi !== hi) {
       throw new PackError('range', `${label}: direction '${d.name}' claims the safe range [${lo}, ${hi}] σ, but its audit curves give [${elo}, ${ehi}] σ`);
     }

@@ -9,6 +9,13 @@ import { decodeModel, summarizeModel } from '../core/onnx/inspect.ts';
 import type { RgbaImage } from '../core/image.ts';
 import { createSession, type SessionOptions } from './sessions.ts';
 
+/** An image as floats in [0, 1], RGB interleaved, row-major: the generator's output without 8-bit rounding. */
+export interface FloatRgbImage {
+  width: number;
+  height: number;
+  rgb: Float32Array;
+}
+
 export class ScorerModel {
   #session: ort.InferenceSession | null;
   private constructor(readonly card: ScorerCard, readonly file: string, session: ort.InferenceSession) {
@@ -30,7 +37,7 @@ export class ScorerModel {
     return new ScorerModel(card, file, await createSession(bytes, file, options));
   }
 
-  #tensor(images: RgbaImage[]): ort.Tensor {
+  #tensor(images: (RgbaImage | FloatRgbImage)[]): ort.Tensor {
     const { width: W, height: H, layout, range, mean, std } = this.card.input;
     const n = images.length;
     const data = new Float32Array(n * 3 * H * W);
@@ -47,7 +54,7 @@ export class ScorerModel {
           const fx = sx - x0;
           const fy = sy - y0;
           for (let c = 0; c < 3; c++) {
-            const p = (xx: number, yy: number) => img.data[(yy * img.width + xx) * 4 + c] / 255;
+            const p = 'rgb' in img ? (xx: number, yy: number) => img.rgb[(yy * img.width + xx) * 3 + c] : (xx: number, yy: number) => img.data[(yy * img.width + xx) * 4 + c] / 255;
             let v = (p(x0, y0) * (1 - fx) + p(x1, y0) * fx) * (1 - fy) + (p(x0, y1) * (1 - fx) + p(x1, y1) * fx) * fy;
             v = range[0] + v * (range[1] - range[0]);
             if (mean && std) v = (v - mean[c]) / std[c];
@@ -59,7 +66,7 @@ export class ScorerModel {
     return new ort.Tensor('float32', data, layout === 'NCHW' ? [n, 3, H, W] : [n, H, W, 3]);
   }
 
-  async #run(images: RgbaImage[], outputs: string[]): Promise<Record<string, Float32Array>> {
+  async #run(images: (RgbaImage | FloatRgbImage)[], outputs: string[]): Promise<Record<string, Float32Array>> {
     if (!this.#session) throw new PlumblineError('no-model', `${this.file}: the scorer has been released`);
     let res: ort.InferenceSession.OnnxValueMapType;
     try {
@@ -89,8 +96,11 @@ export class ScorerModel {
     return scores;
   }
 
-  /** Feature vectors [n × F] from the card's features output. */
-  async features(images: RgbaImage[]): Promise<{ data: Float32Array; width: number }> {
+  /**
+   * Feature vectors [n × F] from the card's features output. Path length passes float images
+   * (FloatRgbImage) so no 8-bit rounding enters the small differences it measures.
+   */
+  async features(images: (RgbaImage | FloatRgbImage)[]): Promise<{ data: Float32Array; width: number }> {
     if (!this.card.features) throw new PlumblineError('card-invalid', `${this.file}: the scorer card names no features output`, { file: this.file });
     const data = (await this.#run(images, [this.card.features]))[this.card.features];
     return { data, width: data.length / images.length };

@@ -33,6 +33,13 @@ export const variantDraftSchema = z.object({
 });
 export type VariantDraft = z.infer<typeof variantDraftSchema>;
 
+/**
+ * Random directions per layer rule in the app's null baseline. Smaller than the CLI's 16 so an
+ * interactive audit stays quick; percentiles among 8 are coarse (steps of 12.5%), which is why
+ * the audit screen and the report state the count beside each percentile. Ask for more per audit.
+ */
+export const APP_NULL_DIRECTIONS = 8;
+
 export const editSchema = z.object({ direction: z.string().min(1), strength });
 export type Edit = z.infer<typeof editSchema>;
 
@@ -126,8 +133,12 @@ export const auditWireSchema = z.object({
     reason: z.string(),
     targetEffect: interval,
     dependency: z.record(z.string(), interval),
-    leakage: interval.extend({ strength: z.number(), attribute: z.string() }),
-    pathLength: interval.extend({ distance: z.string() }).passthrough(),
+    leakage: interval.extend({ strength: z.number(), attribute: z.string() }).passthrough(),
+    /** Probes whose own leak reaches leakPass, with the Clopper–Pearson interval of their share. */
+    exceedance: z.object({ threshold: z.number(), probes: z.number(), count: z.number(), share: z.number(), low: z.number(), high: z.number() }).optional(),
+    /** Percentiles among random directions (null baseline); null when none ran. */
+    nullBaseline: z.object({ count: z.number(), targetEffect: z.number(), leakage: z.number(), pathLength: z.number() }).nullable().optional(),
+    pathLength: interval.extend({ distance: z.string(), units: z.string().optional() }).passthrough(),
     safeRange: z.tuple([z.number(), z.number()]),
     breaksAt: z.number().nullable(),
     curves: z.object({ strengths: z.array(z.number()), attributes: z.record(z.string(), z.object({ mean: z.array(z.number()), low: z.array(z.number()), high: z.array(z.number()) })) }),
@@ -207,8 +218,11 @@ export const methods = {
     psi: psi.default(0.7),
     seed: z.number().int().min(0).max(0xffffffff).default(1),
     referenceStrength: z.number().positive().max(10).default(2),
-    leakPass: z.number().positive().max(10).default(0.15),
-    leakFail: z.number().positive().max(10).default(0.35),
+    /** Leak thresholds in σ of the leaked attribute (see VERDICT_RULE in app/protocol/verdict-rule.ts). */
+    leakPass: z.number().positive().max(10).default(0.2),
+    leakFail: z.number().positive().max(10).default(0.5),
+    /** Random directions per layer rule for the null baseline (0 skips it); the report states the count beside every percentile. */
+    nullDirections: z.number().int().min(0).max(256).default(APP_NULL_DIRECTIONS),
     combinations: z.enum(['all', 'none']).default('all'),
   }), z.object({ report: auditWireSchema, thumbnails: z.array(thumbnailSchema), savedAs: z.string().nullable() })),
   'lab.repair': declare('job', z.object({ direction: z.string().min(1), against: z.array(z.string().min(1)).min(1).max(32), hold: z.union([z.literal('others'), z.array(z.string())]).default([]) }),

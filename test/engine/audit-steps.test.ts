@@ -13,7 +13,7 @@ import { Generator } from '../../app/engine/generator.ts';
 import { resolveAttributes } from '../../app/engine/attributes.ts';
 import { planAudit } from '../../app/core/audit/plan.ts';
 import { measureAttributeSpread, sampleProbes } from '../../app/engine/audit/probes.ts';
-import { measureDirection, renderWorstProbes } from '../../app/engine/audit/measure.ts';
+import { measureDirection, measureNullBaseline, renderWorstProbes } from '../../app/engine/audit/measure.ts';
 import { cardGenerator, tempDir } from '../helpers/models.ts';
 
 const PYTHON = '/usr/bin/python3';
@@ -70,4 +70,48 @@ test('sampling, then render and score, each alone, give the closed-form values',
     const img = decode(png);
     assert.deepEqual([img.width, img.height], [16, 16], 'a 16-pixel image is not scaled up');
   }
+});
+
+test('the null baseline gives the closed-form values with one shared unedited render per batch', { skip: hasNumpy ? false : `${PYTHON} with numpy is not available here` }, async () => {
+  // Two random-like directions on the linear generator: at ±2 σ-units Δ/σ_first = ±2·σ_u·u₀/σ_first
+  // and the end-point path length (strength 0) is σ_u²·mean((A u)²), as in the test above.
+  const nulls = [
+    { name: 'null_0', target: null, layers: null, vector: Float32Array.from([0.6, 0.8, 0, 0]), sigma: 1.3 },
+    { name: 'null_1', target: null, layers: null, vector: Float32Array.from([0, 0.6, 0, 0.8]), sigma: 0.7 },
+  ];
+  const plan = planAudit({ probes: 6, attributes: ['first'], strengths: [-2, 0, 2], sigmaSamples: 64, pathLength: { distance: 'l2', epsilon: 0.01, spikeRatio: 5 }, combinations: 'none' }, nulls, gen.layout, ['first'], false);
+  const nullPlan = { ...plan, grid: [-2, 0, 2], pathLengthGrid: [0] };
+  let done = 0;
+  const tick = (label: string) => ({ done: ++done, total: 0, label });
+  const spread = await drain(measureAttributeSpread(gen, plan, resolveAttributes(gen, ['first']), nulls, tick));
+  const probes = await drain(sampleProbes(gen, plan, spread.value.specs, tick));
+  const sigmaFirst = spread.value.sigma[0];
+  const context = { gen, plan: nullPlan, probes: probes.value, specs: spread.value.specs, sigma: spread.value.sigma, ssimModel: null };
+  const synthesize = gen.synthesize.bind(gen);
+  let renders = 0;
+  gen.synthesize = ((...args: Parameters<Generator['synthesize']>) => (renders++, synthesize(...args))) as Generator['synthesize'];
+  let run;
+  try {
+    run = await drain(measureNullBaseline(context, nulls, tick));
+  } finally {
+    gen.synthesize = synthesize;
+  }
+  const batches = Math.ceil(6 / gen.batchSize);
+  // Only edited renders are new: ±reference and one ε step per direction, the unedited one shared.
+  assert.equal(renders, batches * (1 + 3 * nulls.length), 'renders per batch: 1 shared + 3 per random direction');
+  assert.equal(run.steps, batches * nulls.length, 'one progress step per direction and batch');
+  const size = 3 * 16 * 16;
+  nulls.forEach((d, k) => {
+    const m = run.value[k];
+    assert.equal(m.change[1], null, 'nothing to compare at strength 0');
+    for (const [gi, s] of [[0, -2], [2, 2]] as const) for (const v of m.change[gi]![0]) assert.ok(Math.abs(v - (s * d.sigma * d.vector[0]) / sigmaFirst) < 1e-4, `${d.name} Δ/σ at ${s}: ${v}`);
+    let s2 = 0;
+    for (let q = 0; q < size; q++) {
+      let a = 0;
+      for (let r = 0; r < 4; r++) a += d.vector[r] * weights[r * size + q];
+      s2 += a * a;
+    }
+    const analytic = (d.sigma * d.sigma * s2) / size;
+    for (const v of m.pathLength[0]) assert.ok(Math.abs(v - analytic) / analytic < 1e-3, `${d.name} path length ${v} vs ${analytic}`);
+  });
 });

@@ -7,6 +7,7 @@ import { join } from 'node:path';
 import { spawnSync } from 'node:child_process';
 import { Workspace, demoCardPath } from '../../app/engine/workspace.ts';
 import { runAudit, type AuditDirection, type AuditReport } from '../../app/engine/audit/run.ts';
+import { VERDICT_RULE } from '../../app/core/audit/leakage.ts';
 import { fitBoundaries, repairDirection, discoverSefa, groundTruthMetrics } from '../../app/engine/lab.ts';
 import { Generator } from '../../app/engine/generator.ts';
 import { decodeModel, initializerValues } from '../../app/core/onnx/inspect.ts';
@@ -55,7 +56,9 @@ test('the CLI audit on the demo matches the documented truth and writes the JSON
     } else if (t.truth.verdict === 'leaky') {
       assert.equal(d.verdict, 'fail', `${t.name}: ${d.reason}`);
       assert.ok(t.truth.leaksInto.includes(d.leakage.attribute), `${t.name} names ${d.leakage.attribute}; truth ${t.truth.leaksInto}`);
-      assert.match(d.reason, new RegExp(`leaks into ${d.leakage.attribute}: \\d\\.\\d\\d of the target effect at strength [+-]2`));
+      // The leak in σ of the leaked attribute (attribute dependency), against the target's own change.
+      assert.match(d.reason, new RegExp(`leaks into ${d.leakage.attribute}: \\d\\.\\d\\d σ at strength [+-]2 \\(95% CI [^)]*\\) against the target's own \\d\\.\\d\\d σ`));
+      assert.ok(d.leakage.low >= report.settings.leakFail, `${t.name}: confidently past the fail threshold`);
     } else {
       // Breaks past +2.5 σ from the centre and earlier on probes that already glow: the audit
       // must stop its safe range before the documented strength, on the positive side only.
@@ -67,7 +70,15 @@ test('the CLI audit on the demo matches the documented truth and writes the JSON
       assert.match(d.reason, /path length spikes/);
     }
     for (const [, iv] of Object.entries(d.dependency)) assert.ok(iv.low <= iv.value + 1e-9 && iv.value <= iv.high + 1e-9, 'CI brackets the estimate');
+    // Every verdict carries the exceedance with exact bounds and the null-baseline percentiles.
+    assert.match(d.reason, /\d+ of 48 probes leak ≥ 0\.20 σ \(95% CI [\d.]+%–[\d.]+% of probes\)/);
+    assert.ok(d.exceedance.low <= d.exceedance.share && d.exceedance.share <= d.exceedance.high);
+    assert.equal(d.nullBaseline?.count, 16);
+    // Every declared target moves more than all 16 random directions move it (documented truth).
+    if (!d.targetChosen) assert.equal(d.nullBaseline!.targetEffect, 100, `${t.name} target effect percentile`);
   }
+  assert.ok(report.referencePathLength && report.referencePathLength.epsilon === 1e-4 && report.referencePathLength.value > 0, 'published-form PPL reference row');
+  assert.deepEqual(report.verdictRule, VERDICT_RULE);
   assert.ok(report.groundTruth && report.groundTruth.factors.includes('size'), 'MIG/DCI against the declared factors');
   const axis = report.directions.find((x) => x.name === 'axis_07')!;
   assert.equal(axis.targetChosen, true);
@@ -87,7 +98,7 @@ test('the same seed gives the same report; a different seed a different probe se
   assert.notDeepEqual(strip(a).directions[0].leakage, strip(c).directions[0].leakage);
 });
 
-test('linear boundaries recover the ground-truth readout directions within 3°', async () => {
+test('linear boundaries recover the ground-truth readout directions (whitened option within 3°, published plain fit within 12°)', async () => {
   // Ground truth: the demo reads each factor as a linear projection of its W+ row; the
   // projection vectors are the columns of the synthesis initializers M0 (form) and M2 (palette).
   const model = decodeModel(new Uint8Array(readFileSync(join(demoDir, 'sigil-synthesis.onnx'))), 'synthesis');
@@ -97,9 +108,19 @@ test('linear boundaries recover the ground-truth readout directions within 3°',
     const cols = Number(t.dims![1]);
     return Array.from({ length: 32 }, (_, i) => m[i * cols + j]);
   };
-  const found = await fitBoundaries(host.generator!, ['size', 'rotation', 'backdrop']);
+  // The whitened option (Ledoit–Wolf-shrunk covariance) on the demo's mildly anisotropic W.
+  const found = await fitBoundaries(host.generator!, ['size', 'rotation', 'backdrop'], { whiten: true });
   const expected = [column(0, 0), column(0, 2), column(2, 2)];
+  // The published default fits in W's own coordinates: its max-margin normal between the tails
+  // tilts towards W's high-variance axes (measured 4.6°, 1.5°, 11.2° at 4,000 samples; the
+  // anisotropic unit test shows the opposite ranking where W is strongly anisotropic).
+  const plain = await fitBoundaries(host.generator!, ['size', 'rotation', 'backdrop']);
+  plain.forEach((b, i) => {
+    assert.equal(b.source.parameters.coordinates, 'latent');
+    assert.ok(angleDegrees(b.vector, expected[i]) < 12, `plain ${b.target}: ${angleDegrees(b.vector, expected[i]).toFixed(2)}°`);
+  });
   found.forEach((b, i) => {
+    assert.equal(b.source.parameters.coordinates, 'whitened');
     assert.ok(angleDegrees(b.vector, expected[i]) < 3, `${b.target}: ${angleDegrees(b.vector, expected[i]).toFixed(2)}°`);
     assert.ok(b.accuracy > 0.97);
     assert.equal(b.source.method, 'boundary');
@@ -117,7 +138,8 @@ test('repairing outline_bold against backdrop brings its leakage under the thres
   const report = await drain(runAudit(gen, [parent, plain, held], { probes: 32, combinations: 'none' }));
   const [before, p, h] = report.directions;
   assert.equal(before.verdict, 'fail');
-  assert.ok(before.leakage.value > 0.8);
+  // The leak against the target's own change, kept as the ratio readout (the leak itself is now in σ).
+  assert.ok(before.leakage.ratio!.value > 0.8);
   // The published projection removes the backdrop leak but, through correlated boundaries, moves others a little.
   assert.ok(p.dependency.backdrop.value < 0.1 * before.dependency.backdrop.value, 'backdrop leak removed');
   assert.ok(p.leakage.value < report.settings.leakFail, `projection alone: ${p.leakage.value}`);
@@ -140,9 +162,32 @@ test('MIG and DCI against the declared factors rank the clean demo set above the
   const pick = (names: string[]) => directions.filter((d) => names.includes(d.name));
   const clean = await groundTruthMetrics(host.generator!, pick(['crest_size', 'turn', 'hue_shift', 'gem_grow']), 1500);
   const mixed = await groundTruthMetrics(host.generator!, pick(['axis_07', 'outline_bold', 'glow_surge', 'turn']), 1500);
-  for (const m of [clean!, mixed!]) for (const v of [m.mig!, m.dci.disentanglement, m.dci.completeness]) assert.ok(v >= 0 && v <= 1);
-  assert.ok(clean!.mig! > mixed!.mig!, `MIG ${clean!.mig} vs ${mixed!.mig}`);
-  assert.ok(clean!.dci.disentanglement > mixed!.dci.disentanglement);
+  const defined = (v: number | string) => {
+    assert.equal(typeof v, 'number', `four directions and several factors: every score is defined (${v})`);
+    return v as number;
+  };
+  for (const m of [clean!, mixed!]) for (const v of [m.mig, m.dci.disentanglement, m.dci.completeness]) assert.ok(defined(v) >= 0 && defined(v) <= 1);
+  assert.ok(defined(clean!.mig) > defined(mixed!.mig), `MIG ${clean!.mig} vs ${mixed!.mig}`);
+  assert.ok(defined(clean!.dci.disentanglement) > defined(mixed!.dci.disentanglement));
+});
+
+test('MIG and DCI read a per-layer W+ direction in full, not its first row', async () => {
+  // hue_shift acts on W+ row 2 and gem_grow on row 1 through their layer ranges. Written as
+  // per-row vectors (zeros on the other rows, no layer range) they are the same edits, so the
+  // scores must be identical; reading only the first row (all zeros) would lose both.
+  const gen = host.generator!;
+  const size = gen.layout.size;
+  const pick = directions.filter((d) => ['crest_size', 'turn', 'hue_shift', 'gem_grow'].includes(d.name));
+  const perRow = pick.map((d) => {
+    if (!d.layers) return d;
+    const v = new Float32Array(gen.layout.layers * size);
+    for (let l = d.layers[0]; l < d.layers[1]; l++) v.set(d.vector, l * size);
+    return { ...d, vector: v, layers: null };
+  });
+  const a = await groundTruthMetrics(gen, pick, 600);
+  const b = await groundTruthMetrics(gen, perRow, 600);
+  assert.deepEqual(b, a);
+  assert.ok(a!.factors.includes('hue') && a!.factors.includes('gem'), `factors moved by the row-2 and row-1 edits: ${a!.factors}`);
 });
 
 test('path length of a linear generator equals its analytic value', async () => {

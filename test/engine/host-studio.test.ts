@@ -55,7 +55,7 @@ test('an audit runs as a job with progress, answers with the report and binary t
   const list = (await call('directions.list', {})).directions;
   const ids = list.filter((d) => ['outline_bold', 'turn'].includes(d.name)).map((d) => d.id);
   const progress: any[] = [];
-  const r = await call('audit.run', { directions: ids, probes: 8, pinnedSeeds: [], psi: 0.7, seed: 1, referenceStrength: 2, leakPass: 0.15, leakFail: 0.35, combinations: 'all' }, (e) => progress.push(e));
+  const r = await call('audit.run', { directions: ids, probes: 8, pinnedSeeds: [], psi: 0.7, seed: 1, referenceStrength: 2, leakPass: 0.15, leakFail: 0.35, nullDirections: 8, combinations: 'all' }, (e) => progress.push(e));
   assert.ok(progress.length > 0 && progress.every((p) => p.event === 'job.progress'));
   assert.equal(r.cancelled, false);
   if (r.cancelled) return;
@@ -69,7 +69,7 @@ test('an audit runs as a job with progress, answers with the report and binary t
   // Cancel a long audit after its first progress event.
   const id = nextId++;
   let sawProgress = false;
-  host.receive(request(id, 'audit.run', { directions: ids, probes: 400, pinnedSeeds: [], psi: 0.7, seed: 1, referenceStrength: 2, leakPass: 0.15, leakFail: 0.35, combinations: 'none' }), { post: (m: any) => { if (m.type === 'event' && m.data.requestId === id) sawProgress = true; inbox.push(m); } });
+  host.receive(request(id, 'audit.run', { directions: ids, probes: 400, pinnedSeeds: [], psi: 0.7, seed: 1, referenceStrength: 2, leakPass: 0.15, leakFail: 0.35, nullDirections: 8, combinations: 'none' }), { post: (m: any) => { if (m.type === 'event' && m.data.requestId === id) sawProgress = true; inbox.push(m); } });
   while (!sawProgress) await new Promise((res) => setTimeout(res, 10));
   host.receive(request(nextId++, 'job.cancel', { requestId: id }), port);
   for (;;) {

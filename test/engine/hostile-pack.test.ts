@@ -42,7 +42,7 @@ before(async () => {
   await call(host, 'directions.open', { path: join(root, 'resources', 'demo', 'sigil-directions.npy') });
   const opened = await call(host, 'project.open', { path: project, create: true });
   const ids = opened.directions.filter((d: any) => ['crest_size', 'turn'].includes(d.name)).map((d: any) => d.id);
-  await call(host, 'audit.run', { directions: ids, probes: 32, pinnedSeeds: [], psi: 0.7, seed: 1, referenceStrength: 2, leakPass: 0.15, leakFail: 0.35, combinations: 'none' });
+  await call(host, 'audit.run', { directions: ids, probes: 32, pinnedSeeds: [], psi: 0.7, seed: 1, referenceStrength: 2, leakPass: 0.15, leakFail: 0.35, nullDirections: 8, combinations: 'none' });
   for (const d of opened.directions.filter((x: any) => ['crest_size', 'turn'].includes(x.name))) await call(host, 'project.review', { direction: d.id, status: 'approved', reviewer: HOSTILE_REVIEWER, note: HOSTILE_NOTE });
   await host.dispose();
   const pair = generateKeyPairSync('ed25519');

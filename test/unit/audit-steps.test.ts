@@ -1,8 +1,9 @@
 // The audit's pure steps, each on its own: plan, statistics, verdict and report. The statistics
 // of a synthetic direction (known per-probe changes and path lengths) are checked against NumPy
 // and SciPy computing the same published definitions independently (/usr/bin/python3):
-// leakage = max over other attributes of mean|Δ_other|/σ ÷ mean|Δ_target|/σ at ±reference
-// (StyleSpace-style attribute dependency, shared/METHODS.md), the normal-approximation interval
+// leakage = max over other attributes of mean|Δ_other|/σ at ±reference (attribute dependency,
+// Wu et al. 2021; shared/METHODS.md §3.1), its ratio to mean|Δ_target|/σ as a readout, the
+// normal-approximation interval
 // of a mean (mean ± z₀.₉₇₅·s/√n, ddof = 1; common practice), and path length as the mean over
 // probes of the finite-difference distance (METHODS §1.5). PNG thumbnails are checked against the
 // PNG signature (ISO/IEC 15948 §5.2) and decoded with fast-png, an outside library.
@@ -77,8 +78,9 @@ at = lambda s: np.array(ch[g.index(s)])
 lk = {}
 for s in (ref, -ref):
     m = np.abs(at(s)).mean(axis=1)
-    lk[s] = max(m[1:]) / m[0]
+    lk[s] = max(m[1:])
 worse = ref if lk[ref] >= lk[-ref] else -ref
+ratio = lk[worse] / np.abs(at(worse)).mean(axis=1)[0]
 z = norm.ppf(0.975)
 curve = []
 for s in g:
@@ -86,14 +88,15 @@ for s in g:
     x = at(s)[1]
     curve.append([x.mean(), x.mean() - z * x.std(ddof=1) / np.sqrt(len(x)), x.mean() + z * x.std(ddof=1) / np.sqrt(len(x))])
 inner = [i for i, s in enumerate(g) if abs(s) <= ref]
-print(json.dumps({'leakage': lk[worse], 'worse': worse, 'dependency': np.abs(at(worse)).mean(axis=1).tolist(),
+print(json.dumps({'leakage': lk[worse], 'ratio': ratio, 'worse': worse, 'dependency': np.abs(at(worse)).mean(axis=1).tolist(),
   'targetEffect': at(ref)[0].mean(), 'pathLength': pl[inner].mean(axis=0).mean(), 'curveOther': curve,
-  'curveLeak': [None if s == 0 else float(max(np.abs(at(s)).mean(axis=1)[1:]) / np.abs(at(s)).mean(axis=1)[0]) for s in g]}))
+  'curveLeak': [None if s == 0 else float(max(np.abs(at(s)).mean(axis=1)[1:])) for s in g]}))
 `], { input: JSON.stringify({ grid, change: measurements.change.map((r) => r && r.map((c) => Array.from(c))), path: measurements.pathLength.map((c) => Array.from(c)) }), encoding: 'utf8' });
   assert.equal(py.status, 0, py.stderr);
   const ref = JSON.parse(py.stdout);
   const close = (a: number, b: number, what: string, tol = 1e-5) => assert.ok(Math.abs(a - b) <= tol * Math.max(1, Math.abs(b)), `${what}: ${a} vs NumPy ${b}`);
   close(stats.leakage.value, ref.leakage, 'leakage at the worse reference sign');
+  close(stats.leakage.ratio!.value, ref.ratio, 'leakage ratio readout');
   assert.equal(stats.leakage.strength, ref.worse);
   assert.equal(stats.leakage.attribute, 'other');
   ['target', 'other', 'third'].forEach((a, j) => close(stats.dependency[a].value, ref.dependency[j], `dependency ${a}`));
@@ -107,9 +110,9 @@ print(json.dumps({'leakage': lk[worse], 'worse': worse, 'dependency': np.abs(at(
     if (ref.curveLeak[gi] !== null) close(stats.leakageCurve[gi]!, ref.curveLeak[gi], `leakage curve at ${s}`);
   });
   for (const iv of [stats.leakage, stats.targetEffect, stats.pathLength]) assert.ok(iv.low <= iv.value && iv.value <= iv.high, 'the interval brackets its estimate');
-  // Worked from the definitions: leakage stays under 0.15 out to ±2 on both sides; at +3 'other'
-  // leaks 0.9/3 = 0.3 and path length spikes ×10 (> 5 × the calm median 1), so the safe range
-  // stops at +2 while -3 stays clean, and the direction breaks at +3.
+  // Worked from the definitions: the leak (σ) stays under 0.15 out to ±2 on both sides and at
+  // -3 (0.12 ± 0.05); at +3 'other' leaks 0.9 σ and path length spikes ×10 (> 5 × the calm
+  // median 1), so the safe range stops at +2 while -3 stays clean, and the direction breaks at +3.
   assert.deepEqual(stats.safeRange, [-3, 2]);
   assert.equal(stats.breaksAt, 3);
   assert.deepEqual(stats.spikes, [3]);
@@ -127,12 +130,12 @@ test('the verdict says only what the statistics support', () => {
   // Clean at ±2 (the safe range -3…+2 covers ±2, so it is not named) but breaking at +3 ≤ ref + 1:
   // not a pass; the reason names the break and the spike (×10 over the calm median of 1).
   assert.equal(judged.verdict, 'review');
-  assert.match(judged.reason, /^clean within ±2: largest leak 0\.0\d \(other\) of the target effect; breaks from \+3; path length spikes ×(9\.\d|10\.\d) at \+3$/);
+  assert.match(judged.reason, /^largest leak 0\.\d\d σ \(other, 95% CI up to 0\.\d\d\) against the target's [12]\.\d\d σ; 0 of 40 probes leak ≥ 0\.15 σ \(95% CI 0\.0%–8\.8% of probes\); breaks from \+3 \(positive side\): path length spikes ×(9\.\d|10\.\d)$/);
   const leaky = { ...stats, leakage: { ...stats.leakage, value: 0.5, low: 0.4, high: 0.6 } };
   assert.equal(judgeDirection(leaky, { reference: 2, settings: base.settings, fewProbes: false, pathLengthGrid: grid }).verdict, 'fail');
   const still = { ...stats, targetEffect: { value: 0.01, low: -0.02, high: 0.04 } };
   assert.match(judgeDirection(still, { reference: 2, settings: base.settings, fewProbes: false, pathLengthGrid: grid }).reason, /^barely moves its target target \(0\.01 σ at \+2\)/);
-  const clean = { ...stats, breaksAt: null, spikes: [], safeRange: [-3, 3] as [number, number] };
+  const clean = { ...stats, breaksAt: null, breaks: { negative: null, positive: null }, spikes: [], safeRange: [-3, 3] as [number, number] };
   assert.equal(judgeDirection(clean, { reference: 2, settings: base.settings, fewProbes: false, pathLengthGrid: grid }).verdict, 'pass');
   const few = judgeDirection(clean, { reference: 2, settings: base.settings, fewProbes: true, pathLengthGrid: grid });
   assert.equal(few.verdict, 'review');

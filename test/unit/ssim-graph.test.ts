@@ -8,7 +8,8 @@ import { ssimDistanceGraph } from '../../app/core/audit/ssim-graph.ts';
 import { imageDistance } from '../../app/core/audit/path-length.ts';
 import { Random } from '../../app/core/random.ts';
 
-test('ONNX 1 − SSIM matches the JS reference from large to tiny differences', async () => {
+for (const space of ['luma', 'lab'] as const)
+test(`ONNX 1 − SSIM (${space}) matches the JS reference from large to tiny differences`, async () => {
   const H = 128;
   const W = 128;
   const n = 3 * H * W;
@@ -18,13 +19,13 @@ test('ONNX 1 − SSIM matches the JS reference from large to tiny differences', 
     const p = i % (H * W);
     base[i] = Math.max(-1, Math.min(1, 0.6 * Math.sin((p % W) * 0.11 + Math.floor(i / (H * W))) * Math.cos(Math.floor(p / W) * 0.07) + 0.1 * rng.normal()));
   }
-  const session = await ort.InferenceSession.create(ssimDistanceGraph(H, W, [-1, 1]));
+  const session = await ort.InferenceSession.create(ssimDistanceGraph(H, W, [-1, 1], space));
   const geometry = { height: H, width: W, layout: 'NCHW' as const, range: [-1, 1] as [number, number] };
   for (const scale of [0.3, 0.01, 1e-4]) {
     const other = base.map((v, i) => v + scale * Math.sin(i * 0.37));
     const out = (await session.run({ a: new ort.Tensor('float32', base, [4, 3, H, W]), b: new ort.Tensor('float32', other, [4, 3, H, W]) })).distance.data as Float32Array;
     for (let k = 0; k < 4; k++) {
-      const js = imageDistance('ssim', base, k, other, k, geometry);
+      const js = imageDistance(space === 'lab' ? 'ssim-lab' : 'ssim', base, k, other, k, geometry);
       assert.ok(js > 0);
       assert.ok(Math.abs(out[k] - js) <= 1e-4 * js + 1e-9, `scale ${scale}, image ${k}: onnx ${out[k]} vs js ${js}`);
     }

@@ -5,7 +5,9 @@
 import { AUDIT_CAUTION, MIN_USEFUL_PROBES, type AuditSettings } from './settings.ts';
 import type { AuditPlan } from './plan.ts';
 import { significant, type CombinationStatistics, type DirectionStatistics, type Interval } from './statistics.ts';
-import type { CombinationVerdict, DirectionVerdict } from './verdict.ts';
+import type { CombinationVerdict, DirectionVerdict, NullPercentiles } from './verdict.ts';
+import { VERDICT_RULE } from './leakage.ts';
+import { pathLengthUnits } from './path-length.ts';
 
 export type { Interval } from './statistics.ts';
 
@@ -26,16 +28,44 @@ export interface DirectionReport {
   targetChosen: boolean;
   verdict: DirectionVerdict;
   reason: string;
+  /** Which clause of the verdict rule decided (VERDICT_RULE). */
+  decidedBy: string;
   targetEffect: Interval;
   dependency: Record<string, Interval>;
-  leakage: Interval & { strength: number; attribute: string };
-  pathLength: Interval & { distance: string; epsilon: number; exponent: number };
+  leakage: DirectionStatistics['leakage'];
+  exceedance: DirectionStatistics['exceedance'];
+  /** Percentiles among the null (random) directions; null when the audit ran none. */
+  nullBaseline: NullPercentiles | null;
+  pathLength: Interval & { distance: string; epsilon: number; exponent: number; units: string; filtered: number };
   safeRange: [number, number];
   breaksAt: number | null;
+  breaks: DirectionStatistics['breaks'];
   curves: { strengths: number[]; attributes: Record<string, { mean: number[]; low: number[]; high: number[] }> };
   leakageCurve: (number | null)[];
+  leakageLower: (number | null)[];
+  leakageUpper: (number | null)[];
   pathLengthCurve: { strengths: number[]; mean: number[]; low: number[]; high: number[] };
   worstProbes: WorstProbe[];
+}
+
+/** The generator's path length in the published form (Karras et al. 2019), as a reference row. */
+export interface ReferencePathLength extends Interval {
+  form: string;
+  space: 'W';
+  sampling: 'end' | 'full';
+  epsilon: number;
+  distance: string;
+  exponent: number;
+  units: string;
+  samples: number;
+  filtered: number;
+}
+
+/** The null baseline: K random unit directions per layer rule, measured like the real ones. */
+export interface NullBaseline {
+  directions: number;
+  rules: string[];
+  seed: number;
 }
 
 export interface CombinationReport {
@@ -53,8 +83,9 @@ export interface CombinationReport {
 export interface GroundTruthMetrics {
   samples: number;
   factors: string[];
-  mig: number | null;
-  dci: { disentanglement: number; completeness: number; informativeness: number };
+  /** 'undefined' where the definition is (one code for MIG or completeness, one factor for disentanglement). */
+  mig: number | 'undefined';
+  dci: { disentanglement: number | 'undefined'; completeness: number | 'undefined'; informativeness: number | 'undefined' };
   method: string;
 }
 
@@ -73,24 +104,34 @@ export interface AuditReport {
   combinations: CombinationReport[];
   /** MIG and DCI of the audited set against the generator's declared factors, when it declares any. */
   groundTruth: GroundTruthMetrics | null;
+  nullBaseline: NullBaseline | null;
+  referencePathLength: ReferencePathLength | null;
+  /** The pass / review / fail rule the verdicts applied, in words. */
+  verdictRule: string[];
 }
 
 /** One direction's report from its statistics, verdict and rendered worst probes. */
-export function directionReport(name: string, stats: DirectionStatistics, judged: { verdict: DirectionVerdict; reason: string }, plan: Pick<AuditPlan, 'distance' | 'epsilon' | 'exponent'>, worstProbes: WorstProbe[]): DirectionReport {
+export function directionReport(name: string, stats: DirectionStatistics, judged: { verdict: DirectionVerdict; reason: string; decidedBy?: string }, plan: Pick<AuditPlan, 'distance' | 'epsilon' | 'exponent'>, worstProbes: WorstProbe[], nullBaseline: NullPercentiles | null = null): DirectionReport {
   return {
     name,
     target: stats.target,
     targetChosen: stats.targetChosen,
     verdict: judged.verdict,
     reason: judged.reason,
+    decidedBy: judged.decidedBy ?? '',
     targetEffect: stats.targetEffect,
     dependency: stats.dependency,
     leakage: stats.leakage,
-    pathLength: { ...stats.pathLength, distance: plan.distance, epsilon: plan.epsilon, exponent: plan.exponent },
+    exceedance: stats.exceedance,
+    nullBaseline,
+    pathLength: { ...stats.pathLength, distance: plan.distance, epsilon: plan.epsilon, exponent: plan.exponent, units: pathLengthUnits(plan.distance) },
     safeRange: stats.safeRange,
     breaksAt: stats.breaksAt,
+    breaks: stats.breaks,
     curves: stats.curves,
     leakageCurve: stats.leakageCurve,
+    leakageLower: stats.leakageLower,
+    leakageUpper: stats.leakageUpper,
     pathLengthCurve: stats.pathLengthCurve,
     worstProbes,
   };
@@ -110,6 +151,8 @@ export function assembleReport(x: {
   directions: DirectionReport[];
   combinations: CombinationReport[];
   groundTruth: GroundTruthMetrics | null;
+  nullBaseline?: NullBaseline | null;
+  referencePathLength?: ReferencePathLength | null;
   createdAt?: Date;
 }): AuditReport {
   const { plan } = x;
@@ -128,6 +171,9 @@ export function assembleReport(x: {
     directions: x.directions,
     combinations: x.combinations,
     groundTruth: x.groundTruth,
+    nullBaseline: x.nullBaseline ?? null,
+    referencePathLength: x.referencePathLength ?? null,
+    verdictRule: VERDICT_RULE,
   };
 }
 

@@ -1,5 +1,6 @@
 // Audit settings: every number that shapes an audit, with its default and why.
 import { z } from 'zod';
+import { DEFAULT_PATH_DISTANCE } from './path-length.ts';
 
 export const DEFAULT_STRENGTHS = [-3, -2.5, -2, -1.5, -1, -0.5, 0, 0.5, 1, 1.5, 2, 2.5, 3];
 
@@ -20,17 +21,25 @@ export const auditSettingsSchema = z.object({
   attributes: z.union([z.enum(['default', 'card', 'image', 'all']), z.array(z.string()).min(1)]).default('default'),
   /** Random samples (ψ = 1, separate from the probes) for each attribute's σ. */
   sigmaSamples: z.number().int().min(16).max(100_000).default(512),
-  /** Leakage below this passes (StyleSpace-style attribute dependency, relative to the target effect). */
-  leakPass: z.number().positive().default(0.15),
-  /** Leakage at or above this fails. */
-  leakFail: z.number().positive().default(0.35),
+  /**
+   * The leak (largest mean |Δa|/σa over non-target attributes, attribute dependency of Wu et al.
+   * 2021) is in σ of the leaked attribute. Its upper 95% bound under this passes: 0.2 σ is
+   * Cohen's "small" standardised effect (Cohen 1988; common practice).
+   */
+  leakPass: z.number().positive().default(0.2),
+  /** A leak whose lower 95% bound is at or above this fails: 0.5 σ is Cohen's "medium" effect. */
+  leakFail: z.number().positive().default(0.5),
   pathLength: z.object({
-    distance: z.enum(['ssim', 'ciede2000', 'l2', 'features']).default('ssim'),
-    /** Finite-difference step in σ units; 1e-2 keeps 8-bit-free float differences well above rounding (METHODS §1.5). */
+    distance: z.enum(['ssim-lab', 'ssim', 'ciede2000', 'l2', 'features']).default(DEFAULT_PATH_DISTANCE),
+    /** Finite-difference step in σ units, on float images; 1e-2 keeps differences well above float32 rounding (METHODS §1.5). */
     epsilon: z.number().positive().max(1).default(0.01),
     /** A path length this many times the median over |t| ≤ 1 counts as a spike. */
     spikeRatio: z.number().min(1).default(5),
-  }).default({ distance: 'ssim', epsilon: 0.01, spikeRatio: 5 }),
+  }).default({ distance: DEFAULT_PATH_DISTANCE, epsilon: 0.01, spikeRatio: 5 }),
+  /** Random unit directions per layer rule for the null baseline (METHODS §10); 0 skips it. */
+  nullDirections: z.number().int().min(0).max(256).default(16),
+  /** Samples of the published-form PPL reference row (Karras et al. 2019); 0 skips it. */
+  referencePathSamples: z.number().int().min(0).max(100_000).default(128),
   bootstrapResamples: z.number().int().min(200).max(100_000).default(1000),
   /** Pairs of directions to check for additivity: 'all' (up to 12 directions), 'none', or explicit name pairs. */
   combinations: z.union([z.enum(['all', 'none']), z.array(z.tuple([z.string(), z.string()]))]).default('all'),

@@ -4,7 +4,9 @@
 // the safe range, where the direction breaks, response curves and the worst probes. Pure: plain
 // arrays in, plain numbers out; the engine's measure step (app/engine/audit/measure.ts) fills the
 // arrays, and verdict.ts turns these numbers into words.
-import { ProbeBootstrap, RunningMoments } from '../stats.ts';
+import { ProbeBootstrap, RunningMoments, percentileRank } from '../stats.ts';
+import { exceedance, leakAtReference, leakAtStrength, type BreakPoint } from './leakage.ts';
+import { filteredMean, percentileFilterBounds } from './path-length.ts';
 import type { AuditSettings } from './settings.ts';
 import { safeRangeFromCurves } from './safe-range.ts';
 
@@ -50,12 +52,24 @@ export interface WorstProbeChoice {
 export interface DirectionStatistics {
   target: string;
   targetChosen: boolean;
+  /** Mean signed change of the target at +reference, in σ of the target. */
   targetEffect: Interval;
   dependency: Record<string, Interval>;
-  leakage: Interval & { strength: number; attribute: string };
-  pathLength: Interval;
+  /**
+   * The leak: largest mean |Δa|/σa over non-target attributes at ±reference (attribute
+   * dependency, Wu et al. 2021), in σ of that attribute; sign and attribute chosen inside each
+   * resample. `targetChange` is the target's own mean |Δ|/σ at that sign; `ratio` = leak /
+   * target change, a readout the verdict does not use.
+   */
+  leakage: Interval & { strength: number; attribute: string; unit: 'σ'; targetChange: Interval; ratio: Interval | null };
+  /** Probes whose own leak reaches leakPass, with the Clopper–Pearson interval of their share. */
+  exceedance: { threshold: number; probes: number; count: number; share: number; low: number; high: number };
+  /** Mean path length over |s| ≤ reference within the published 1st/99th-percentile filter. */
+  pathLength: Interval & { filtered: number };
   safeRange: [number, number];
+  /** The first positive-side break (kept for readers of version-1 reports), and both sides named. */
   breaksAt: number | null;
+  breaks: { negative: BreakPoint | null; positive: BreakPoint | null };
   /** Strengths whose mean path length spikes above spikeRatio × the calm median. */
   spikes: number[];
   /** Median of the mean path lengths over |s| ≤ 1 (NaN when none was measured). */
@@ -63,123 +77,134 @@ export interface DirectionStatistics {
   /** Mean path length per path-length grid strength (unrounded). */
   pathLengthMeans: number[];
   curves: { strengths: number[]; attributes: Record<string, { mean: number[]; low: number[]; high: number[] }> };
-  /** Leakage at each grid strength (null at 0 and where the target does not move). */
+  /** Leak (σ) at each grid strength with its 95% bounds, as reported (null at 0 or where not finite). */
   leakageCurve: (number | null)[];
+  leakageLower: (number | null)[];
+  leakageUpper: (number | null)[];
   pathLengthCurve: { strengths: number[]; mean: number[]; low: number[]; high: number[] };
   /** The probes that leak most at the worse reference sign, worst first. */
   worstProbes: WorstProbeChoice[];
 }
 
-/** Target effects below this (in σ of the target) count as not moving it. */
-const NO_EFFECT = 1e-9;
+/** What a random direction is compared on: see nullSummary. */
+export interface NullSummary {
+  /** mean |Δ| / σ of every attribute at +reference and at −reference. */
+  plus: number[];
+  minus: number[];
+  /** End-point path length: the filtered mean at strength 0 (each probe itself), as the published 'end' variant. */
+  pathLength: number;
+}
+
+/**
+ * A direction's numbers for the null comparison — a random direction's, or an audited one's read
+ * the same way: mean |Δ|/σ of every attribute at ±reference and the end-point path length.
+ */
+export function nullSummary(m: DirectionMeasurements, plan: Pick<StatisticsGrid, 'grid' | 'pathLengthGrid' | 'reference'>): NullSummary {
+  const at = (s: number) => m.change[plan.grid.indexOf(s)]!.map((c) => c.reduce((a, v) => a + Math.abs(v), 0) / c.length);
+  const zero = plan.pathLengthGrid.indexOf(0);
+  return { plus: at(plan.reference), minus: at(-plan.reference), pathLength: zero >= 0 ? filteredMean(m.pathLength[zero]).mean : NaN };
+}
+
+/**
+ * Percentiles (mid-rank, in %) of a direction's target effect, leak and path length among the
+ * null directions, the direction and every null read the same way (both summarised by
+ * nullSummary) for this direction's target: mean |Δ target| at +reference, the largest mean |Δ|
+ * over the other attributes at ±reference, and the end-point path length (at strength 0).
+ */
+export function nullPercentiles(direction: NullSummary, target: number, nulls: NullSummary[]): { count: number; targetEffect: number; leakage: number; pathLength: number } {
+  const leakOf = (x: NullSummary) => Math.max(0, ...[x.plus, x.minus].flatMap((side) => side.filter((_, j) => j !== target)));
+  return {
+    count: nulls.length,
+    targetEffect: significant(percentileRank(nulls.map((x) => x.plus[target]), direction.plus[target]), 4),
+    leakage: significant(percentileRank(nulls.map(leakOf), leakOf(direction)), 4),
+    pathLength: significant(percentileRank(nulls.map((x) => x.pathLength), direction.pathLength), 4),
+  };
+}
+
+/**
+ * Each probe's path-length samples over |s| ≤ reference, with the published 1st/99th-percentile
+ * filter applied over all samples: per-probe sums and counts of the kept ones (the bootstrap
+ * statistic is Σ sums / Σ counts, the mean of kept samples), and that mean.
+ */
+function pathLengthColumns(m: DirectionMeasurements, plan: Pick<StatisticsGrid, 'pathLengthGrid' | 'reference'>): { sums: Float64Array; counts: Float64Array; mean: number; dropped: number } {
+  const inner = plan.pathLengthGrid.map((s, i) => [s, i] as const).filter(([s]) => Math.abs(s) <= plan.reference).map(([, i]) => i);
+  const n = m.pathLength[0]?.length ?? 0;
+  const all: number[] = [];
+  for (const i of inner) for (let p = 0; p < n; p++) all.push(m.pathLength[i][p]);
+  const [lo, hi] = percentileFilterBounds(all);
+  const sums = new Float64Array(n);
+  const counts = new Float64Array(n);
+  for (const i of inner)
+    for (let p = 0; p < n; p++) {
+      const v = m.pathLength[i][p];
+      if (v >= lo && v <= hi) {
+        sums[p] += v;
+        counts[p]++;
+      }
+    }
+  const total = counts.reduce((a, b) => a + b, 0);
+  return { sums, counts, mean: total ? sums.reduce((a, b) => a + b, 0) / total : NaN, dropped: all.length - total };
+}
 
 export function directionStatistics(m: DirectionMeasurements, plan: StatisticsGrid, attributes: string[], seeds: number[], declaredTarget: string | null, bootstrap: ProbeBootstrap): DirectionStatistics {
   const { grid, pathLengthGrid: pplGrid, reference: ref, settings } = plan;
   const n = seeds.length;
   const K = attributes.length;
-  // Streaming moments per strength and attribute, of the signed and absolute change, in probe order.
   const signed = grid.map(() => attributes.map(() => new RunningMoments()));
-  const absolute = grid.map(() => attributes.map(() => new RunningMoments()));
   grid.forEach((_, gi) => {
     const rows = m.change[gi];
     if (!rows) return;
-    for (let j = 0; j < K; j++)
-      for (let p = 0; p < n; p++) {
-        signed[gi][j].push(rows[j][p]);
-        absolute[gi][j].push(Math.abs(rows[j][p]));
-      }
+    for (let j = 0; j < K; j++) for (let p = 0; p < n; p++) signed[gi][j].push(rows[j][p]);
   });
-  const refRows = m.change[grid.indexOf(ref)]!;
+  const plusRows = m.change[grid.indexOf(ref)]!;
   const minusRows = m.change[grid.indexOf(-ref)]!;
-  // Per-probe |Δ|/σ at ±ref for the bootstrap: [sign][attribute]; signed Δ/σ at +ref.
-  const refAbs = [refRows, minusRows].map((rows) => rows.map((col) => col.map(Math.abs)));
-  const refSigned = refRows;
   const ppl = pplGrid.map((_, pi) => {
     const moments = new RunningMoments();
     for (let p = 0; p < n; p++) moments.push(m.pathLength[pi][p]);
     return moments;
   });
-  // Each probe's mean path length over |s| ≤ ref, summed in grid order.
-  const pplPerProbe = new Float64Array(n);
-  const pplCountPerProbe = new Uint16Array(n);
-  pplGrid.forEach((s, pi) => {
-    if (Math.abs(s) > ref) return;
-    for (let p = 0; p < n; p++) {
-      pplPerProbe[p] += m.pathLength[pi][p];
-      pplCountPerProbe[p]++;
-    }
-  });
-  for (let p = 0; p < n; p++) pplPerProbe[p] /= Math.max(1, pplCountPerProbe[p]);
 
-  // Target: declared, or the attribute this direction moves most at +ref.
-  const refIndex = grid.indexOf(ref);
-  let target = declaredTarget ? attributes.indexOf(declaredTarget) : -1;
-  const targetChosen = target < 0;
-  if (targetChosen) target = absolute[refIndex].reduce((best, mm, j) => (mm.mean > absolute[refIndex][best].mean ? j : best), 0);
-  const others = attributes.map((_, j) => j).filter((j) => j !== target);
+  // The leak at ±reference, with sign, worst attribute and (when none is declared) the target
+  // chosen inside every resample.
+  const declared = declaredTarget ? attributes.indexOf(declaredTarget) : -1;
+  const atRef = leakAtReference(bootstrap, plusRows, minusRows, declared >= 0 ? declared : null, ref);
+  const target = atRef.targetIndex;
+  const targetChosen = declared < 0;
+  const worseSign = atRef.strength > 0 ? 0 : 1;
+  const worseRows = worseSign === 0 ? plusRows : minusRows;
 
-  // Leakage along the grid (point estimates from the streaming means).
-  const leakageCurve = grid.map((s, gi) => {
-    if (s === 0) return null;
-    const t = absolute[gi][target].mean;
-    if (!(t > NO_EFFECT)) return Infinity;
-    return Math.max(0, ...others.map((j) => absolute[gi][j].mean)) / t;
-  });
+  // Leak along the grid, each with its interval; the safe range reads the upper bounds.
+  const curveLeaks = grid.map((s, gi) => (s === 0 ? null : leakAtStrength(bootstrap, m.change[gi]!, target)));
   const pplMeans = ppl.map((mm) => mm.mean);
   const calm = pplGrid.map((t, i) => (Math.abs(t) <= 1 ? pplMeans[i] : NaN)).filter(Number.isFinite);
   const calmMedian = calm.length ? [...calm].sort((a, b) => a - b)[Math.floor(calm.length / 2)] : NaN;
-  const spikeAt = (s: number) => {
-    const i = pplGrid.indexOf(s);
-    return i >= 0 && calmMedian > 0 && pplMeans[i] > settings.pathLength.spikeRatio * calmMedian;
-  };
-  // Safe range: widest interval around 0 where leakage stays under the pass threshold and path
-  // length does not spike — one rule (safe-range.ts), applied to the curves exactly as the report
-  // states them, so anyone holding the report (or a pack's evidence) recomputes the same range.
-  const safeRange = safeRangeFromCurves({
-    strengths: grid,
-    leakageCurve: leakageCurve.map((l) => (l === null ? null : Number.isFinite(l) ? significant(l) : null)),
-    leakPass: settings.leakPass,
-    pathLength: { strengths: pplGrid, mean: pplMeans.map((v) => significant(v)) },
-    spikeRatio: settings.pathLength.spikeRatio,
-  });
-  // Breaking: behaviour that changes along the slider — a path-length spike, or leakage that
-  // starts clean and crosses the fail threshold further out (a direction leaky from the start
-  // is leaky, not broken).
-  const breaksAt = (() => {
-    const positive = grid.filter((x) => x > 0);
-    const cleanStart = leakageCurve[grid.indexOf(positive[0])]! < settings.leakPass;
-    for (const s of positive) if (spikeAt(s) || (cleanStart && !(leakageCurve[grid.indexOf(s)]! < settings.leakFail))) return s;
-    return null;
-  })();
+  const spikeRatio = settings.pathLength.spikeRatio;
+  // Breaks and safe range: one rule (safe-range.ts, both sides), applied to the curves exactly as
+  // the report states them, so anyone holding the report (or a pack's evidence) recomputes them.
+  const reported = (v: number) => (Number.isFinite(v) ? significant(v) : null);
+  const leakageCurve = curveLeaks.map((l) => (l === null ? null : reported(l.value)));
+  const leakageLower = curveLeaks.map((l) => (l === null ? null : reported(l.low)));
+  const leakageUpper = curveLeaks.map((l) => (l === null ? null : reported(l.high)));
+  const pathLengthCurveMean = pplMeans.map((v) => significant(v));
+  const { safeRange: safe, breaks } = safeRangeFromCurves(
+    { strengths: grid, leakageCurve, leakageLower, leakageUpper, leakPass: settings.leakPass, leakFail: settings.leakFail, pathLength: { strengths: pplGrid, mean: pathLengthCurveMean }, spikeRatio },
+    { attributes, leakAttribute: curveLeaks.map((l) => l?.attribute ?? null) },
+  );
 
-  // Intervals (joint bootstrap over probes).
-  const leakStat = (sign: 0 | 1) => {
-    const cols = [refAbs[sign][target], ...others.map((j) => refAbs[sign][j])];
-    return bootstrap.interval(cols, (mns) => {
-      const t = mns[0];
-      let worstDep = 0;
-      for (let k = 1; k < mns.length; k++) worstDep = Math.max(worstDep, mns[k]);
-      return t > 1e-12 ? worstDep / t : Infinity;
-    });
-  };
-  const plus = leakStat(0);
-  const minus = leakStat(1);
-  const worseSign = plus.value >= minus.value ? 0 : 1;
-  const leakInterval = worseSign === 0 ? plus : minus;
-  const sum = (col: Float64Array) => col.reduce((x, y) => x + y, 0);
-  const leakAttr = others.reduce((b, j) => (sum(refAbs[worseSign][j]) > sum(refAbs[worseSign][b]) ? j : b), others[0] ?? target);
   const dependency: Record<string, Interval> = {};
-  for (let j = 0; j < K; j++) dependency[attributes[j]] = roundInterval(bootstrap.interval([refAbs[worseSign][j]], (mns) => mns[0]));
-  const targetEffect = roundInterval(bootstrap.interval([refSigned[target]], (mns) => mns[0]));
-  const pathLength = roundInterval(bootstrap.interval([pplPerProbe], (mns) => mns[0]));
+  for (let j = 0; j < K; j++) dependency[attributes[j]] = roundInterval(bootstrap.interval([worseRows[j].map(Math.abs)], (mns) => mns[0]));
+  const targetEffect = roundInterval(bootstrap.interval([plusRows[target]], (mns) => mns[0]));
+  const paths = pathLengthColumns(m, plan);
+  const pathLength = roundInterval(bootstrap.interval([paths.sums, paths.counts], (mns) => (mns[1] > 0 ? mns[0] / mns[1] : NaN)));
+  const ratioFinite = [atRef.ratio.value, atRef.ratio.low, atRef.ratio.high].every(Number.isFinite);
 
-  // Worst probes at the worse reference sign: largest leak relative to the target change.
+  // Worst probes at the worse reference sign: the largest own leak, in σ of the leaked attribute.
+  const others = attributes.map((_, j) => j).filter((j) => j !== target);
   const worst: WorstProbeChoice[] = [];
   for (let p = 0; p < n; p++) {
-    const t = Math.max(refAbs[worseSign][target][p], 1e-9);
     let bj = others[0] ?? target;
-    for (const j of others) if (refAbs[worseSign][j][p] > refAbs[worseSign][bj][p]) bj = j;
-    worst.push({ seed: seeds[p], strength: worseSign === 0 ? ref : -ref, attribute: attributes[bj], leakage: refAbs[worseSign][bj][p] / t, index: p });
+    for (const j of others) if (Math.abs(worseRows[j][p]) > Math.abs(worseRows[bj][p])) bj = j;
+    worst.push({ seed: seeds[p], strength: atRef.strength, attribute: attributes[bj], leakage: Math.abs(worseRows[bj][p]), index: p });
   }
   worst.sort((a, b) => b.leakage - a.leakage);
 
@@ -203,18 +228,26 @@ export function directionStatistics(m: DirectionMeasurements, plan: StatisticsGr
     targetChosen,
     targetEffect,
     dependency,
-    leakage: { ...roundInterval(leakInterval), strength: worseSign === 0 ? ref : -ref, attribute: attributes[leakAttr] },
-    pathLength,
-    safeRange,
-    breaksAt,
-    spikes: pplGrid.filter((s) => spikeAt(s)),
+    leakage: { ...roundInterval(atRef.leak), strength: atRef.strength, attribute: attributes[atRef.attribute], unit: 'σ', targetChange: roundInterval(atRef.target), ratio: ratioFinite ? roundInterval(atRef.ratio) : null },
+    exceedance: roundExceedance(exceedance(plusRows, minusRows, target, settings.leakPass)),
+    pathLength: { ...pathLength, filtered: paths.dropped },
+    safeRange: safe,
+    breaksAt: breaks.positive?.strength ?? null,
+    breaks,
+    spikes: pplGrid.filter((s, i) => calmMedian > 0 && pplMeans[i] > spikeRatio * calmMedian),
     calmMedian,
     pathLengthMeans: pplMeans,
     curves,
-    leakageCurve: leakageCurve.map((l) => (l === null ? null : Number.isFinite(l) ? significant(l) : null)),
-    pathLengthCurve: { strengths: pplGrid, mean: ppl.map((mm) => significant(mm.mean)), low: ppl.map((mm) => significant(mm.interval()[0])), high: ppl.map((mm) => significant(mm.interval()[1])) },
+    leakageCurve,
+    leakageLower,
+    leakageUpper,
+    pathLengthCurve: { strengths: pplGrid, mean: pathLengthCurveMean, low: ppl.map((mm) => significant(mm.interval()[0])), high: ppl.map((mm) => significant(mm.interval()[1])) },
     worstProbes: worst.slice(0, settings.worstProbes),
   };
+}
+
+function roundExceedance<T extends { share: number; low: number; high: number }>(e: T): T {
+  return { ...e, share: significant(e.share, 4), low: significant(e.low, 4), high: significant(e.high, 4) };
 }
 
 export interface CombinationStatistics {
@@ -225,7 +258,10 @@ export interface CombinationStatistics {
   imageInteraction: Interval;
 }
 
-/** `seed` is the audit seed; pairs resample with seed + 1 so they do not reuse the directions' resamples. */
+/**
+ * `seed` is the audit seed; pairs resample with seed + 1 so they do not reuse the directions'
+ * resamples. The worst attribute is chosen inside each resample (the interval is that of the max).
+ */
 export function combinationStatistics(m: PairMeasurements, attributes: string[], resamples: number, seed: number): CombinationStatistics {
   const probes = m.imageInteraction.length;
   const bootstrap = new ProbeBootstrap(probes, resamples, seed + 1);
@@ -234,7 +270,7 @@ export function combinationStatistics(m: PairMeasurements, attributes: string[],
   means.forEach((v, j) => v > means[worstJ] && (worstJ = j));
   return {
     attribute: attributes[worstJ],
-    attributeInteraction: roundInterval(bootstrap.interval([m.attributeChange[worstJ]], (mns) => mns[0])),
+    attributeInteraction: roundInterval(bootstrap.interval(m.attributeChange, (mns) => Math.max(...mns))),
     imageInteraction: roundInterval(bootstrap.interval([m.imageInteraction], (mns) => mns[0])),
   };
 }

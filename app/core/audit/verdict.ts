@@ -3,52 +3,66 @@
 // additive / interacts. Pure; thresholds come from the audit settings.
 import type { AuditSettings } from './settings.ts';
 import type { CombinationStatistics, DirectionStatistics } from './statistics.ts';
+import { MAX_EXCEEDANCE_SHARE, verdictFor } from './leakage.ts';
 
 export type DirectionVerdict = 'pass' | 'review' | 'fail';
 export type CombinationVerdict = 'additive' | 'interacts';
 
-/** A target effect smaller than this (in σ of the target, at the reference strength) means the direction does not move its target. */
-const MIN_TARGET_EFFECT = 0.05;
-/** Non-additivity below this (in σ of the attribute) counts as additive. */
+/** Non-additivity below this (in σ of the attribute) counts as additive; judged on the upper 95% bound. */
 export const ADDITIVE_LIMIT = 0.15;
 
-export function judgeDirection(stats: DirectionStatistics, x: { reference: number; settings: Pick<AuditSettings, 'leakPass' | 'leakFail'>; fewProbes: boolean; pathLengthGrid: number[] }): { verdict: DirectionVerdict; reason: string } {
-  const { leakage: L } = stats;
-  const { settings: S, reference: ref } = x;
-  const parts: string[] = [];
-  const at = `at strength ${formatStrength(L.strength)}`;
-  const leakText = `leaks into ${L.attribute}: ${L.value.toFixed(2)} of the target effect ${at} (95% CI ${L.low.toFixed(2)}–${L.high.toFixed(2)})`;
-  const covers = stats.safeRange[0] <= -ref && stats.safeRange[1] >= ref;
-  let verdict: DirectionVerdict;
-  if (!(Math.abs(stats.targetEffect.value) > MIN_TARGET_EFFECT)) {
-    verdict = 'fail';
-    parts.push(`barely moves its target ${stats.target} (${stats.targetEffect.value.toFixed(2)} σ at ${formatStrength(ref)})`);
-  } else if (L.value >= S.leakFail) {
-    verdict = 'fail';
-    parts.push(leakText);
-  } else if (L.value < S.leakPass && covers && L.high < S.leakFail) {
-    verdict = 'pass';
-    parts.push(`clean within ±${ref}: largest leak ${L.value.toFixed(2)} (${L.attribute}) of the target effect`);
-  } else {
-    verdict = 'review';
-    parts.push(L.value >= S.leakPass ? leakText : `largest leak ${L.value.toFixed(2)} (${L.attribute}) but the interval reaches ${L.high.toFixed(2)}`);
-  }
-  if (stats.breaksAt !== null && stats.breaksAt <= ref + 1) {
-    const spikeText = stats.spikes.length ? `; path length spikes ×${(stats.pathLengthMeans[x.pathLengthGrid.indexOf(stats.spikes[0])] / stats.calmMedian).toFixed(1)} at ${formatStrength(stats.spikes[0])}` : '';
-    parts.push(`breaks from ${formatStrength(stats.breaksAt)}${spikeText}`);
-    if (verdict === 'pass') verdict = 'review';
-  }
-  if (!covers) parts.push(`safe range ${formatStrength(stats.safeRange[0])} to ${formatStrength(stats.safeRange[1])}`);
-  if (stats.targetChosen) parts.push(`no target was named; took ${stats.target}, the attribute it moves most`);
-  if (x.fewProbes && verdict === 'pass') {
-    verdict = 'review';
-    parts.push('too few probes to pass');
-  }
-  return { verdict, reason: parts.join('; ') };
+/** Null-baseline percentiles shown with a verdict (see statistics.nullPercentiles). */
+export interface NullPercentiles {
+  count: number;
+  targetEffect: number;
+  leakage: number;
+  pathLength: number;
 }
 
+/**
+ * Applies the one rule (VERDICT_RULE in leakage.ts) and says why in words: the leak in σ of the
+ * leaked attribute against the target's own change, the probe-level exceedance with its exact
+ * bounds (what this probe count can and cannot rule out), breaks on either side by name, the
+ * safe range and, when measured, the null-baseline percentiles.
+ */
+export function judgeDirection(stats: DirectionStatistics, x: { reference: number; settings: Pick<AuditSettings, 'leakPass' | 'leakFail'>; fewProbes: boolean; pathLengthGrid: number[]; nulls?: NullPercentiles | null }): { verdict: DirectionVerdict; reason: string; decidedBy: string } {
+  const L = stats.leakage;
+  const { settings: S, reference: ref } = x;
+  const { verdict, decidedBy } = verdictFor({
+    leak: L,
+    target: stats.targetEffect,
+    exceedanceHigh: stats.exceedance.high,
+    safeRange: stats.safeRange,
+    reference: ref,
+    breaks: stats.breaks,
+    leakPass: S.leakPass,
+    leakFail: S.leakFail,
+    enoughProbes: !x.fewProbes,
+  });
+  const parts: string[] = [];
+  const pct = (v: number) => `${(v * 100).toFixed(v < 0.1 ? 1 : 0)}%`;
+  const E = stats.exceedance;
+  const exceedText = `${E.count} of ${E.probes} probes leak ≥ ${fmt2(E.threshold)} σ (95% CI ${pct(E.low)}–${pct(E.high)} of probes)`;
+  const leakText = `leaks into ${L.attribute}: ${fmt2(L.value)} σ at strength ${formatStrength(L.strength)} (95% CI ${fmt2(L.low)}–${fmt2(L.high)}) against the target's own ${fmt2(L.targetChange.value)} σ`;
+  if (decidedBy === 'target barely moves') parts.push(`barely moves its target ${stats.target} (${fmt2(stats.targetEffect.value)} σ at ${formatStrength(ref)})`);
+  else if (verdict === 'pass') parts.push(`clean within ±${ref}: largest leak ${fmt2(L.value)} σ (${L.attribute}, 95% CI up to ${fmt2(L.high)}) against the target's ${fmt2(L.targetChange.value)} σ`);
+  else if (L.high < S.leakPass) parts.push(`largest leak ${fmt2(L.value)} σ (${L.attribute}, 95% CI up to ${fmt2(L.high)}) against the target's ${fmt2(L.targetChange.value)} σ`);
+  else parts.push(leakText);
+  parts.push(exceedText);
+  for (const b of [stats.breaks.negative, stats.breaks.positive]) if (b) parts.push(`breaks from ${formatStrength(b.strength)} (${b.side} side): ${b.cause}`);
+  const covers = stats.safeRange[0] <= -ref && stats.safeRange[1] >= ref;
+  if (!covers) parts.push(`safe range ${formatStrength(stats.safeRange[0])} to ${formatStrength(stats.safeRange[1])}`);
+  if (verdict === 'review' && x.fewProbes && L.high < S.leakPass) parts.push('too few probes to pass');
+  else if (verdict === 'review' && L.high < S.leakPass && E.high > MAX_EXCEEDANCE_SHARE && covers) parts.push(`${E.probes} probes cannot rule out a leaking share above ${pct(MAX_EXCEEDANCE_SHARE)}`);
+  if (x.nulls) parts.push(`against ${x.nulls.count} random directions: target effect at the ${Math.round(x.nulls.targetEffect)}th percentile, leak ${Math.round(x.nulls.leakage)}th, path length ${Math.round(x.nulls.pathLength)}th`);
+  if (stats.targetChosen) parts.push(`no target was named; took ${stats.target}, the attribute it moves most`);
+  return { verdict, reason: parts.join('; '), decidedBy };
+}
+
+const fmt2 = (v: number) => v.toFixed(2);
+
 export function judgeCombination(stats: CombinationStatistics): CombinationVerdict {
-  return stats.attributeInteraction.value < ADDITIVE_LIMIT ? 'additive' : 'interacts';
+  return stats.attributeInteraction.high < ADDITIVE_LIMIT ? 'additive' : 'interacts';
 }
 
 /** A strength as a slider shows it: +2, -1.5, 0. */

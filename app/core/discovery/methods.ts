@@ -4,7 +4,8 @@
 //  - closed-form factorization (Shen & Zhou 2021, "SeFa"): eigenvectors of AᵀA, A the latent's
 //    first affine weights with each output channel's weight vector scaled to unit norm;
 //  - linear attribute boundaries (Shen et al. 2020, "InterFaceGAN"): a linear SVM separating the
-//    top and bottom fraction of samples by an attribute score; the unit normal is the direction;
+//    top and bottom fraction of samples by an attribute score, in the latent's own coordinates;
+//    the unit normal is the direction (whitening with shrinkage is an option);
 //  - difference of means between codes tagged as having and lacking an attribute.
 // Each returns unit vectors plus the numbers a provenance record needs.
 import { Matrix, solve } from 'ml-matrix';
@@ -62,20 +63,70 @@ export interface BoundaryResult {
 }
 
 /**
- * InterFaceGAN-style boundary: keep the top and bottom `fraction` of samples by score, split
- * 70/30 (shuffled with `seed`), fit a linear SVM (C = 1, hinge loss) by dual coordinate descent
- * (Hsieh et al. 2008), report held-out accuracy. The intercept is dropped; the unit normal points
- * towards higher scores.
+ * Ledoit–Wolf shrinkage intensity for the covariance of `codes` (Ledoit & Wolf 2004, "A
+ * well-conditioned estimator for large-dimensional covariance matrices"; the form of
+ * scikit-learn's ledoit_wolf_shrinkage, from memory): with centred X (n × p), S = XᵀX/n,
+ * μ = tr S/p, δ = ‖S − μI‖²_F/p, β = (Σ_i ‖x_i‖⁴/n − ‖S‖²_F)/(n p), shrinkage = min(β, δ)/δ.
+ * The shrunk estimate is (1 − λ)S + λμI.
  */
-export function linearBoundary(codes: Float32Array, d: number, scores: ArrayLike<number>, options: { fraction?: number; seed?: number; C?: number; epochs?: number; whiten?: boolean } = {}): BoundaryResult {
+export function ledoitWolfShrinkage(codes: Float32Array, d: number): number {
+  const n = codes.length / d;
+  const mean = new Float64Array(d);
+  for (let i = 0; i < n; i++) for (let k = 0; k < d; k++) mean[k] += codes[i * d + k] / n;
+  const S = new Float64Array(d * d);
+  let fourth = 0;
+  const x = new Float64Array(d);
+  for (let i = 0; i < n; i++) {
+    let sq = 0;
+    for (let k = 0; k < d; k++) {
+      x[k] = codes[i * d + k] - mean[k];
+      sq += x[k] * x[k];
+    }
+    fourth += sq * sq;
+    for (let a = 0; a < d; a++) for (let b = 0; b < d; b++) S[a * d + b] += (x[a] * x[b]) / n;
+  }
+  let trace = 0;
+  let frob = 0;
+  for (let a = 0; a < d; a++) trace += S[a * d + a];
+  for (let k = 0; k < d * d; k++) frob += S[k] * S[k];
+  const mu = trace / d;
+  const delta = (frob - 2 * mu * trace + d * mu * mu) / d;
+  const beta = Math.min((fourth / n - frob) / (n * d), delta);
+  return delta > 0 ? Math.max(0, beta / delta) : 0;
+}
+
+export interface BoundaryOptions {
+  fraction?: number;
+  seed?: number;
+  C?: number;
+  epochs?: number;
+  /**
+   * Fit in whitened coordinates and map the normal back with Σ^{-1/2} (an option; the published
+   * method fits in the latent's own coordinates). Σ is shrunk towards μI by `shrinkage` (a number
+   * in [0, 1]) or by the Ledoit–Wolf intensity ('ledoit-wolf', the default when whitening).
+   */
+  whiten?: boolean;
+  shrinkage?: number | 'ledoit-wolf';
+}
+
+/**
+ * InterFaceGAN boundary (Shen et al. 2020): keep the top and bottom `fraction` of samples by
+ * score, split 70/30 (shuffled with `seed`), fit a linear SVM (C = 1, hinge loss) by dual
+ * coordinate descent (Hsieh et al. 2008), report held-out accuracy. Fitted in the latent's own
+ * coordinates, as published; the intercept is dropped; the unit normal points towards higher scores.
+ */
+export function linearBoundary(codes: Float32Array, d: number, scores: ArrayLike<number>, options: BoundaryOptions = {}): BoundaryResult & { shrinkage: number | null } {
   const n = scores.length;
   if (codes.length !== n * d) throw new RangeError(`${n} scores for ${codes.length / d} codes`);
-  if (options.whiten ?? true) {
-    // W is anisotropic, and a max-margin plane between the tails of anisotropic data tilts away
-    // from the score's gradient. Fitting in whitened coordinates (zero mean, identity
-    // covariance, like Z where the published method works) and mapping the normal back with
-    // Σ^{-1/2} removes that tilt: a plane n'·x' = c is (Σ^{-1/2} n')·(w − w̄) = c in W.
+  if (options.whiten) {
+    // Whitening maps the normal back with Σ^{-1/2}, which multiplies the estimation noise along
+    // low-variance axes by up to √(condition number); shrinking Σ towards μI bounds that.
+    const lambda = options.shrinkage === undefined || options.shrinkage === 'ledoit-wolf' ? ledoitWolfShrinkage(codes, d) : options.shrinkage;
+    if (!(lambda >= 0 && lambda <= 1)) throw new RangeError(`shrinkage must be in [0, 1]; got ${lambda}`);
     const { mean, cov } = covariance(codes, d);
+    let mu = 0;
+    for (let k = 0; k < d; k++) mu += cov.get(k, k) / d;
+    for (let a = 0; a < d; a++) for (let b = 0; b < d; b++) cov.set(a, b, (1 - lambda) * cov.get(a, b) + (a === b ? lambda * mu : 0));
     const { values, vectors } = symmetricEigen(cov);
     const inv = values.map((v) => 1 / Math.sqrt(Math.max(v, 1e-12 * values[0])));
     const white = new Float32Array(codes.length);
@@ -88,7 +139,7 @@ export function linearBoundary(codes: Float32Array, d: number, scores: ArrayLike
     const r = linearBoundary(white, d, scores, { ...options, whiten: false });
     const back = new Float64Array(d);
     for (let k = 0; k < d; k++) for (let j = 0; j < d; j++) back[j] += vectors[k][j] * inv[k] * r.vector[k];
-    return { ...r, vector: unit(back) };
+    return { ...r, vector: unit(back), shrinkage: lambda };
   }
   const fraction = options.fraction ?? 0.1;
   const perSide = Math.min(Math.floor(n / 2), fraction <= 1 ? Math.max(2, Math.round(n * fraction)) : Math.round(fraction));
@@ -140,7 +191,7 @@ export function linearBoundary(codes: Float32Array, d: number, scores: ArrayLike
     for (let k = 0; k < d; k++) f += w[k] * x(i, k);
     if ((f >= 0 ? 1 : -1) === y) correct++;
   }
-  return { vector: unit(w.subarray(0, d)), accuracy: test.length ? correct / test.length : NaN, trainSize: train.length, testSize: test.length, perSide };
+  return { vector: unit(w.subarray(0, d)), accuracy: test.length ? correct / test.length : NaN, trainSize: train.length, testSize: test.length, perSide, shrinkage: null };
 }
 
 /** Unit difference of the means of codes tagged positive and negative. */

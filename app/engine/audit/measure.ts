@@ -12,7 +12,7 @@ import { formatStrength } from '../../core/audit/verdict.ts';
 import type { WorstProbe } from '../../core/audit/report.ts';
 import { attributeDelta, scoreBatch, type AttributeSpec } from '../attributes.ts';
 import type { Generator } from '../generator.ts';
-import type { ScorerModel } from '../scorer-model.ts';
+import type { FloatRgbImage, ScorerModel } from '../scorer-model.ts';
 import type { SsimDistanceModel } from '../distance-model.ts';
 import type { ProbeSet, Tick } from './probes.ts';
 
@@ -52,9 +52,7 @@ export async function* measureDirection(c: MeasureContext, d: AuditDirection, ti
   const n = probes.seeds.length;
   const K = specs.length;
   const batch = gen.batchSize;
-  const { grid, pathLengthGrid, reference: ref, epsilon: eps, distance, exponent } = plan;
-  const { width, height } = gen.imageSize();
-  const geometry: ImageLayout = { width, height, layout: gen.imageLayout, range: gen.range };
+  const { grid, pathLengthGrid, reference: ref, epsilon: eps, exponent } = plan;
   const change = grid.map((s) => (s === 0 ? null : specs.map(() => new Float64Array(n))));
   const pathLength = pathLengthGrid.map(() => new Float64Array(n));
   const scoresAtReference = new Float64Array(n * K);
@@ -79,18 +77,80 @@ export async function* measureDirection(c: MeasureContext, d: AuditDirection, ti
       if (pi >= 0) {
         // Path length: the same batch one ε further along the direction.
         const next = await gen.synthesize(editedProbes(c, at, m, [{ d, s: s + eps }]), m);
-        const feats = distance === 'features' ? await Promise.all([out, next].map((o) => c.features!.features(Array.from({ length: m }, (_, i) => gen.toRgba(o.images, i))))) : null;
-        // SSIM runs natively in the engine (same definition as the JS reference, checked in tests).
-        const ssimBatch = c.ssimModel && geometry.layout === 'NCHW' ? await c.ssimModel.distances(out.images, next.images, m) : null;
-        for (let i = 0; i < m; i++) {
-          const raw = feats ? featureDistance(feats[0], feats[1], i) : ssimBatch ? ssimBatch[i] : imageDistance(distance as PathDistance, out.images, i, next.images, i, geometry);
-          pathLength[pi][at + i] = raw / eps ** exponent;
-        }
+        const raw = await pairDistances(c, out.images, next.images, m);
+        for (let i = 0; i < m; i++) pathLength[pi][at + i] = raw[i] / eps ** exponent;
         yield tick(`path length of ${d.name} at ${formatStrength(s)}`);
       }
     }
   }
   return { measurements: { change, pathLength }, scoresAtReference };
+}
+
+/**
+ * The null baseline's measurements (METHODS §10) for random directions, on the grid
+ * [−reference, 0, +reference] with the end-point path length at 0: the same numbers
+ * measureDirection gives on that grid, but each probe batch's unedited render is made once and
+ * shared by every random direction (its scores are the probe set's base scores, already
+ * computed), so only edited renders are new: three per direction and batch (±reference and one ε
+ * step) instead of four.
+ */
+export async function* measureNullBaseline(c: MeasureContext, nulls: AuditDirection[], tick: Tick): AsyncGenerator<AuditProgress, DirectionMeasurements[], void> {
+  const { gen, plan, probes, specs, sigma } = c;
+  const n = probes.seeds.length;
+  const K = specs.length;
+  const batch = gen.batchSize;
+  const { reference: ref, epsilon: eps, exponent } = plan;
+  const out: DirectionMeasurements[] = nulls.map(() => ({
+    change: [specs.map(() => new Float64Array(n)), null, specs.map(() => new Float64Array(n))],
+    pathLength: [new Float64Array(n)],
+  }));
+  for (let at = 0; at < n; at += batch) {
+    const m = Math.min(batch, n - at);
+    // Strength 0 is the probe itself: rendered once per batch for all random directions.
+    const base = await gen.synthesize(editedProbes(c, at, m, []), m);
+    for (let k = 0; k < nulls.length; k++) {
+      const d = nulls[k];
+      for (const [row, s] of [[0, -ref], [2, ref]] as const) {
+        const sc = await scoreBatch(gen, await gen.synthesize(editedProbes(c, at, m, [{ d, s }]), m), specs);
+        for (let i = 0; i < m; i++) for (let j = 0; j < K; j++) out[k].change[row]![j][at + i] = attributeDelta(probes.baseScores[(at + i) * K + j], sc[i * K + j], specs[j].period) / sigma[j];
+      }
+      const next = await gen.synthesize(editedProbes(c, at, m, [{ d, s: eps }]), m);
+      const raw = await pairDistances(c, base.images, next.images, m);
+      for (let i = 0; i < m; i++) out[k].pathLength[0][at + i] = raw[i] / eps ** exponent;
+      yield tick(`null baseline: random direction ${k + 1} of ${nulls.length}`);
+    }
+  }
+  return out;
+}
+
+/**
+ * The path-length distance between image i of two float batches, for i < m: on the generator's
+ * float output throughout (never 8-bit), natively for SSIM when the images are NCHW.
+ */
+export async function pairDistances(c: MeasureContext, a: Float32Array, b: Float32Array, m: number): Promise<Float64Array> {
+  const { gen, plan } = c;
+  const { width, height } = gen.imageSize();
+  const geometry: ImageLayout = { width, height, layout: gen.imageLayout, range: gen.range };
+  const out = new Float64Array(m);
+  if (plan.distance === 'features') {
+    const [fa, fb] = await Promise.all([a, b].map((x) => c.features!.features(Array.from({ length: m }, (_, i) => floatRgb(x, i, geometry)))));
+    for (let i = 0; i < m; i++) out[i] = featureDistance(fa, fb, i);
+    return out;
+  }
+  // SSIM runs natively in the engine (same definition as the JS reference, checked in tests).
+  const native = c.ssimModel && geometry.layout === 'NCHW' ? await c.ssimModel.distances(a, b, m) : null;
+  for (let i = 0; i < m; i++) out[i] = native ? native[i] : imageDistance(plan.distance as PathDistance, a, i, b, i, geometry);
+  return out;
+}
+
+/** Image i of a float batch as RGB in [0, 1] (the output range mapped linearly; no rounding, no clamping). */
+function floatRgb(images: Float32Array, i: number, g: ImageLayout): FloatRgbImage {
+  const plane = g.width * g.height;
+  const rgb = new Float32Array(plane * 3);
+  const [lo, hi] = g.range;
+  for (let p = 0; p < plane; p++)
+    for (let ch = 0; ch < 3; ch++) rgb[p * 3 + ch] = ((g.layout === 'NCHW' ? images[i * 3 * plane + ch * plane + p] : images[(i * plane + p) * 3 + ch]) - lo) / (hi - lo);
+  return { width: g.width, height: g.height, rgb };
 }
 
 /** Additivity of a pair: attribute changes at +reference, and the images' mixed difference at ±ε. */

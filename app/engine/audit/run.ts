@@ -4,10 +4,14 @@
 // can serve previews and cancel (cancel = stop pulling; native resources are released either way).
 import { planAudit, auditWorkUnits, type AuditDirection, type AuditProgress } from '../../core/audit/plan.ts';
 import type { AuditSettings } from '../../core/audit/settings.ts';
-import { directionStatistics, combinationStatistics } from '../../core/audit/statistics.ts';
+import { directionStatistics, combinationStatistics, nullPercentiles, nullSummary, significant, type DirectionStatistics, type NullSummary } from '../../core/audit/statistics.ts';
 import { judgeDirection, judgeCombination } from '../../core/audit/verdict.ts';
 import { assembleReport, combinationReport, directionReport, tooFewProbes, type AuditReport, type CombinationReport, type DirectionReport } from '../../core/audit/report.ts';
 import { ProbeBootstrap } from '../../core/stats.ts';
+import { Random } from '../../core/random.ts';
+import { directionSigma } from '../../core/latent.ts';
+import { PUBLISHED_PPL_EPSILON, filteredMean, lerpPair, pathLengthUnits, percentileFilterBounds } from '../../core/audit/path-length.ts';
+import type { ReferencePathLength } from '../../core/audit/report.ts';
 import { TOOL_STAMP } from '../../protocol/version.ts';
 import { resolveAttributes } from '../attributes.ts';
 import type { Generator } from '../generator.ts';
@@ -15,7 +19,9 @@ import type { ScorerModel } from '../scorer-model.ts';
 import { SsimDistanceModel } from '../distance-model.ts';
 import { groundTruthMetrics } from '../lab.ts';
 import { measureAttributeSpread, sampleProbes } from './probes.ts';
-import { measureDirection, measurePair, renderWorstProbes, type DirectionRun, type MeasureContext } from './measure.ts';
+import { measureDirection, measureNullBaseline, measurePair, pairDistances, renderWorstProbes, type DirectionRun, type MeasureContext } from './measure.ts';
+import type { AuditDirection as Direction } from '../../core/audit/plan.ts';
+import type { Tick } from './probes.ts';
 
 export type { AuditDirection, AuditProgress } from '../../core/audit/plan.ts';
 export type { AuditReport } from '../../core/audit/report.ts';
@@ -35,7 +41,8 @@ export async function* runAudit(gen: Generator, directions: AuditDirection[], ra
   const resolved = resolveAttributes(gen, selection, models.scorers ?? []);
   const plan = planAudit(rawSettings, directions, gen.layout, resolved.map((s) => s.name), !!models.features);
   let done = 0;
-  const total = auditWorkUnits(plan, directions.length, gen.batchSize);
+  const probeBatches = Math.ceil(plan.seeds.length / gen.batchSize);
+  const total = auditWorkUnits(plan, directions.length, gen.batchSize) + layerRules(directions).length * plan.settings.nullDirections * probeBatches + Math.ceil(plan.settings.referencePathSamples / gen.batchSize);
   const tick = (label: string): AuditProgress => ({ done: ++done, total, label });
 
   const spread = yield* measureAttributeSpread(gen, plan, resolved, directions, tick);
@@ -43,19 +50,40 @@ export async function* runAudit(gen: Generator, directions: AuditDirection[], ra
   const names = specs.map((s) => s.name);
   const probes = yield* sampleProbes(gen, plan, specs, tick);
   const { width, height } = gen.imageSize();
-  const ssimModel = plan.distance === 'ssim' && Math.min(width, height) >= SSIM_WINDOW ? await SsimDistanceModel.create(height, width, gen.range, 1) : null;
+  const ssimSpace = plan.distance === 'ssim' ? 'luma' : plan.distance === 'ssim-lab' ? 'lab' : null;
+  const ssimModel = ssimSpace && Math.min(width, height) >= SSIM_WINDOW ? await SsimDistanceModel.create(height, width, gen.range, 1, ssimSpace) : null;
   try {
     const context: MeasureContext = { gen, plan, probes, specs, sigma, features: models.features, ssimModel };
     const bootstrap = new ProbeBootstrap(plan.seeds.length, plan.settings.bootstrapResamples, plan.settings.seed);
     const reports: DirectionReport[] = [];
     const runs: DirectionRun[] = [];
+    const measured: { d: AuditDirection; stats: DirectionStatistics; summary: NullSummary }[] = [];
     for (const d of directions) {
       const run = yield* measureDirection(context, d, tick);
       runs.push(run);
-      const stats = directionStatistics(run.measurements, plan, names, plan.seeds, d.target, bootstrap);
-      const judged = judgeDirection(stats, { reference: plan.reference, settings: plan.settings, fewProbes: tooFewProbes(plan.seeds.length), pathLengthGrid: plan.pathLengthGrid });
-      reports.push(directionReport(d.name, stats, judged, plan, await renderWorstProbes(context, d, stats.worstProbes)));
+      measured.push({ d, stats: directionStatistics(run.measurements, plan, names, plan.seeds, d.target, bootstrap), summary: nullSummary(run.measurements, plan) });
     }
+    // Null baseline (METHODS §10): K random unit directions for each layer rule in use, with the
+    // same σ scaling, probes and edit rule, measured at ±reference and, for path length, at the
+    // probes themselves (strength 0: the end-point form), which every audited direction also has.
+    // The unedited renders and scores are shared (measureNullBaseline); K is the caller's
+    // (the CLI's default is 16, the app's APP_NULL_DIRECTIONS) and every report states it.
+    const nulls = new Map<string, NullSummary[]>();
+    const K = plan.settings.nullDirections;
+    if (K > 0) {
+      const nullPlan = { ...plan, grid: [-plan.reference, 0, plan.reference], pathLengthGrid: [0] };
+      const nullContext: MeasureContext = { ...context, plan: nullPlan };
+      for (const layers of layerRules(directions)) {
+        const runs = yield* measureNullBaseline(nullContext, nullDirections(gen, K, layers, plan.settings.seed), tick);
+        nulls.set(layerKey(layers), runs.map((r) => nullSummary(r, nullPlan)));
+      }
+    }
+    for (const { d, stats, summary } of measured) {
+      const nullRow = K > 0 ? nullPercentiles(summary, names.indexOf(stats.target), nulls.get(layerKey(d.layers))!) : null;
+      const judged = judgeDirection(stats, { reference: plan.reference, settings: plan.settings, fewProbes: tooFewProbes(plan.seeds.length), pathLengthGrid: plan.pathLengthGrid, nulls: nullRow });
+      reports.push(directionReport(d.name, stats, judged, plan, await renderWorstProbes(context, d, stats.worstProbes), nullRow));
+    }
+    const referencePathLength = plan.settings.referencePathSamples > 0 ? yield* publishedPathLength(context, plan.settings.referencePathSamples, tick) : null;
     const combinations: CombinationReport[] = [];
     for (const [ia, ib] of plan.pairs) {
       const [a, b] = [ia, ib].map((i) => ({ d: directions[i], scoresAtReference: runs[i].scoresAtReference }));
@@ -73,9 +101,91 @@ export async function* runAudit(gen: Generator, directions: AuditDirection[], ra
       directions: reports,
       combinations,
       groundTruth,
+      nullBaseline: K > 0 ? { directions: K, rules: [...nulls.keys()], seed: plan.settings.seed } : null,
+      referencePathLength,
     });
   } finally {
     // Released however the audit ends: finished, cancelled (return()) or failed.
     await ssimModel?.dispose();
   }
+}
+
+/** Seeds of the published-form PPL pairs start here (apart from probes, σ samples and discovery). */
+const REFERENCE_SEED_BASE = 0x58000000;
+/** The second end of each pair is this many seeds further on. */
+const REFERENCE_PAIR_OFFSET = 50_000_000;
+
+const layerKey = (layers: [number, number] | null) => (layers ? `W+ rows ${layers[0]}–${layers[1] - 1}` : 'all rows');
+
+/** The distinct layer rules of the audited directions, in first-seen order. */
+function layerRules(directions: Direction[]): ([number, number] | null)[] {
+  const seen = new Map<string, [number, number] | null>();
+  for (const d of directions) if (!seen.has(layerKey(d.layers))) seen.set(layerKey(d.layers), d.layers);
+  return [...seen.values()];
+}
+
+/**
+ * K random unit directions drawn isotropically in W (normalised Gaussian vectors; seeded), applied
+ * with `layers` like the audited directions that share that rule, each scaled by its own σ over
+ * random latents (the same directionSigma the audited directions use).
+ */
+function nullDirections(gen: Generator, count: number, layers: [number, number] | null, seed: number): Direction[] {
+  const size = gen.layout.size;
+  const rng = new Random(seed, 0x4e11);
+  return Array.from({ length: count }, (_, k) => {
+    const v = rng.normals(size);
+    const norm = Math.hypot(...v);
+    const vector = v.map((x) => x / norm);
+    const sigma = directionSigma(gen.centredSamples, size, vector, gen.layout.layers, layers);
+    return { name: `null_${k}`, target: null, layers, vector, sigma: sigma > 0 ? sigma : 1 };
+  });
+}
+
+/**
+ * The generator's path length in the published form (Karras et al. 2019, METHODS §1.1–1.2): pairs
+ * of random latents mapped to W, the end-point variant (t = 0) of lerp in W, ε = 1e-4 in units of
+ * W, the 1st/99th-percentile filter, the mean with a bootstrap interval. The distance is the
+ * audit's (the published one is LPIPS, which needs downloaded weights): named in the report.
+ */
+async function* publishedPathLength(c: MeasureContext, samples: number, tick: Tick): AsyncGenerator<AuditProgress, ReferencePathLength, void> {
+  const { gen, plan } = c;
+  const batch = gen.batchSize;
+  const per = gen.layout.layers * gen.layout.size;
+  const values = new Float64Array(samples);
+  const first = REFERENCE_SEED_BASE + plan.settings.seed * 100_003;
+  for (let at = 0; at < samples; at += batch) {
+    const m = Math.min(batch, samples - at);
+    const seeds = Array.from({ length: m }, (_, i) => first + at + i);
+    const w1 = await gen.codesForSeeds(seeds, 1);
+    const w2 = await gen.codesForSeeds(seeds.map((s) => s + REFERENCE_PAIR_OFFSET), 1);
+    const a = new Float32Array(m * per);
+    const b = new Float32Array(m * per);
+    for (let i = 0; i < m; i++) {
+      const [x, y] = lerpPair(w1.subarray(i * per, (i + 1) * per), w2.subarray(i * per, (i + 1) * per), 0);
+      a.set(x, i * per);
+      b.set(y, i * per);
+    }
+    const [ia, ib] = [await gen.synthesize(a, m), await gen.synthesize(b, m)];
+    const d = await pairDistances(c, ia.images, ib.images, m);
+    for (let i = 0; i < m; i++) values[at + i] = d[i] / PUBLISHED_PPL_EPSILON ** plan.exponent;
+    yield tick('published-form path length');
+  }
+  const [lo, hi] = percentileFilterBounds(values);
+  const kept = values.map((v) => (v >= lo && v <= hi ? 1 : 0));
+  const sums = values.map((v, i) => v * kept[i]);
+  const interval = samples >= 2 ? new ProbeBootstrap(samples, plan.settings.bootstrapResamples, plan.settings.seed + 2).interval([sums, kept], (mns) => mns[0] / mns[1]) : { value: filteredMean(values).mean, low: NaN, high: NaN };
+  return {
+    value: significant(interval.value),
+    low: significant(interval.low),
+    high: significant(interval.high),
+    form: `published PPL (Karras et al. 2019): lerp in W, end points (t = 0), ε = ${PUBLISHED_PPL_EPSILON} in W, 1st/99th-percentile filter; distance ${plan.distance} in place of LPIPS, divided by ε^${plan.exponent}`,
+    space: 'W',
+    sampling: 'end',
+    epsilon: PUBLISHED_PPL_EPSILON,
+    distance: plan.distance,
+    exponent: plan.exponent,
+    units: pathLengthUnits(plan.distance, 'W'),
+    samples,
+    filtered: samples - kept.reduce((x, y) => x + y, 0),
+  };
 }

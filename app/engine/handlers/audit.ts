@@ -14,7 +14,7 @@ export const auditHandlers: AreaHandlers<'audit.run'> = {
     const gen = workspace.requireGenerator();
     const directions = p.directions.map((id) => workspace.direction(id));
     const report = await driveSteps(runAudit(gen, directions, {
-      probes: p.probes, pinnedSeeds: p.pinnedSeeds, psi: p.psi, seed: p.seed, referenceStrength: p.referenceStrength, leakPass: p.leakPass, leakFail: p.leakFail, combinations: p.combinations,
+      probes: p.probes, pinnedSeeds: p.pinnedSeeds, psi: p.psi, seed: p.seed, referenceStrength: p.referenceStrength, leakPass: p.leakPass, leakFail: p.leakFail, nullDirections: p.nullDirections, combinations: p.combinations,
     }), ctx, AUDIT_PROGRESS_EVERY);
     // Kept as history with each direction's vector hash, so sign-off can tell which version passed.
     const project = workspace.project && !workspace.project.readOnly ? workspace.project : null;

@@ -1,7 +1,7 @@
 // State and intents of the lab screens: project, discovery, audit, repair and sign-off. Works
 // through the same engine client as the workbench (Studio) and keeps Studio's direction list
 // in step with the engine's.
-import { PROBE_LIMITS, type AuditWire, type DirectionInfo, type LockHolder, type Params, type Result, type VariantDraft, type WireImage } from '../../../app/protocol/messages.ts';
+import { APP_NULL_DIRECTIONS, PROBE_LIMITS, type AuditWire, type DirectionInfo, type LockHolder, type Params, type Result, type VariantDraft, type WireImage } from '../../../app/protocol/messages.ts';
 import { EngineRequestError } from './engine.ts';
 import { desktop } from './bridge.ts';
 import { reportHtml } from './report.ts';
@@ -310,7 +310,7 @@ export class Lab {
     await this.#guard('Auditing', async () => {
       const pending = this.engine.request(
         'audit.run',
-        { directions: ids, probes: this.probes, pinnedSeeds: this.studio.pinned, psi: this.studio.psi, seed: 1, referenceStrength: 2, leakPass: 0.15, leakFail: 0.35, combinations: 'all' },
+        { directions: ids, probes: this.probes, pinnedSeeds: this.studio.pinned, psi: this.studio.psi, seed: 1, referenceStrength: 2, leakPass: 0.2, leakFail: 0.5, nullDirections: APP_NULL_DIRECTIONS, combinations: 'all' },
         (done, total, label) => (this.auditProgress = { done, total, label }),
       );
       this.#auditRequest = this.engine.lastRequestId;
