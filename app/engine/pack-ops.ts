@@ -117,8 +117,13 @@ export async function buildPack(gen: Generator, projectDir: string, options: { s
       skipped.push(`${d.name} (its latest audit ${evidence ? 'was made on another generator' : 'lacks the curves its safe range comes from'}; audit it again)`);
       continue;
     }
-    const sigma = gen.sigmaOf(d.vector, d.layers);
     const [lo, hi] = audit.entry.safeRange;
+    // verify refuses an empty range (no strength is safe), so a pack must never carry one.
+    if (!(hi - lo > 0)) {
+      skipped.push(`${d.name} (its latest audit leaves no safe range: no strength of it is safe to ship)`);
+      continue;
+    }
+    const sigma = gen.sigmaOf(d.vector, d.layers);
     const spec: PreviewSpec = { seeds: PREVIEW_SEEDS, strengths: [lo, lo / 2, 0, hi / 2, hi].map((v) => Math.round(v * 1000) / 1000), psi: gen.info.defaultPsi };
     const npy = `directions/${d.name}.npy`;
     const meta = `directions/${d.name}.json`;

@@ -62,6 +62,29 @@ test('pack holds only approved, audited directions, with hashes, previews and a 
   assert.equal(crest.signOff.reviewer, 'Ines');
 });
 
+test('a failed direction approved by override never yields a pack that its own verify refuses', async () => {
+  // Found by a new-user tryout: pack signed and shipped a direction whose audit left the safe
+  // range empty, and verify then refused the whole pack. Now pack leaves such a direction out and
+  // says why; a non-empty range is shipped with the override on record.
+  const host = new EngineHost({ threads: 1 });
+  await call(host, 'model.openDemo', {});
+  const opened = await call(host, 'project.open', { path: project, create: false });
+  const outline = opened.directions.find((x: any) => x.name === 'outline_bold');
+  await call(host, 'project.review', { direction: outline.id, status: 'approved', reviewer: 'Ines', note: '', override: 'testing what a pack does with it' });
+  await host.dispose();
+  const file = join(tempDir(), 'override.plpack');
+  const r = cli('pack', '--project', project, '--out', file);
+  assert.equal(r.status, 0, r.stderr);
+  const p = await readPack(new Uint8Array(readFileSync(file)), 'override.plpack');
+  const shipped = p.manifest.directions.find((d) => d.name === 'outline_bold');
+  if (shipped) {
+    assert.ok(shipped.safeRange[1] - shipped.safeRange[0] > 0);
+    assert.equal(shipped.signOff.override, 'testing what a pack does with it');
+  } else assert.match(r.stdout, /skipped outline_bold \(its latest audit leaves no safe range/);
+  const v = cli('verify', '--pack', file);
+  assert.equal(v.status, 0, v.stderr);
+});
+
 test('verify passes on the demo; another generator fails with its own exit code and message', () => {
   const ok = cli('verify', '--pack', packFile);
   assert.equal(ok.status, 0, ok.stderr);
