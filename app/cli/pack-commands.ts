@@ -72,8 +72,7 @@ async function withPackErrors(run: () => Promise<void>): Promise<void> {
 
 /** Latent codes from a .npy for `apply --latents`: [N, size] (W, repeated on every row) or [N, layers, size]. */
 function readLatents(file: string, gen: Generator): { n: number; codes: Float32Array; sha256: string } {
-  if (!existsSync(file)) throw new PlumblineError('file-missing', `${file}: latents not found`, { file });
-  const bytes = new Uint8Array(readFileSync(file));
+  const bytes = readRegularFile(file, 'latents', READ_LIMITS.npyBytes);
   const a = decodeNpy(bytes, file);
   const { layers, size } = gen.layout;
   const s = a.shape;
