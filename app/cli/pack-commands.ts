@@ -1,6 +1,5 @@
 // `plumbline pack`, `verify`, `apply` and `import`.
 import type { Command } from 'commander';
-import { existsSync, readFileSync } from 'node:fs';
 import { join, resolve } from 'node:path';
 import { createHash, createPrivateKey, createPublicKey, type KeyObject } from 'node:crypto';
 import { READ_LIMITS, chosenOutputFile, readRegularFile, readTextFile } from '../core/path-policy.ts';
