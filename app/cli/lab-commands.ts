@@ -10,6 +10,8 @@ import { discoverByTags, discoverPca, discoverSefa, fitBoundary, repairDirection
 import { parseSeeds } from './seeds.ts';
 import { driveJob } from './jobs.ts';
 import { ScorerModel } from '../engine/scorer-model.ts';
+import { DefinedAttribute, loadProjectAttributes } from '../engine/defined-attributes.ts';
+import { defineFromTagsFile } from './define-commands.ts';
 
 export interface CliContext {
   progressBar(total: number, label: string): { update(n: number, label?: string): void; stop(): void };
@@ -89,6 +91,7 @@ export function auditTable(report: AuditReport): string {
     const g = report.groundTruth;
     out.push('', `ground truth (${g.factors.length} declared factors, ${g.samples} samples): MIG ${g.mig ?? '—'}, DCI disentanglement ${g.dci.disentanglement}, completeness ${g.dci.completeness}, informativeness ${g.dci.informativeness}`);
   }
+  for (const a of report.attributes.filter((x) => x.accuracy)) out.push('', `defined attribute ${a.name}: ${a.accuracy}`);
   for (const w of report.warnings) out.push('', `warning: ${w}`);
   out.push('', `probes: ${report.probes.count} at ψ ${report.probes.psi}; generator ${report.generator.name} (${report.generator.fingerprint.slice(0, 12)}…)`);
   out.push(`note: ${report.caution}`);
@@ -155,6 +158,8 @@ export function addLabCommands(program: Command, ctx: CliContext, number: (n: st
     .option('--distance <name>', 'path-length distance: ssim | ciede2000 | l2 | features', 'ssim')
     .option('--scorer <card>', 'a scorer card (.json) for a user ONNX attribute model; repeatable', (v: string, prev: string[]) => [...prev, v], [] as string[])
     .option('--feature-scorer <card>', "scorer card whose features output serves the 'features' distance")
+    .option('--define <tags.json>', 'define attributes from a tags file first and audit with them (refused below the accuracy floor)')
+    .option('--defined <file|project>', 'a defined-attribute file, or a project folder with attributes/; repeatable', (v: string, prev: string[]) => [...prev, v], [] as string[])
     .option('--combinations <which>', 'all | none', 'all')
     .option('--resamples <n>', 'bootstrap resamples', integer('--resamples', 200, 100_000), 1000)
     .option('--json <file>', 'write the full report as JSON')
@@ -171,6 +176,16 @@ export function addLabCommands(program: Command, ctx: CliContext, number: (n: st
         const features = o.featureScorer ? await ScorerModel.open(o.featureScorer, { threads: o.threads }) : undefined;
         if (features) scorers.push(features);
         const dirs = loadDirections(host, o.directions, o.only ? String(o.only).split(',') : undefined);
+        const defined: DefinedAttribute[] = (o.defined as string[]).flatMap((p) => (p.endsWith('.json') ? [DefinedAttribute.load(p)] : loadProjectAttributes(p)));
+        if (o.define) {
+          const r = await defineFromTagsFile(host.generator!, o.define, { psi: o.psi, seed: o.seed });
+          if (r.refused.length) {
+            process.stderr.write(`plumbline: not auditing: ${r.refused.map((x) => x.name).join(', ')} refused below the accuracy floor (see above)\n`);
+            process.exitCode = 1;
+            return;
+          }
+          defined.push(...r.accepted);
+        }
         const attributes = ['default', 'card', 'image', 'all'].includes(o.attributes) ? o.attributes : String(o.attributes).split(',');
         const job = runAudit(host.generator!, dirs.map((d) => ({ name: d.name, target: d.target, layers: d.layers, vector: d.vector, sigma: d.sigma })), {
           probes: o.probes,
@@ -187,7 +202,7 @@ export function addLabCommands(program: Command, ctx: CliContext, number: (n: st
           bootstrapResamples: o.resamples,
           scorerCards: (o.scorer as string[]).map((c) => resolve(c)),
           featureScorer: o.featureScorer ? resolve(o.featureScorer) : null,
-        }, { scorers: scorers.filter((x) => x !== features), features });
+        }, { scorers: scorers.filter((x) => x !== features), features, defined });
         const report = await driveJob(job, ctx, 'auditing', 'audit cancelled; nothing was written');
         if (!report) return;
         process.stdout.write(auditTable(report));

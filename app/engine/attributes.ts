@@ -1,28 +1,40 @@
 // Attribute sources for audits and boundaries: the generator's own named attribute outputs
-// (declared by its model card) and the built-in image measures. Scores come back as one row of
-// K values per image.
+// (declared by its model card), the built-in image measures, user ONNX scorer cards and attributes
+// the lead defined from tagged seeds. Scores come back as one row of K values per image.
 import { PlumblineError } from '../core/errors.ts';
 import { IMAGE_MEASURES, measureImage } from '../core/scorers/measures.ts';
 import type { Generator, RenderOutput } from './generator.ts';
 import type { ScorerModel } from './scorer-model.ts';
+import { builtInMeasureSource, type DefinedAttribute } from './defined-attributes.ts';
+import type { RgbaImage } from '../core/image.ts';
 
 export interface AttributeSpec {
   name: string;
   unit: string;
-  source: 'card' | 'image' | 'scorer';
+  source: 'card' | 'image' | 'scorer' | 'defined';
   /** Column in the card's attribute output, index in IMAGE_MEASURES, or attribute of the scorer card. */
   index: number;
   scorer?: ScorerModel;
+  /** A defined attribute; its cross-validated accuracy goes wherever it is used. */
+  defined?: DefinedAttribute;
   period?: number;
 }
 
 export type AttributeSelection = 'default' | 'card' | 'image' | 'all' | string[];
 
-/** default: the card's attributes when it declares some, else the image measures; plus any user scorers. */
-export function resolveAttributes(gen: Generator, selection: AttributeSelection = 'default', scorers: ScorerModel[] = []): AttributeSpec[] {
+/** default: the card's attributes when it declares some, else the image measures; plus any user scorers and defined attributes. */
+export function resolveAttributes(gen: Generator, selection: AttributeSelection = 'default', scorers: ScorerModel[] = [], defined: DefinedAttribute[] = []): AttributeSpec[] {
   const card: AttributeSpec[] = (gen.card?.attributes ?? []).map((a, index) => ({ name: a.name, unit: a.unit ?? '', source: 'card', index }));
   const image: AttributeSpec[] = IMAGE_MEASURES.map((m, index) => ({ name: m.name, unit: m.unit, source: 'image', index, period: m.period }));
-  const user: AttributeSpec[] = scorers.flatMap((sc) => sc.card.attributes.map((a, index) => ({ name: a.name, unit: a.unit, source: 'scorer' as const, index, scorer: sc })));
+  const user: AttributeSpec[] = [
+    ...scorers.flatMap((sc) => sc.card.attributes.map((a, index) => ({ name: a.name, unit: a.unit, source: 'scorer' as const, index, scorer: sc }))),
+    ...defined.map((d, index) => ({ name: d.name, unit: d.doc.unit, source: 'defined' as const, index, defined: d })),
+  ];
+  const taken = new Set<string>();
+  for (const a of [...card, ...image, ...user]) {
+    if (taken.has(a.name) && a.source === 'defined') throw new PlumblineError('bad-request', `defined attribute '${a.name}' has the name of another attribute source; rename it`);
+    taken.add(a.name);
+  }
   if (selection === 'default') return [...(card.length ? card : image), ...user];
   if (selection === 'card') {
     if (!card.length) throw new PlumblineError('bad-request', `${gen.info.name} declares no attribute outputs in its model card; use the image measures (${image.map((m) => m.name).join(', ')})`);
@@ -44,9 +56,13 @@ export async function scoreBatch(gen: Generator, out: RenderOutput, specs: Attri
   const scores = new Float64Array(out.n * k);
   const needImages = specs.some((s) => s.source !== 'card');
   const rgba = needImages ? Array.from({ length: out.n }, (_, i) => gen.toRgba(out.images, i)) : [];
-  const measures = specs.some((s) => s.source === 'image') ? rgba.map((img) => measureImage(img)) : [];
+  const measures = specs.some((s) => s.source === 'image' || s.source === 'defined') ? rgba.map((img) => measureImage(img)) : [];
   const byScorer = new Map<ScorerModel, Float64Array>();
   for (const s of specs) if (s.scorer && !byScorer.has(s.scorer)) byScorer.set(s.scorer, await s.scorer.score(rgba));
+  // Defined attributes reuse the measures just taken (the descriptor includes them).
+  const known = new WeakMap<RgbaImage, ArrayLike<number>>(rgba.map((img, i) => [img, measures[i]]));
+  const byDefined = new Map<DefinedAttribute, Float64Array>();
+  for (const s of specs) if (s.defined && !byDefined.has(s.defined)) byDefined.set(s.defined, s.defined.score(rgba, builtInMeasureSource(known)));
   const cardWidth = out.attributes ? out.attributes.length / out.n : 0;
   for (let i = 0; i < out.n; i++) {
     for (let j = 0; j < k; j++) {
@@ -56,6 +72,7 @@ export async function scoreBatch(gen: Generator, out: RenderOutput, specs: Attri
         if (!out.attributes) throw new PlumblineError('bad-request', `${gen.info.name} produced no attribute output`);
         v = out.attributes[i * cardWidth + s.index];
       } else if (s.source === 'image') v = measures[i][s.index];
+      else if (s.defined) v = byDefined.get(s.defined)![i];
       else {
         const all = byScorer.get(s.scorer!)!;
         v = all[i * s.scorer!.card.attributes.length + s.index];

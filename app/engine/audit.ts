@@ -12,6 +12,7 @@ import { DISTANCE_EXPONENT, imageDistance, type ImageLayout, type PathDistance }
 import { attributeDelta, resolveAttributes, scoreBatch } from './attributes.ts';
 import type { Generator } from './generator.ts';
 import type { ScorerModel } from './scorer-model.ts';
+import type { DefinedAttribute } from './defined-attributes.ts';
 import { SsimDistanceModel } from './distance-model.ts';
 import { groundTruthMetrics } from './lab.ts';
 
@@ -66,7 +67,8 @@ export interface AuditReport {
   generator: { name: string; fingerprint: string };
   settings: AuditSettings;
   probes: { count: number; pinned: number[]; firstSeed: number; psi: number };
-  attributes: { name: string; unit: string; source: string; sigma: number }[];
+  /** `accuracy`: a defined attribute's cross-validated accuracy, in words (it goes wherever the attribute is used). */
+  attributes: { name: string; unit: string; source: string; sigma: number; accuracy?: string }[];
   warnings: string[];
   caution: string;
   directions: DirectionReport[];
@@ -95,6 +97,8 @@ export interface AuditModels {
   scorers?: ScorerModel[];
   /** Feature model for the 'features' path-length distance. */
   features?: ScorerModel;
+  /** Attributes the lead defined from tagged seeds. */
+  defined?: DefinedAttribute[];
 }
 
 export async function* runAudit(gen: Generator, directions: AuditDirection[], rawSettings: Partial<AuditSettings> = {}, models: AuditModels = {}): AsyncGenerator<AuditProgress, AuditReport, void> {
@@ -107,7 +111,7 @@ export async function* runAudit(gen: Generator, directions: AuditDirection[], ra
       throw new PlumblineError('latent-size-mismatch', `direction '${d.name}' has ${d.vector.length} values; this generator's latent size is ${gen.layout.size}`);
     }
   }
-  const specs = resolveAttributes(gen, settings.attributes, models.scorers ?? []);
+  const specs = resolveAttributes(gen, settings.attributes, models.scorers ?? [], models.defined ?? []);
   const names = specs.map((s) => s.name);
   for (const d of directions) {
     if (d.target && !names.includes(d.target)) throw new PlumblineError('bad-request', `direction '${d.name}' targets unknown attribute '${d.target}'; audited attributes: ${names.join(', ')}`);
@@ -436,7 +440,7 @@ export async function* runAudit(gen: Generator, directions: AuditDirection[], ra
     generator: { name: gen.info.name, fingerprint: gen.info.fingerprint },
     settings,
     probes: { count: n, pinned: settings.pinnedSeeds, firstSeed: seeds[settings.pinnedSeeds.length] ?? seeds[0], psi: settings.psi },
-    attributes: specs.map((s, j) => ({ name: s.name, unit: s.unit, source: s.source, sigma: r4(sigma[j], 6) })),
+    attributes: specs.map((s, j) => ({ name: s.name, unit: s.unit, source: s.source, sigma: r4(sigma[j], 6), ...(s.defined ? { accuracy: s.defined.accuracy } : {}) })),
     warnings,
     caution: AUDIT_CAUTION,
     directions: reports,

@@ -264,7 +264,7 @@ function regionsBySize(mask: Uint8Array, width: number, limit: number): Uint8Arr
  * Marginal L*, a*, b* histograms of the pixels where mask === want, each normalised to sum 1
  * (an empty region gives zeros), so they do not depend on image size or region area.
  */
-export function colourHistograms(lab: { L: Float64Array; a: Float64Array; b: Float64Array }, mask: Uint8Array, want: 0 | 1, bins = COLOUR_HISTOGRAM.bins): Float64Array {
+export function colourHistograms(lab: { L: Float64Array; a: Float64Array; b: Float64Array }, mask: Uint8Array, want: 0 | 1, bins: number = COLOUR_HISTOGRAM.bins): Float64Array {
   const out = new Float64Array(3 * bins);
   const ranges = [COLOUR_HISTOGRAM.L, COLOUR_HISTOGRAM.a, COLOUR_HISTOGRAM.b];
   const planes = [lab.L, lab.a, lab.b];
@@ -289,7 +289,7 @@ export function colourHistograms(lab: { L: Float64Array; a: Float64Array; b: Flo
  * turns, so an inset of another colour (a gem, an outline) shows as the share of pixels far from
  * the dominant colour whatever the hue.
  */
-export function contrastHistogram(lab: { L: Float64Array; a: Float64Array; b: Float64Array }, mask: Uint8Array, bins = COLOUR_HISTOGRAM.bins, range = COLOUR_HISTOGRAM.contrast): Float64Array {
+export function contrastHistogram(lab: { L: Float64Array; a: Float64Array; b: Float64Array }, mask: Uint8Array, bins: number = COLOUR_HISTOGRAM.bins, range: [number, number] = COLOUR_HISTOGRAM.contrast): Float64Array {
   const out = new Float64Array(2 * bins);
   const inside: number[] = [];
   for (let p = 0; p < mask.length; p++) if (mask[p]) inside.push(p);
@@ -316,7 +316,7 @@ export const RADIAL_PROFILE = { bins: 6, reach: 1.5 } as const;
  * centring on the centroid makes it blind to the subject's size and position, so a centred inset
  * (its relative radius) shows whatever the subject's scale.
  */
-export function radialProfile(lab: { L: Float64Array; a: Float64Array; b: Float64Array }, mask: Uint8Array, width: number, bins = RADIAL_PROFILE.bins, reach = RADIAL_PROFILE.reach): Float64Array {
+export function radialProfile(lab: { L: Float64Array; a: Float64Array; b: Float64Array }, mask: Uint8Array, width: number, bins: number = RADIAL_PROFILE.bins, reach: number = RADIAL_PROFILE.reach): Float64Array {
   const out = new Float64Array(2 * bins);
   const inside: number[] = [];
   for (let p = 0; p < mask.length; p++) if (mask[p]) inside.push(p);

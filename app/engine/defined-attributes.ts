@@ -1,0 +1,114 @@
+// Attributes the lead defines from tagged or rated seeds: render the seeds, describe each image
+// with the fixed descriptor, fit and cross-validate (app/core/attributes/fit.ts), and save the
+// scorer in the project as attributes/<name>.json. A saved scorer is an attribute source for
+// audits and boundaries beside the card's attributes, the image measures and ONNX scorer cards.
+import { existsSync, readFileSync, readdirSync } from 'node:fs';
+import { join, resolve } from 'node:path';
+import { writeFileAtomic } from '../core/atomic-write.ts';
+import { PlumblineError } from '../core/errors.ts';
+import type { RgbaImage } from '../core/image.ts';
+import { IMAGE_MEASURES, measureImage } from '../core/scorers/measures.ts';
+import { describeImage, descriptorFamilies, descriptorSpec, type MeasureSource } from '../core/attributes/descriptor.ts';
+import { fitDefinedAttribute } from '../core/attributes/fit.ts';
+import { accuracyText, definedAttributeDoc, parseDefinedAttribute, sameDescriptor, scoreDescriptor, type DefinedAttributeDoc, type TagSet } from '../core/attributes/scorer-file.ts';
+import type { Generator } from './generator.ts';
+
+/**
+ * Today's built-in measures as a descriptor source. `known` lets a caller hand in measures it has
+ * already computed for an image (the audit measures every image once), keyed by the image object.
+ */
+export function builtInMeasureSource(known?: WeakMap<RgbaImage, ArrayLike<number>>): MeasureSource {
+  return {
+    names: IMAGE_MEASURES.map((m) => m.name),
+    periods: IMAGE_MEASURES.map((m) => m.period),
+    measure: (img) => known?.get(img) ?? measureImage(img),
+  };
+}
+
+/** A defined attribute ready to score images. */
+export class DefinedAttribute {
+  constructor(readonly doc: DefinedAttributeDoc, readonly file: string | null) {}
+
+  get name(): string {
+    return this.doc.name;
+  }
+
+  get accuracy(): string {
+    return accuracyText(this.doc.accuracy);
+  }
+
+  /** Loads a scorer file and checks it was fitted on the descriptor this build computes. */
+  static load(path: string): DefinedAttribute {
+    const file = resolve(path);
+    if (!existsSync(file)) throw new PlumblineError('file-missing', `${file}: defined-attribute file not found`, { file });
+    const doc = parseDefinedAttribute(readFileSync(file, 'utf8'), file);
+    const now = descriptorSpec(builtInMeasureSource());
+    if (!sameDescriptor(doc.descriptor, now)) {
+      const was = doc.descriptor.measures?.map((m) => m.name).join(', ');
+      throw new PlumblineError('card-invalid', `${file}: '${doc.name}' was fitted on another image descriptor (measures then: ${was}; now: ${now.measures.map((m) => m.name).join(', ')}); define it again from its seeds (they are in the file)`, { file });
+    }
+    return new DefinedAttribute(doc, file);
+  }
+
+  /** Scores images; `source` may carry measures already computed for them. */
+  score(images: RgbaImage[], source: MeasureSource = builtInMeasureSource()): Float64Array {
+    return Float64Array.from(images, (img) => scoreDescriptor(this.doc, describeImage(img, source, this.doc.descriptor)));
+  }
+}
+
+export interface DefineOptions {
+  psi?: number;
+  /** Seed of the cross-validation folds. */
+  seed?: number;
+  /** Awaited between render batches so the host can serve previews and cancel. */
+  checkpoint?: (done: number, total: number) => Promise<void> | void;
+}
+
+export interface DefineResult {
+  doc: DefinedAttributeDoc;
+  /** Why the attribute must not be used (below the accuracy floor), or null. */
+  refused: string | null;
+}
+
+/** Renders the tagged seeds, describes them and fits the attribute. */
+export async function defineAttribute(gen: Generator, set: TagSet, options: DefineOptions = {}): Promise<DefineResult> {
+  const psi = set.psi ?? options.psi ?? gen.info.defaultPsi;
+  const source = builtInMeasureSource();
+  const spec = descriptorSpec(source);
+  const families = descriptorFamilies(spec);
+  const rows: Float64Array[] = [];
+  for (let at = 0; at < set.seeds.length; at += gen.batchSize) {
+    const chunk = set.seeds.slice(at, at + gen.batchSize);
+    const out = await gen.renderSeeds(chunk, psi, []);
+    for (let i = 0; i < chunk.length; i++) rows.push(describeImage(gen.toRgba(out.images, i), source, spec));
+    await options.checkpoint?.(rows.length, set.seeds.length);
+  }
+  let fit;
+  try {
+    fit = fitDefinedAttribute(set.name, rows, set.labels, set.kind, options.seed ?? 1, families);
+  } catch (err) {
+    throw new PlumblineError('bad-request', (err as Error).message);
+  }
+  const doc = definedAttributeDoc(set, fit, spec, { name: gen.info.name, fingerprint: gen.info.fingerprint }, psi, true);
+  return { doc, refused: fit.refused };
+}
+
+/** Where a project keeps its defined attributes. */
+export const ATTRIBUTES_DIR = 'attributes';
+
+/** Saves a defined attribute into a project folder (atomic), returning the file written. */
+export function saveDefinedAttribute(projectDir: string, doc: DefinedAttributeDoc): string {
+  const file = join(resolve(projectDir), ATTRIBUTES_DIR, `${doc.name}.json`);
+  writeFileAtomic(file, JSON.stringify(doc, null, 1) + '\n');
+  return file;
+}
+
+/** Every defined attribute saved in a project (none when it has no attributes folder). */
+export function loadProjectAttributes(projectDir: string): DefinedAttribute[] {
+  const dir = join(resolve(projectDir), ATTRIBUTES_DIR);
+  if (!existsSync(dir)) return [];
+  return readdirSync(dir)
+    .filter((f) => f.endsWith('.json'))
+    .sort()
+    .map((f) => DefinedAttribute.load(join(dir, f)));
+}
