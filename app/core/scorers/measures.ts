@@ -49,7 +49,7 @@ export const IMAGE_MEASURES: MeasureInfo[] = [
   { name: 'background_lightness', family: 'background colour', unit: 'L* (CIELAB, D65)', range: '0–100', description: 'median L* outside the subject dilated by 3 px', verdicts: true },
   { name: 'background_chroma', family: 'background colour', unit: 'C*ab', range: '0–~130', description: 'chroma of the median a*, b* outside the dilated subject', verdicts: true },
   { name: 'background_hue', family: 'background colour', unit: 'degrees h_ab', range: '0–360 (circular)', description: 'hue angle of the median a*, b* outside the dilated subject', period: 360, verdicts: true, undefinedWhen: `the background is grey (C*ab < ${HUE_CHROMA_FLOOR})` },
-  { name: 'subject_detail', family: 'detail', unit: 'mean |∇L*| per pixel', range: '0–~20', description: 'texture inside the subject: mean L* gradient over its interior (eroded 3 px), a per-pixel mean so size does not raise it', verdicts: true, undefinedWhen: 'no subject separates' },
+  { name: 'subject_detail', family: 'detail', unit: 'Σ|∇L*| / √(subject area)', range: '0–~100', description: 'edge contrast and texture inside the subject (interior eroded 3 px, so the outline is not counted): total L* gradient over the interior divided by √(subject area), so scaling the same subject neither raises nor lowers it', verdicts: true, undefinedWhen: 'no subject separates' },
   { name: 'edge_width', family: 'detail', unit: 'pixels', range: '~1 (crisp) and up', description: 'width of the subject’s edge ramp: (3/2)·Σ4m(1−m) / Σ|∇m| of the soft mask (exactly w for a linear ramp of w px)', verdicts: true, undefinedWhen: 'no subject separates' },
   { name: 'symmetry', family: 'symmetry', unit: '1 − mirror difference', range: '0–1', description: 'best mirror agreement of shape and colour about an axis through the subject’s own centroid', verdicts: true, undefinedWhen: 'no subject separates' },
   { name: 'colourfulness', family: 'composite', unit: 'M3 (Hasler & Süsstrunk 2003)', range: '0–~110 (0 grey, 33 moderate, 59 quite, 82 highly)', description: 'colourfulness of the whole image; composite (grows with subject area and with both colours), not a leak attribute unless picked', verdicts: false },
@@ -210,7 +210,7 @@ export function measureImage(img: RgbaImage): Float64Array {
 
 export function analyseImage(img: RgbaImage): ImageAnalysis {
   const lab = toLab(img);
-  const subject = findSubject(lab);
+  const subject = findSubject(lab, img);
   const { width: w, height: h } = img;
   const values = new Float64Array(IMAGE_MEASURES.length).fill(NaN);
   const set = (name: string, v: number) => (values[measureIndex(name)] = v);
@@ -251,7 +251,7 @@ export function analyseImage(img: RgbaImage): ImageAnalysis {
   set('subject_chroma', Math.hypot(sA, sB));
   set('subject_hue', hueOf(sA, sB));
 
-  set('subject_detail', interiorGradient(lab, subject, w, h));
+  set('subject_detail', interiorGradient(lab, subject, w, h) / Math.sqrt(mo.m00));
   set('edge_width', edgeWidth(subject.mask, w, h));
   set('symmetry', mirrorSymmetry(lab, subject.mask, w, h, mo.cx, mo.cy));
   return { values, subject, lab };
@@ -305,19 +305,21 @@ export function angularHarmonics(mask: ArrayLike<number>, w: number, h: number, 
   return { strength, angle };
 }
 
-/** Mean |∇L*| (central differences) over the subject interior eroded one more pixel than the colour interior. */
+/**
+ * Σ|∇L*| (central differences) over the subject interior eroded one more pixel than the colour
+ * interior. The caller divides by √(subject area): internal edges scale in length with the
+ * subject and so does the square root of its area, so a scaled subject keeps its value.
+ */
 function interiorGradient(lab: LabImage, subject: Subject, w: number, h: number): number {
   let s = 0;
-  let count = 0;
   const inner = (p: number) => subject.region[p] === REGION_INTERIOR;
   for (let y = 1; y < h - 1; y++)
     for (let x = 1; x < w - 1; x++) {
       const p = y * w + x;
       if (!(inner(p) && inner(p - 1) && inner(p + 1) && inner(p - w) && inner(p + w))) continue;
       s += 0.5 * Math.hypot(lab.L[p + 1] - lab.L[p - 1], lab.L[p + w] - lab.L[p - w]);
-      count++;
     }
-  return count ? s / count : 0;
+  return s;
 }
 
 /** Edge ramp width in pixels: (3/2)·Σ 4m(1−m) / Σ|∇m|, exactly w for a linear ramp of width w. */

@@ -3,8 +3,10 @@
 // The background colour is the median CIELAB colour of the one-pixel border; a pixel belongs to
 // the subject when its ΔE*ab from that colour exceeds a stated threshold; only the largest
 // 8-connected component is kept and holes inside it are filled (a gem or an inset of another
-// colour is part of the subject). The soft mask gives partial weight to anti-aliased edge pixels
-// in proportion to their ΔE*ab, so area and centroid stay smooth under sub-pixel changes.
+// colour is part of the subject). The soft mask gives partial weight to anti-aliased edge pixels:
+// their distance from the background colour in 8-bit sRGB relative to the interior's, which is
+// exactly the coverage when a renderer mixes colours by coverage in sRGB (the common case), so
+// area and centroid stay smooth under sub-pixel changes and a blur conserves the area.
 import { SRGB8_TO_LINEAR, linearRgbToLab } from '../color.ts';
 import type { RgbaImage } from '../image.ts';
 
@@ -20,8 +22,10 @@ export const MIN_SUBJECT_SHARE = 0.001;
 export const MAX_SUBJECT_SHARE = 0.9;
 /** Interior = subject eroded by this many pixels (away from the anti-aliased edge). */
 export const INTERIOR_ERODE = 2;
+/** The soft edge is read within this many pixels either side of the thresholded edge (covers blurs up to σ ≈ 1.5 px). */
+export const EDGE_REACH = 4;
 /** Background = everything outside the subject dilated by this many pixels. */
-export const BACKGROUND_DILATE = 3;
+export const BACKGROUND_DILATE = EDGE_REACH + 1;
 
 export interface LabImage {
   width: number;
@@ -41,7 +45,7 @@ export interface Subject {
   region: Uint8Array;
   /** Background colour estimate (median of the border), L*, a*, b*. */
   border: [number, number, number];
-  /** Median ΔE*ab of the subject interior from the background colour. */
+  /** Median sRGB distance (8-bit units) of the subject interior from the background colour. */
   contrast: number;
 }
 
@@ -205,7 +209,7 @@ function largestComponentFilled(hard: Uint8Array, w: number, h: number): { solid
 }
 
 /** Separates the subject from the background of a CIELAB image. */
-export function findSubject(lab: LabImage): Subject {
+export function findSubject(lab: LabImage, img: RgbaImage): Subject {
   const { width: w, height: h, L, a, b } = lab;
   const n = w * h;
   const borderIdx: number[] = [];
@@ -226,21 +230,30 @@ export function findSubject(lab: LabImage): Subject {
   if (size < Math.max(9, MIN_SUBJECT_SHARE * n)) return none(`no subject separates from the background: no region differs from the border colour by more than ΔE*ab ${SUBJECT_DELTA_E} over at least ${(MIN_SUBJECT_SHARE * 100).toFixed(1)}% of the image`);
   if (size > MAX_SUBJECT_SHARE * n) return none(`no subject separates from the background: the region that differs from the border colour covers ${((100 * size) / n).toFixed(0)}% of the image (a subject on a plain background is assumed)`);
   const interior = morph(solid, w, h, INTERIOR_ERODE);
-  const core = morph(solid, w, h, 1);
-  const near = morph(solid, w, h, -2);
+  const core = morph(solid, w, h, EDGE_REACH);
+  const near = morph(solid, w, h, -EDGE_REACH);
   const outside = morph(solid, w, h, -BACKGROUND_DILATE);
   let interiorCount = 0;
   for (let p = 0; p < n; p++) interiorCount += interior[p];
-  const refPixels: number[] = [];
-  for (let p = 0; p < n; p++) if (interiorCount >= 5 ? interior[p] : solid[p]) refPixels.push(dE[p]);
-  const contrast = median(refPixels);
+  const d = img.data;
+  const channel = (k: number, which: Uint8Array | null) => {
+    const v: number[] = [];
+    if (which) {
+      for (let p = 0; p < n; p++) if (which[p]) v.push(d[p * 4 + k]);
+    } else for (const p of borderIdx) v.push(d[p * 4 + k]);
+    return median(v);
+  };
+  const fg = [0, 1, 2].map((k) => channel(k, interiorCount >= 5 ? interior : solid));
+  const bgRgb = [0, 1, 2].map((k) => channel(k, null));
+  const contrast = Math.hypot(fg[0] - bgRgb[0], fg[1] - bgRgb[1], fg[2] - bgRgb[2]);
   const mask = new Float64Array(n);
   const region = new Uint8Array(n);
   for (let p = 0; p < n; p++) {
-    // Inside the eroded subject: full weight. Near the edge: coverage read from ΔE*ab relative to
-    // the interior's (linear in the mixing share for small steps; exact at 0 and 1).
+    // Deep inside: full weight. Near the edge: coverage read as the sRGB distance from the
+    // background relative to the interior's (exact for coverage mixing in sRGB; clamped at 1 for
+    // an outline or inset further from the background than the interior).
     if (core[p]) mask[p] = 1;
-    else if (near[p]) mask[p] = Math.min(1, dE[p] / contrast);
+    else if (near[p] && contrast > 0) mask[p] = Math.min(1, Math.hypot(d[p * 4] - bgRgb[0], d[p * 4 + 1] - bgRgb[1], d[p * 4 + 2] - bgRgb[2]) / contrast);
     region[p] = interior[p] ? REGION_INTERIOR : !outside[p] ? REGION_BACKGROUND : REGION_EDGE;
   }
   return { found: true, note: '', mask, region, border, contrast };
