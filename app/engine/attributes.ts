@@ -77,6 +77,11 @@ export async function scoreBatch(gen: Generator, out: RenderOutput, specs: Attri
         const all = byScorer.get(s.scorer!)!;
         v = all[i * s.scorer!.card.attributes.length + s.index];
       }
+      // A built-in measure may be "not measurable here" (NaN) on some images; statistics leave those out.
+      if (s.source === 'image' && Number.isNaN(v) && IMAGE_MEASURES[s.index].undefinedWhen) {
+        scores[i * k + j] = v;
+        continue;
+      }
       if (!Number.isFinite(v)) throw new PlumblineError('output-not-finite', `attribute scorer '${s.name}' returned ${v} for an image; the audit cannot use it`);
       scores[i * k + j] = v;
     }

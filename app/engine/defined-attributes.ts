@@ -18,10 +18,16 @@ import type { Generator } from './generator.ts';
  * already computed for an image (the audit measures every image once), keyed by the image object.
  */
 export function builtInMeasureSource(known?: WeakMap<RgbaImage, ArrayLike<number>>): MeasureSource {
+  // A measure whose period changes from image to image (orientation: 360°/k with k read from the
+  // shape) has no one scale a linear model could weigh; it is left out of the descriptor.
+  const kept = IMAGE_MEASURES.map((m, i) => ({ m, i })).filter(({ m }) => !(m as { periodFrom?: string }).periodFrom);
   return {
-    names: IMAGE_MEASURES.map((m) => m.name),
-    periods: IMAGE_MEASURES.map((m) => m.period),
-    measure: (img) => known?.get(img) ?? measureImage(img),
+    names: kept.map(({ m }) => m.name),
+    periods: kept.map(({ m }) => m.period),
+    measure: (img) => {
+      const all = known?.get(img) ?? measureImage(img);
+      return kept.map(({ i }) => all[i]);
+    },
   };
 }
 

@@ -7,7 +7,7 @@ import { basename, dirname, resolve } from 'node:path';
 import * as ort from 'onnxruntime-node';
 import { PlumblineError } from '../core/errors.ts';
 import { parseModelCard, type ModelCard } from '../core/model-card.ts';
-import { decodeModel, summarizeModel, type OnnxSummary, type TensorInterface } from '../core/onnx/inspect.ts';
+import { decodeModel, inferOutputRange, summarizeModel, type OnnxSummary, type TensorInterface } from '../core/onnx/inspect.ts';
 import { applyEdits, broadcastLayers, seedsToZ, truncate, type EditVector } from '../core/latent.ts';
 import { OutputValueError, tensorToRgba, type RgbaImage } from '../core/image.ts';
 import type { ModelInfo } from '../protocol/messages.ts';
@@ -27,6 +27,8 @@ const RANGE_SLACK = 1.0;
 const FULL_CHECK_BATCHES = 4;
 const CHECK_STRIDE = 13;
 export const DEFAULT_BATCH = 16;
+/** Images rendered to infer the output range of a generator without a card. */
+const RANGE_SAMPLE = 8;
 
 export interface GeneratorLayout {
   space: 'z' | 'w' | 'w+';
@@ -142,6 +144,8 @@ export class Generator {
       (gen as { centre: Float32Array }).centre = centre;
       (gen as { centredSamples: Float32Array }).centredSamples = centred;
 
+      // Without a card the output range is not stated: read it off a sample batch first.
+      if (!r.card) await gen.#inferRange();
       // A probe render checks shape, range and finiteness before anyone relies on the model.
       await gen.renderSeeds([0, 1], 1, []);
       const { width, height } = gen.imageSize();
@@ -169,6 +173,17 @@ export class Generator {
       await gen.dispose();
       throw err;
     }
+  }
+
+  /** Renders RANGE_SAMPLE seeds unchecked, infers the output range and lists it among the assumptions. */
+  async #inferRange(): Promise<void> {
+    const r = this.#r;
+    r.range = [-Infinity, Infinity];
+    const out = await this.renderSeeds(Array.from({ length: RANGE_SAMPLE }, (_, i) => STAT_SEED_BASE + i), 1, []);
+    this.#checkedBatches = 0;
+    const inferred = inferOutputRange(out.images);
+    r.range = inferred.range;
+    r.assumptions.push(inferred.note);
   }
 
   #shape: number[] | null = null;
@@ -397,7 +412,8 @@ function resolveBare(file: string, mappingFile: string | null): Resolved {
     constants: {},
     mappingInput: null,
     mappingOutput: null,
-    assumptions: ['no model card: interface inferred from the graph', 'output range assumed to be [-1, 1]'],
+    // The output range is inferred from a sample batch once the interface is known (#inferRange).
+    assumptions: ['no model card: interface inferred from the graph'],
   };
 }
 
