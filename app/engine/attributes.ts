@@ -24,17 +24,24 @@ export type AttributeSelection = 'default' | 'card' | 'image' | 'all' | string[]
 
 /** default: the card's attributes when it declares some, else the image measures; plus any user scorers and defined attributes. */
 export function resolveAttributes(gen: Generator, selection: AttributeSelection = 'default', scorers: ScorerModel[] = [], defined: DefinedAttribute[] = []): AttributeSpec[] {
+  const specs = selectAttributes(gen, selection, scorers, defined);
+  // A defined attribute may share a name with a source left out of this selection (e.g. the
+  // card's 'gem' when auditing from images alone), never with one in it.
+  const seen = new Set<string>();
+  for (const a of specs) {
+    if (seen.has(a.name)) throw new PlumblineError('bad-request', `two attributes in this audit are named '${a.name}' (${specs.filter((x) => x.name === a.name).map((x) => x.source).join(' and ')}); rename the defined one`);
+    seen.add(a.name);
+  }
+  return specs;
+}
+
+function selectAttributes(gen: Generator, selection: AttributeSelection, scorers: ScorerModel[], defined: DefinedAttribute[]): AttributeSpec[] {
   const card: AttributeSpec[] = (gen.card?.attributes ?? []).map((a, index) => ({ name: a.name, unit: a.unit ?? '', source: 'card', index }));
   const image: AttributeSpec[] = IMAGE_MEASURES.map((m, index) => ({ name: m.name, unit: m.unit, source: 'image', index, period: m.period }));
   const user: AttributeSpec[] = [
     ...scorers.flatMap((sc) => sc.card.attributes.map((a, index) => ({ name: a.name, unit: a.unit, source: 'scorer' as const, index, scorer: sc }))),
     ...defined.map((d, index) => ({ name: d.name, unit: d.doc.unit, source: 'defined' as const, index, defined: d })),
   ];
-  const taken = new Set<string>();
-  for (const a of [...card, ...image, ...user]) {
-    if (taken.has(a.name) && a.source === 'defined') throw new PlumblineError('bad-request', `defined attribute '${a.name}' has the name of another attribute source; rename it`);
-    taken.add(a.name);
-  }
   if (selection === 'default') return [...(card.length ? card : image), ...user];
   if (selection === 'card') {
     if (!card.length) throw new PlumblineError('bad-request', `${gen.info.name} declares no attribute outputs in its model card; use the image measures (${image.map((m) => m.name).join(', ')})`);

@@ -12,6 +12,7 @@ import { describeImage, descriptorFamilies, descriptorSpec, type MeasureSource }
 import { fitDefinedAttribute } from '../core/attributes/fit.ts';
 import { accuracyText, definedAttributeDoc, parseDefinedAttribute, sameDescriptor, scoreDescriptor, type DefinedAttributeDoc, type TagSet } from '../core/attributes/scorer-file.ts';
 import type { Generator } from './generator.ts';
+import type { DefinedAttributeInfo } from '../protocol/messages.ts';
 
 /**
  * Today's built-in measures as a descriptor source. `known` lets a caller hand in measures it has
@@ -66,8 +67,6 @@ export interface DefineOptions {
   psi?: number;
   /** Seed of the cross-validation folds. */
   seed?: number;
-  /** Awaited between render batches so the host can serve previews and cancel. */
-  checkpoint?: (done: number, total: number) => Promise<void> | void;
 }
 
 export interface DefineResult {
@@ -76,18 +75,40 @@ export interface DefineResult {
   refused: string | null;
 }
 
-/** Renders the tagged seeds, describes them and fits the attribute. */
-export async function defineAttribute(gen: Generator, set: TagSet, options: DefineOptions = {}): Promise<DefineResult> {
+/**
+ * Descriptors of recently tagged seeds by generator fingerprint, ψ and seed: a lead adds a few
+ * tags and defines again, or defines several attributes from overlapping seeds, without
+ * re-rendering. The descriptor is fixed, so a cached row is the row.
+ */
+const described = new Map<string, Float64Array>();
+const DESCRIBED_LIMIT = 4096;
+function remember(key: string, row: Float64Array): void {
+  if (described.size >= DESCRIBED_LIMIT) described.delete(described.keys().next().value!);
+  described.set(key, row);
+}
+
+/**
+ * Renders the tagged seeds, describes them and fits the attribute, as a job: yields progress
+ * after each render batch (the caller may stop pulling to cancel), returns the fit.
+ */
+export async function* defineAttributeJob(gen: Generator, set: TagSet, options: DefineOptions = {}): AsyncGenerator<{ done: number; total: number; label: string }, DefineResult, void> {
   const psi = set.psi ?? options.psi ?? gen.info.defaultPsi;
   const source = builtInMeasureSource();
   const spec = descriptorSpec(source);
   const families = descriptorFamilies(spec);
   const rows: Float64Array[] = [];
+  const total = Math.ceil(set.seeds.length / gen.batchSize) + 1;
+  let done = 0;
+  const key = (seed: number) => `${gen.info.fingerprint}:${psi}:${seed}`;
   for (let at = 0; at < set.seeds.length; at += gen.batchSize) {
     const chunk = set.seeds.slice(at, at + gen.batchSize);
-    const out = await gen.renderSeeds(chunk, psi, []);
-    for (let i = 0; i < chunk.length; i++) rows.push(describeImage(gen.toRgba(out.images, i), source, spec));
-    await options.checkpoint?.(rows.length, set.seeds.length);
+    const missing = chunk.filter((seed) => !described.has(key(seed)));
+    if (missing.length) {
+      const out = await gen.renderSeeds(missing, psi, []);
+      missing.forEach((seed, i) => remember(key(seed), describeImage(gen.toRgba(out.images, i), source, spec)));
+    }
+    for (const seed of chunk) rows.push(described.get(key(seed))!);
+    yield { done: ++done, total, label: `describing tagged seeds for ${set.name}` };
   }
   let fit;
   try {
@@ -95,8 +116,37 @@ export async function defineAttribute(gen: Generator, set: TagSet, options: Defi
   } catch (err) {
     throw new PlumblineError('bad-request', (err as Error).message);
   }
+  yield { done: ++done, total, label: `cross-validating ${set.name}` };
   const doc = definedAttributeDoc(set, fit, spec, { name: gen.info.name, fingerprint: gen.info.fingerprint }, psi, true);
   return { doc, refused: fit.refused };
+}
+
+/** defineAttributeJob run to the end. */
+export async function defineAttribute(gen: Generator, set: TagSet, options: DefineOptions = {}): Promise<DefineResult> {
+  const job = defineAttributeJob(gen, set, options);
+  for (;;) {
+    const step = await job.next();
+    if (step.done) return step.value;
+  }
+}
+
+/** What the app shows of a defined attribute (accuracy included wherever it is used). */
+export function definedAttributeInfo(doc: DefinedAttributeDoc, file: string | null): DefinedAttributeInfo {
+  const a = doc.accuracy;
+  return {
+    name: doc.name,
+    kind: doc.kind,
+    metric: a.metric,
+    value: a.value,
+    floor: a.floor,
+    folds: a.folds,
+    has: 'has' in a.counts ? a.counts.has : a.counts.ratings,
+    lacks: 'lacks' in a.counts ? a.counts.lacks : 0,
+    noisy: a.noisy,
+    note: a.note,
+    accuracy: accuracyText(a),
+    file,
+  };
 }
 
 /** Where a project keeps its defined attributes. */

@@ -56,7 +56,18 @@ export const requestSchemas = {
     leakPass: z.number().positive().max(10).default(0.15),
     leakFail: z.number().positive().max(10).default(0.35),
     combinations: z.enum(['all', 'none']).default('all'),
+    /** Defined attributes of the open project to audit with (names). */
+    defined: z.array(z.string().min(1)).max(32).optional(),
+    /** Target attribute per direction id, overriding the direction's own (e.g. a defined attribute). */
+    targets: z.record(z.string(), z.string().min(1)).optional(),
   }),
+  'attributes.define': z.object({
+    name: z.string().regex(/^[A-Za-z][A-Za-z0-9_.-]{0,63}$/, 'a name of letters, digits, _ . - starting with a letter'),
+    has: z.array(seed).max(10_000),
+    lacks: z.array(seed).max(10_000),
+    psi,
+  }),
+  'attributes.list': z.object({}),
   'lab.repair': z.object({ direction: z.string().min(1), against: z.array(z.string().min(1)).min(1).max(32), hold: z.union([z.literal('others'), z.array(z.string())]).default([]) }),
   'project.open': z.object({ path: z.string().min(1), create: z.boolean().default(false) }),
   'project.saveUi': z.object({ seed, psi, strengths: z.record(z.string(), strength), pinned: z.array(seed).max(10_000), tags: z.record(z.string(), z.enum(['has', 'lacks'])) }),
@@ -131,6 +142,24 @@ export const directionInfoSchema = z.object({
 });
 export type DirectionInfo = z.infer<typeof directionInfoSchema>;
 
+/** A defined attribute as the app shows it: its cross-validated accuracy goes wherever it is used. */
+export const definedAttributeInfoSchema = z.object({
+  name: z.string(),
+  kind: z.enum(['tags', 'ratings']),
+  metric: z.enum(['auc', 'r2']),
+  value: z.number(),
+  floor: z.number(),
+  folds: z.number(),
+  has: z.number(),
+  lacks: z.number(),
+  noisy: z.boolean(),
+  note: z.string().nullable(),
+  /** The accuracy in words, as reports print it. */
+  accuracy: z.string(),
+  file: z.string().nullable(),
+});
+export type DefinedAttributeInfo = z.infer<typeof definedAttributeInfoSchema>;
+
 export const imageSchema = z.object({ width: z.number().int(), height: z.number().int(), rgba: bytes });
 export type WireImage = z.infer<typeof imageSchema>;
 
@@ -141,7 +170,7 @@ export const auditWireSchema = z.object({
   version: z.literal(1),
   generator: z.object({ name: z.string(), fingerprint: z.string() }),
   probes: z.object({ count: z.number(), psi: z.number() }).passthrough(),
-  attributes: z.array(z.object({ name: z.string(), unit: z.string(), source: z.string(), sigma: z.number() })),
+  attributes: z.array(z.object({ name: z.string(), unit: z.string(), source: z.string(), sigma: z.number(), accuracy: z.string().optional() })),
   warnings: z.array(z.string()),
   caution: z.string(),
   settings: z.object({ referenceStrength: z.number(), leakPass: z.number(), leakFail: z.number() }).passthrough(),
@@ -192,6 +221,8 @@ export const resultSchemas = {
   'lab.repair': z.union([z.object({ cancelled: z.literal(true) }), z.object({ cancelled: z.literal(false), direction: directionInfoSchema, boundaries: z.array(z.object({ attribute: z.string(), accuracy: z.number(), role: z.string() })) })]),
   'project.open': z.object({ path: z.string(), name: z.string(), generatorFingerprint: z.string().nullable(), generatorMatches: z.boolean(), directions: z.array(directionInfoSchema), audits: z.array(z.string()), ui: z.object({ seed, psi, strengths: z.record(z.string(), z.number()), pinned: z.array(seed), tags: z.record(z.string(), z.enum(['has', 'lacks'])) }).nullable() }),
   'project.saveUi': z.object({ savedAt: z.string() }),
+  'attributes.define': z.union([z.object({ cancelled: z.literal(true) }), z.object({ cancelled: z.literal(false), attribute: definedAttributeInfoSchema, refused: z.string().nullable() })]),
+  'attributes.list': z.object({ attributes: z.array(definedAttributeInfoSchema) }),
   'project.review': z.object({ direction: z.string(), signOff: signOffSchema }),
   'variants.render': z.union([z.object({ cancelled: z.literal(true) }), z.object({ cancelled: z.literal(false), out: z.string(), rendered: z.number(), reused: z.number(), contactSheet: bytes })]),
   'pack.build': z.object({ file: z.string(), directions: z.array(z.string()), skipped: z.array(z.string()), bytes: z.number() }),

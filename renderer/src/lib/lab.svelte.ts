@@ -1,7 +1,7 @@
 // State and intents of the lab screens: project, discovery, audit, repair and sign-off. Works
 // through the same engine client as the workbench (Studio) and keeps Studio's direction list
 // in step with the engine's.
-import type { AuditWire, DirectionInfo, Params, Result, WireImage } from '../../../app/protocol/messages.ts';
+import type { AuditWire, DefinedAttributeInfo, DirectionInfo, Params, Result, WireImage } from '../../../app/protocol/messages.ts';
 import { EngineRequestError } from './engine.ts';
 import type { Studio } from './studio.svelte.ts';
 
@@ -57,6 +57,17 @@ export class Lab {
   variantSummary = $state<string | null>(null);
   #variantRequest = 0;
 
+  /** Attributes defined from tagged seeds (the project's, or this session's without a project). */
+  defined = $state.raw<DefinedAttributeInfo[]>([]);
+  defineName = $state('');
+  defining = $state(false);
+  /** The last definition's outcome: its accuracy, or why it was refused. */
+  lastDefinition = $state.raw<{ attribute: DefinedAttributeInfo; refused: string | null } | null>(null);
+  /** Defined attributes chosen for the next audit, by name. */
+  auditDefined = $state<string[]>([]);
+  /** Target attribute per direction id for the next audit (absent: the direction's own target). */
+  auditTargets = $state<Record<string, string>>({});
+
   repairAgainst = $state<string[]>([]);
   holdOthers = $state(true);
   repairing = $state(false);
@@ -97,6 +108,7 @@ export class Lab {
       this.studio.onAutosave = (ui) => this.engine.request('project.saveUi', ui).then((r) => r.savedAt);
       this.studio.onRecover = () => this.openProject(path, false);
       await this.refreshDirections(p.directions);
+      this.defined = (await this.engine.request('attributes.list', {})).attributes;
       if (p.ui) this.studio.restoreUi(p.ui);
       if (!p.generatorMatches) this.studio.banner = { kind: 'warning', text: `This project was made with another generator (fingerprint ${p.generatorFingerprint?.slice(0, 12)}…). Its directions and sign-offs may not hold for ${this.studio.model?.name}.` };
     });
@@ -139,13 +151,43 @@ export class Lab {
     });
   }
 
+  /** Fits an attribute from the seeds tagged has/lacks in the workbench; shows its accuracy or the refusal. */
+  async defineAttribute(): Promise<void> {
+    const name = this.defineName.trim();
+    if (!name) {
+      this.studio.banner = { kind: 'warning', text: 'Name the attribute first (letters, digits, _ . -).' };
+      return;
+    }
+    const tags = Object.entries(this.studio.tags);
+    this.defining = true;
+    await this.#guard(`Defining ${name}`, async () => {
+      const r = await this.engine.request('attributes.define', {
+        name,
+        has: tags.filter(([, t]) => t === 'has').map(([s]) => Number(s)),
+        lacks: tags.filter(([, t]) => t === 'lacks').map(([s]) => Number(s)),
+        psi: this.studio.psi,
+      });
+      if (r.cancelled) return;
+      this.lastDefinition = { attribute: r.attribute, refused: r.refused };
+      if (!r.refused) {
+        this.defined = [...this.defined.filter((d) => d.name !== r.attribute.name), r.attribute];
+        if (!this.auditDefined.includes(r.attribute.name)) this.auditDefined = [...this.auditDefined, r.attribute.name];
+      }
+    });
+    this.defining = false;
+  }
+
   async runAudit(ids = this.auditSelection): Promise<void> {
     if (ids.length === 0) return;
     this.auditProgress = { done: 0, total: 1, label: 'starting' };
     await this.#guard('Auditing', async () => {
       const pending = this.engine.request(
         'audit.run',
-        { directions: ids, probes: this.probes, pinnedSeeds: this.studio.pinned, psi: this.studio.psi, seed: 1, referenceStrength: 2, leakPass: 0.15, leakFail: 0.35, combinations: 'all' },
+        {
+          directions: ids, probes: this.probes, pinnedSeeds: this.studio.pinned, psi: this.studio.psi, seed: 1, referenceStrength: 2, leakPass: 0.15, leakFail: 0.35, combinations: 'all',
+          defined: this.auditDefined.filter((n) => this.defined.some((d) => d.name === n)),
+          targets: Object.fromEntries(Object.entries(this.auditTargets).filter(([id, t]) => ids.includes(id) && t)),
+        },
         (done, total, label) => (this.auditProgress = { done, total, label }),
       );
       this.#auditRequest = this.engine.lastRequestId;
