@@ -168,3 +168,45 @@ export function loadProjectAttributes(projectDir: string): DefinedAttribute[] {
     .sort()
     .map((f) => DefinedAttribute.load(join(dir, f)));
 }
+
+/**
+ * The engine's defined attributes: those saved in the open project, plus (without a project)
+ * those defined in this session. What the host's attributes.define / attributes.list and the
+ * audit's `defined` parameter go through.
+ */
+export class DefinedAttributeStore {
+  #session = new Map<string, DefinedAttribute>();
+
+  /** Every usable defined attribute: the project's files, else this session's. */
+  all(projectDir: string | null): DefinedAttribute[] {
+    return projectDir ? loadProjectAttributes(projectDir) : [...this.#session.values()];
+  }
+
+  list(projectDir: string | null): { attributes: DefinedAttributeInfo[] } {
+    return { attributes: this.all(projectDir).map((a) => definedAttributeInfo(a.doc, a.file)) };
+  }
+
+  /** The named attributes, or a clear error naming the missing ones. */
+  pick(projectDir: string | null, names: string[]): DefinedAttribute[] {
+    const all = this.all(projectDir);
+    return names.map((n) => {
+      const a = all.find((x) => x.name === n);
+      if (!a) throw new PlumblineError('bad-request', `no defined attribute named '${n}'${all.length ? `; defined: ${all.map((x) => x.name).join(', ')}` : ' (none are defined yet)'}`);
+      return a;
+    });
+  }
+
+  /** Fits from has/lacks seeds; saves into the project (or keeps for the session) unless refused. */
+  async *define(gen: Generator, projectDir: string | null, p: { name: string; has: number[]; lacks: number[]; psi: number }): AsyncGenerator<{ done: number; total: number; label: string }, { cancelled: false; attribute: DefinedAttributeInfo; refused: string | null }, void> {
+    const both = p.has.filter((s) => p.lacks.includes(s));
+    if (both.length) throw new PlumblineError('bad-request', `seed(s) ${both.slice(0, 5).join(', ')} are tagged both has and lacks '${p.name}'`);
+    const set: TagSet = { name: p.name, kind: 'tags', seeds: [...p.has, ...p.lacks], labels: [...p.has.map(() => 1), ...p.lacks.map(() => 0)], psi: p.psi };
+    const { doc, refused } = yield* defineAttributeJob(gen, set);
+    let file: string | null = null;
+    if (!refused) {
+      if (projectDir) file = saveDefinedAttribute(projectDir, doc);
+      else this.#session.set(doc.name, new DefinedAttribute(doc, null));
+    }
+    return { cancelled: false, attribute: definedAttributeInfo(doc, file), refused };
+  }
+}

@@ -21,6 +21,7 @@ import { runAudit } from './audit/run.ts';
 import { auditReportFile, auditReportWire } from '../core/audit/report.ts';
 import { discoverByTags, discoverPca, discoverSefa, fitBoundary, repairDirection, type LabDirection } from './lab.ts';
 import { Project, vectorHash } from './project.ts';
+import { DefinedAttributeStore } from './defined-attributes.ts';
 import { buildPack, verifyPack } from './pack-ops.ts';
 import { renderVariants } from './variants.ts';
 import { PackError } from '../core/pack.ts';
@@ -74,6 +75,7 @@ export class EngineHost {
   #jobs: Job[] = [];
   #pumping = false;
   #project: Project | null = null;
+  readonly #defined = new DefinedAttributeStore();
   #running: Job | null = null;
   readonly threads: number;
 
@@ -116,6 +118,7 @@ export class EngineHost {
       case 'lab.discover':
       case 'audit.run':
       case 'lab.repair':
+      case 'attributes.define':
       case 'variants.render': {
         const jobId = this.#nextJob++;
         this.#jobs.push({ jobId, request: req, port, cancelled: false, steps: this.#jobFor(req) });
@@ -203,6 +206,8 @@ export class EngineHost {
       }
       case 'project.open':
         return this.#openProject(req.params as Params<'project.open'>);
+      case 'attributes.list':
+        return this.#defined.list(this.#project?.dir ?? null);
       case 'project.saveUi': {
         if (!this.#project) throw new PlumblineError('bad-request', 'no project is open');
         return { savedAt: this.#project.saveUi(req.params as Params<'project.saveUi'>) };
@@ -344,6 +349,8 @@ export class EngineHost {
         return this.#auditJob(req.params as Params<'audit.run'>);
       case 'variants.render':
         return this.#variantsJob(req.params as Params<'variants.render'>);
+      case 'attributes.define':
+        return this.#defined.define(this.#requireGenerator(), this.#project?.dir ?? null, req.params as Params<'attributes.define'>);
       default:
         return this.#repairJob(req.params as Params<'lab.repair'>);
     }
@@ -391,9 +398,10 @@ export class EngineHost {
   async *#auditJob(p: Params<'audit.run'>): AsyncGenerator<Progress, Result<'audit.run'>, void> {
     const gen = this.#requireGenerator();
     const dirs = p.directions.map((id) => this.direction(id));
-    const job = runAudit(gen, dirs.map((d) => ({ name: d.name, target: d.target, layers: d.layers, vector: d.vector, sigma: d.sigma })), {
+    const defined = this.#defined.pick(this.#project?.dir ?? null, p.defined ?? []);
+    const job = runAudit(gen, dirs.map((d) => ({ name: d.name, target: p.targets?.[d.id] ?? d.target, layers: d.layers, vector: d.vector, sigma: d.sigma })), {
       probes: p.probes, pinnedSeeds: p.pinnedSeeds, psi: p.psi, seed: p.seed, referenceStrength: p.referenceStrength, leakPass: p.leakPass, leakFail: p.leakFail, combinations: p.combinations,
-    });
+    }, { defined });
     let last = 0;
     for (;;) {
       if (this.#running?.cancelled) {
