@@ -227,3 +227,29 @@ test('colour histograms: subject and background split by the border ΔE*ab, each
   assert.equal(spec.length, 3 + 48 + 16 + 12 + 324);
   assert.ok(Math.abs(v[1] - Math.cos(Math.PI / 2)) < 1e-12 && Math.abs(v[2] - 1) < 1e-12);
 });
+
+test('subject mask: a dark frame and a thin ring are not the subject; a background-coloured inset is', () => {
+  // 64×64 mid-grey card, a 3-px near-black frame touching the border, a 1-px green ring of radius
+  // 25 (its filled extent, π·25² ≈ 1963 px, is 48% of the image: more than the 45% a subject may
+  // enclose), and a red disc of radius 8 with a grey (background-coloured) hole of radius 3.
+  const w = 64;
+  const data = new Uint8ClampedArray(w * w * 4);
+  const inDisc = (x: number, y: number) => Math.hypot(x - 32, y - 32) <= 8;
+  for (let y = 0; y < w; y++)
+    for (let x = 0; x < w; x++) {
+      const r = Math.hypot(x - 32, y - 32);
+      let c = [128, 128, 128];
+      if (x < 3 || y < 3 || x >= w - 3 || y >= w - 3) c = [20, 20, 20];
+      else if (Math.abs(r - 25) < 0.5) c = [40, 200, 60];
+      else if (inDisc(x, y) && r > 3) c = [220, 30, 30];
+      data.set([...c, 255], (y * w + x) * 4);
+    }
+  const mask = subjectMask(labPlanes({ width: w, height: w, data }), w, w);
+  let expected = 0;
+  for (let p = 0; p < w * w; p++) {
+    const want = inDisc(p % w, Math.floor(p / w)) ? 1 : 0;
+    expected += want;
+    assert.equal(mask[p], want, `pixel (${p % w}, ${Math.floor(p / w)})`);
+  }
+  assert.ok(expected > 190, 'the disc, hole included');
+});
