@@ -33,7 +33,8 @@ test('tag seeds, define an attribute (accuracy shown), audit a direction against
   const projectDir = join(mkdtempSync(join(tmpdir(), 'plumbline-define-')), 'outlines');
   await page.goto(shell.url);
   await expect(page.getByTestId('engine-state')).toHaveText('engine ready', { timeout: 60_000 });
-  await expect(page.getByRole('slider', { name: 'turn' })).toBeVisible({ timeout: 60_000 });
+  // Opening the demo computes its latent statistics first: slow on a busy machine.
+  await expect(page.getByRole('slider', { name: 'turn' })).toBeVisible({ timeout: 240_000 });
   await page.getByRole('button', { name: 'New project…' }).click();
   await page.getByLabel('Path').fill(projectDir);
   await page.getByRole('button', { name: 'Create', exact: true }).click();

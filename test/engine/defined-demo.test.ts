@@ -59,30 +59,45 @@ test('the demo from its images alone, with gem, outline and glow defined from de
   }
 
   const all = host.openDirections(join(demoDir, 'sigil-directions.npy')).directions.map((d) => host.direction(d.id));
-  const directions: AuditDirection[] = Object.keys(TARGETS).map((name) => {
+  const direction = (name: string): AuditDirection => {
     const d = all.find((x) => x.name === name)!;
     return { name, target: TARGETS[name], layers: d.layers, vector: d.vector, sigma: d.sigma };
-  });
-  const report = await drain(
-    runAudit(gen, directions, { probes: 32, psi: PSI, attributes: 'image', strengths: [-3, -2, -1, 0, 1, 2, 2.5, 3], sigmaSamples: 128, combinations: 'none', groundTruthSamples: 0, bootstrapResamples: 400, worstProbes: 0 }, { defined }),
-  );
-  // The accuracy travels with the attribute into the report.
-  for (const name of ['gem', 'outline', 'glow']) assert.match(report.attributes.find((a) => a.name === name)!.accuracy!, /^AUC 0\.\d\d \(5-fold CV; 50 have \/ 50 lack it; floor 0\.75\)/);
-
-  const by = (name: string) => report.directions.find((d) => d.name === name)!;
-  for (const d of report.directions) process.stdout.write(`# ${d.name} → ${d.target}: ${d.verdict} — ${d.reason}\n`);
+  };
+  const settings = { probes: 32, psi: PSI, attributes: 'image' as const, strengths: [-3, -2, -1, 0, 1, 2, 2.5, 3], sigmaSamples: 128, combinations: 'none' as const, groundTruthSamples: 0, bootstrapResamples: 400, worstProbes: 0 };
+  // turn is audited on its own: a failure to measure its target must not hide the other rows.
+  const failures: string[] = [];
+  const reports: AuditReport[] = [];
+  for (const group of [['crest_size', 'outline_bold', 'axis_07', 'glow_surge'], ['turn']]) {
+    try {
+      reports.push(await drain(runAudit(gen, group.map(direction), settings, { defined })));
+    } catch (err) {
+      failures.push(`${group.join(', ')}: the audit stopped: ${(err as Error).message}`);
+      process.stdout.write(`# audit of ${group.join(', ')} stopped: ${(err as Error).message}\n`);
+    }
+  }
+  const check = (ok: boolean, what: string) => {
+    process.stdout.write(`# ${ok ? 'as expected' : 'NOT as expected'}: ${what}\n`);
+    if (!ok) failures.push(what);
+  };
+  for (const report of reports) {
+    // The accuracy travels with the attribute into the report.
+    for (const name of ['gem', 'outline', 'glow']) check(/^AUC 0\.\d\d \(5-fold CV; 50 have \/ 50 lack it; floor 0\.75\)/.test(report.attributes.find((a) => a.name === name)?.accuracy ?? ''), `report carries ${name}'s accuracy`);
+    for (const d of report.directions) process.stdout.write(`# ${d.name} → ${d.target}: ${d.verdict} — ${d.reason}\n`);
+  }
+  const by = (name: string) => reports.flatMap((r) => r.directions).find((d) => d.name === name);
   /** Attributes a direction moves by at least the pass threshold relative to its target. */
   const leaks = (name: string) => {
-    const d = by(name);
+    const d = by(name)!;
     const t = d.dependency[d.target].value;
-    return Object.entries(d.dependency).filter(([a, iv]) => a !== d.target && iv.value / t >= report.settings.leakPass).map(([a]) => a);
+    return Object.entries(d.dependency).filter(([a, iv]) => a !== d.target && iv.value / t >= 0.15).map(([a]) => a);
   };
-  assert.equal(by('crest_size').verdict, 'pass', by('crest_size').reason);
-  assert.equal(by('turn').verdict, 'pass', by('turn').reason);
-  assert.equal(by('outline_bold').verdict, 'fail', by('outline_bold').reason);
-  assert.ok(leaks('outline_bold').some((a) => a.startsWith('background_')), `outline_bold leaks into ${leaks('outline_bold').join(', ')}`);
-  assert.equal(by('axis_07').verdict, 'fail', by('axis_07').reason);
+  for (const name of ['crest_size', 'turn']) if (by(name)) check(by(name)!.verdict === 'pass', `${name} passes (${by(name)!.verdict}: ${by(name)!.reason})`);
+  if (by('outline_bold')) {
+    check(by('outline_bold')!.verdict === 'fail', `outline_bold fails (${by('outline_bold')!.verdict})`);
+    check(leaks('outline_bold').some((a) => a.startsWith('background_')), `outline_bold has a background measure among its leaks (${leaks('outline_bold').join(', ')})`);
+  }
+  if (by('axis_07')) check(by('axis_07')!.verdict === 'fail', `axis_07 fails (${by('axis_07')!.verdict}: ${by('axis_07')!.reason})`);
   const glow = by('glow_surge');
-  assert.ok(glow.breaksAt !== null && glow.breaksAt <= 3, `glow_surge: breaks at ${glow.breaksAt}; ${glow.reason}`);
-  assert.ok(glow.safeRange[1] < 3, `glow_surge safe range ${glow.safeRange}`);
+  if (glow) check(glow.breaksAt !== null && glow.breaksAt <= 3 && glow.safeRange[1] < 3, `glow_surge's break is found (breaks at ${glow.breaksAt}, safe range ${glow.safeRange.join('…')})`);
+  assert.deepEqual(failures, []);
 });
