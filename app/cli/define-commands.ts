@@ -8,7 +8,7 @@ import { PlumblineError } from '../core/errors.ts';
 import { accuracyText, parseTagsFile } from '../core/attributes/scorer-file.ts';
 import { DefinedAttribute, defineAttribute, saveDefinedAttribute } from '../engine/defined-attributes.ts';
 import { Generator } from '../engine/generator.ts';
-import { demoCardPath } from '../engine/host.ts';
+import { demoCardPath } from '../engine/workspace.ts';
 import type { CliContext } from './lab-commands.ts';
 
 export interface DefinedOutcome {
@@ -58,6 +58,6 @@ export function addDefineCommand(program: Command, ctx: CliContext, integer: (n:
       } finally {
         await gen.dispose();
       }
-      if (ctx.isCancelled()) process.exitCode = 130;
+      if (ctx.interrupt.aborted) process.exitCode = 130;
     });
 }

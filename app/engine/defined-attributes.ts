@@ -177,9 +177,14 @@ export function loadProjectAttributes(projectDir: string): DefinedAttribute[] {
 export class DefinedAttributeStore {
   #session = new Map<string, DefinedAttribute>();
 
-  /** Every usable defined attribute: the project's files, else this session's. */
+  /** Every defined attribute: the project's files, else this session's. */
   all(projectDir: string | null): DefinedAttribute[] {
     return projectDir ? loadProjectAttributes(projectDir) : [...this.#session.values()];
+  }
+
+  /** Forgets this session's attributes (they describe images of the generator they were fitted on). */
+  clearSession(): void {
+    this.#session.clear();
   }
 
   list(projectDir: string | null): { attributes: DefinedAttributeInfo[] } {
@@ -187,17 +192,18 @@ export class DefinedAttributeStore {
   }
 
   /** The named attributes, or a clear error naming the missing ones. */
-  pick(projectDir: string | null, names: string[]): DefinedAttribute[] {
+  pick(projectDir: string | null, names: string[], generator: { fingerprint: string }): DefinedAttribute[] {
     const all = this.all(projectDir);
     return names.map((n) => {
       const a = all.find((x) => x.name === n);
       if (!a) throw new PlumblineError('bad-request', `no defined attribute named '${n}'${all.length ? `; defined: ${all.map((x) => x.name).join(', ')}` : ' (none are defined yet)'}`);
+      if (a.doc.generator.fingerprint !== generator.fingerprint) throw new PlumblineError('bad-request', `'${n}' was defined on images of another generator (${a.doc.generator.name}); define it again on this one`);
       return a;
     });
   }
 
   /** Fits from has/lacks seeds; saves into the project (or keeps for the session) unless refused. */
-  async *define(gen: Generator, projectDir: string | null, p: { name: string; has: number[]; lacks: number[]; psi: number }): AsyncGenerator<{ done: number; total: number; label: string }, { cancelled: false; attribute: DefinedAttributeInfo; refused: string | null }, void> {
+  async *define(gen: Generator, projectDir: string | null, p: { name: string; has: number[]; lacks: number[]; psi: number }): AsyncGenerator<{ done: number; total: number; label: string }, { attribute: DefinedAttributeInfo; refused: string | null }, void> {
     const both = p.has.filter((s) => p.lacks.includes(s));
     if (both.length) throw new PlumblineError('bad-request', `seed(s) ${both.slice(0, 5).join(', ')} are tagged both has and lacks '${p.name}'`);
     const set: TagSet = { name: p.name, kind: 'tags', seeds: [...p.has, ...p.lacks], labels: [...p.has.map(() => 1), ...p.lacks.map(() => 0)], psi: p.psi };
@@ -207,6 +213,6 @@ export class DefinedAttributeStore {
       if (projectDir) file = saveDefinedAttribute(projectDir, doc);
       else this.#session.set(doc.name, new DefinedAttribute(doc, null));
     }
-    return { cancelled: false, attribute: definedAttributeInfo(doc, file), refused };
+    return { attribute: definedAttributeInfo(doc, file), refused };
   }
 }

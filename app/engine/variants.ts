@@ -8,7 +8,7 @@ import { z } from 'zod';
 import { decode } from 'fast-png';
 import { writeFileAtomic } from '../core/atomic-write.ts';
 import { encodePng, encodePngAsync, type RgbaImage } from '../core/image.ts';
-import { applyEdits } from '../core/latent.ts';
+import { applyEdits, directionEdit } from '../core/latent.ts';
 import { PlumblineError } from '../core/errors.ts';
 import { parseJsonFile } from '../core/json-file.ts';
 import { drawText, GLYPH_HEIGHT } from '../core/label-font.ts';
@@ -85,10 +85,7 @@ export async function* renderVariants(gen: Generator, recipe: Recipe, directions
       const codes = new Float32Array(pending.length * per);
       pending.forEach((j, k) => {
         const row = base.slice(j.i * per, (j.i + 1) * per);
-        applyEdits(row, gen.layout, Object.entries(j.s.strengths).map(([name, strength]) => {
-          const d = byName.get(name)!;
-          return { vector: d.vector, layers: d.layers, step: strength * d.sigma };
-        }));
+        applyEdits(row, gen.layout, Object.entries(j.s.strengths).map(([name, strength]) => directionEdit(byName.get(name)!, strength)));
         codes.set(row, k * per);
       });
       const r = await gen.synthesize(codes, pending.length);

@@ -11,7 +11,7 @@ import { existsSync, readFileSync } from 'node:fs';
 import { join } from 'node:path';
 import { DefinedAttribute } from '../../app/engine/defined-attributes.ts';
 import { Generator } from '../../app/engine/generator.ts';
-import { demoCardPath } from '../../app/engine/host.ts';
+import { demoCardPath } from '../../app/engine/workspace.ts';
 import { tempDir, write } from '../helpers/models.ts';
 
 const root = join(import.meta.dirname, '..', '..');

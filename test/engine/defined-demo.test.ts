@@ -9,7 +9,7 @@
 import { test, before, after } from 'node:test';
 import assert from 'node:assert/strict';
 import { join } from 'node:path';
-import { EngineHost, demoCardPath } from '../../app/engine/host.ts';
+import { Workspace, demoCardPath } from '../../app/engine/workspace.ts';
 import { runAudit, type AuditReport } from '../../app/engine/audit/run.ts';
 import type { AuditDirection } from '../../app/core/audit/plan.ts';
 import { DefinedAttribute, defineAttribute } from '../../app/engine/defined-attributes.ts';
@@ -22,9 +22,9 @@ const TAG_SEEDS = 150;
 /** Image-only targets: what a lead auditing from images would name each demo direction's target. */
 const TARGETS: Record<string, string | null> = { crest_size: 'subject_radius', turn: 'orientation', outline_bold: 'outline', glow_surge: 'glow', axis_07: null };
 
-let host: EngineHost;
+let host: Workspace;
 before(async () => {
-  host = new EngineHost({ threads: 1 });
+  host = new Workspace({ threads: 1 });
   await host.openModel(demoCardPath());
 });
 after(async () => host.dispose());
@@ -37,7 +37,7 @@ async function drain(job: AsyncGenerator<unknown, AuditReport, void>): Promise<A
 }
 
 test('the demo from its images alone, with gem, outline and glow defined from derived tags', { timeout: 3_600_000 }, async () => {
-  const gen = host.generator!;
+  const gen = host.requireGenerator();
   // Tags derived from the demo's attribute output (see the header): terciles over 150 seeds.
   const seeds = Array.from({ length: TAG_SEEDS }, (_, i) => i);
   const rendered = await gen.renderSeeds(seeds, PSI, []);

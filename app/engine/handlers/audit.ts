@@ -1,0 +1,27 @@
+// Handler for running an audit over kept directions: the audit pipeline (app/engine/audit/run.ts)
+// as a job; the report is saved into the open project and answered with binary thumbnails.
+import { auditReportFile, auditReportWire } from '../../core/audit/report.ts';
+import { runAudit } from '../audit/run.ts';
+import { driveSteps, type AreaHandlers } from './context.ts';
+
+/** Progress is forwarded every this many batches (the audit runs hundreds), not every batch. */
+const AUDIT_PROGRESS_EVERY = 4;
+
+export const auditHandlers: AreaHandlers<'audit.run'> = {
+  'audit.run': async (p, ctx) => {
+    const { workspace } = ctx;
+    const gen = workspace.requireGenerator();
+    // A direction's target may be overridden for this audit, e.g. by an attribute the lead defined.
+    const directions = p.directions.map((id) => {
+      const d = workspace.direction(id);
+      return p.targets?.[id] ? { ...d, target: p.targets[id] } : d;
+    });
+    const defined = workspace.definedAttributes.pick(workspace.project?.dir ?? null, p.defined ?? [], gen.info);
+    const report = await driveSteps(runAudit(gen, directions, {
+      probes: p.probes, pinnedSeeds: p.pinnedSeeds, psi: p.psi, seed: p.seed, referenceStrength: p.referenceStrength, leakPass: p.leakPass, leakFail: p.leakFail, combinations: p.combinations,
+    }, { defined }), ctx, AUDIT_PROGRESS_EVERY);
+    const savedAs = workspace.project ? workspace.project.saveAudit(auditReportFile(report)) : null;
+    const { report: wire, thumbnails } = auditReportWire(report);
+    return { report: wire as never, thumbnails, savedAs };
+  },
+};
