@@ -27,7 +27,7 @@ async function tag(page: Page, seed: number, which: 'has it' | 'lacks it') {
 }
 
 test('tag seeds, define an attribute (accuracy shown), audit a direction against it', async ({ page }) => {
-  test.setTimeout(600_000);
+  test.setTimeout(1_800_000);
   const errors: string[] = [];
   page.on('pageerror', (e) => errors.push(e.message));
   const projectDir = join(mkdtempSync(join(tmpdir(), 'plumbline-define-')), 'outlines');
@@ -71,7 +71,8 @@ test('tag seeds, define an attribute (accuracy shown), audit a direction against
   await page.getByLabel('Probe count').fill('8');
   await page.screenshot({ path: join(shots, 'define-audit-setup.png') });
   await page.getByRole('button', { name: 'Run audit' }).click();
-  await expect(page.getByTestId('verdict-outline_bold')).toBeVisible({ timeout: 400_000 });
+  // The audit scores every image with the defined attribute too (512 σ samples plus the probes): minutes on a busy machine.
+  await expect(page.getByTestId('verdict-outline_bold')).toBeVisible({ timeout: 1_200_000 });
   await expect(page.getByTestId('accuracy-bold_outline')).toHaveText(/Defined attribute bold_outline: AUC 0\.\d\d/);
   // The direction was judged against the defined attribute, and it still fails: it also moves the backdrop.
   await expect(page.getByTestId('reason-outline_bold')).not.toContainText('no target was named');
