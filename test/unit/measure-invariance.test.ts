@@ -215,3 +215,18 @@ test('no subject separates on a plain or noise-free gradient image: subject meas
   assert.ok(Number.isNaN(a.values[measureIndex('subject_radius')]));
   assert.ok(Math.abs(a.values[measureIndex('background_lightness')] - new Color('srgb', [120 / 255, 130 / 255, 140 / 255]).to('lab-d65').coords[0]!) < 0.02);
 });
+
+test('erosion and dilation by distance thresholds equal the square-element morphology they replace', async () => {
+  // Definition check: eroding by a (2r+1)² square keeps a pixel iff every pixel within chessboard
+  // distance r is set (the outside counts as unset); dilating sets it iff any is.
+  const { chessboardDistance, morph } = await import('../../app/core/scorers/subject.ts');
+  const w = 23;
+  const h = 17;
+  const mask = Uint8Array.from({ length: w * h }, (_, i) => (Math.sin(i * 0.7) + Math.cos(i * 0.13) > 0.2 ? 1 : 0));
+  const inside = chessboardDistance(mask, w, h, 0);
+  const outside = chessboardDistance(mask, w, h, 1);
+  for (const r of [1, 2, 4]) {
+    assert.deepEqual(Array.from(inside, (v) => (v > r ? 1 : 0)), Array.from(morph(mask, w, h, r)), `erode ${r}`);
+    assert.deepEqual(Array.from(outside, (v) => (v <= r ? 1 : 0)), Array.from(morph(mask, w, h, -r)), `dilate ${r}`);
+  }
+});

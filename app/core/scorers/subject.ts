@@ -143,12 +143,47 @@ export function morph(mask: Uint8Array, w: number, h: number, r: number): Uint8A
   return k === 0 ? mask.slice() : pass(pass(mask, true), false);
 }
 
-/** The largest 8-connected component of a binary mask, with its holes filled. */
+/**
+ * Chessboard (8-neighbour) distance from each pixel to the nearest pixel whose mask value is
+ * `other` (two raster passes, Rosenfeld & Pfaltz 1966); pixels with value `other` have distance 0
+ * and, for erosion, the outside of the image counts as `other` === 0.
+ */
+export function chessboardDistance(mask: Uint8Array, w: number, h: number, other: 0 | 1): Uint16Array {
+  const big = 0xffff;
+  const dist = new Uint16Array(w * h);
+  const outsideIsOther = other === 0;
+  for (let p = 0; p < w * h; p++) dist[p] = mask[p] === other ? 0 : big;
+  const at = (x: number, y: number) => (x < 0 || y < 0 || x >= w || y >= h ? (outsideIsOther ? 0 : big) : dist[y * w + x]);
+  for (let y = 0; y < h; y++)
+    for (let x = 0; x < w; x++) {
+      const p = y * w + x;
+      if (!dist[p]) continue;
+      const v = Math.min(at(x - 1, y), at(x - 1, y - 1), at(x, y - 1), at(x + 1, y - 1)) + 1;
+      if (v < dist[p]) dist[p] = v;
+    }
+  for (let y = h - 1; y >= 0; y--)
+    for (let x = w - 1; x >= 0; x--) {
+      const p = y * w + x;
+      if (!dist[p]) continue;
+      const v = Math.min(at(x + 1, y), at(x + 1, y + 1), at(x, y + 1), at(x - 1, y + 1)) + 1;
+      if (v < dist[p]) dist[p] = v;
+    }
+  return dist;
+}
+
+/**
+ * The subject: of the 8-connected components of the thresholded mask, the one with the most
+ * "thick" pixels (all four neighbours set), so a thin frame line or outline ring around the image
+ * never wins over a solid subject; then its holes smaller than itself are filled (an inset of
+ * another colour belongs to the subject; the inside of a frame ring does not).
+ */
 function largestComponentFilled(hard: Uint8Array, w: number, h: number): { solid: Uint8Array; size: number } {
   const n = w * h;
   const label = new Int32Array(n);
   const queue = new Int32Array(n);
+  const set = (x: number, y: number) => x >= 0 && y >= 0 && x < w && y < h && hard[y * w + x] === 1;
   let best = 0;
+  let bestThick = -1;
   let bestSize = 0;
   let next = 0;
   for (let s = 0; s < n; s++) {
@@ -156,12 +191,14 @@ function largestComponentFilled(hard: Uint8Array, w: number, h: number): { solid
     next++;
     let head = 0;
     let tail = 0;
+    let thick = 0;
     queue[tail++] = s;
     label[s] = next;
     while (head < tail) {
       const p = queue[head++];
       const x = p % w;
       const y = (p - x) / w;
+      if (set(x - 1, y) && set(x + 1, y) && set(x, y - 1) && set(x, y + 1)) thick++;
       for (let dy = -1; dy <= 1; dy++)
         for (let dx = -1; dx <= 1; dx++) {
           const xx = x + dx;
@@ -174,37 +211,42 @@ function largestComponentFilled(hard: Uint8Array, w: number, h: number): { solid
           }
         }
     }
-    if (tail > bestSize) {
+    if (thick > bestThick || (thick === bestThick && tail > bestSize)) {
+      bestThick = thick;
       bestSize = tail;
       best = next;
     }
   }
-  // Holes: non-subject pixels not 4-connected to the border.
-  const outside = new Uint8Array(n);
-  let tail = 0;
-  const seed = (p: number) => {
-    if (label[p] !== best && !outside[p]) {
-      outside[p] = 1;
-      queue[tail++] = p;
-    }
-  };
-  if (best) {
-    for (let x = 0; x < w; x++) seed(x), seed((h - 1) * w + x);
-    for (let y = 0; y < h; y++) seed(y * w), seed(y * w + w - 1);
+  const solid = new Uint8Array(n);
+  if (!best) return { solid, size: 0 };
+  // Regions outside the component, each flooded (4-connected); those not touching the border are holes.
+  const region = new Int32Array(n);
+  let size = 0;
+  for (let p = 0; p < n; p++) if (label[p] === best) (solid[p] = 1), size++;
+  const componentSize = size;
+  let r = 0;
+  for (let s = 0; s < n; s++) {
+    if (solid[s] || region[s]) continue;
+    r++;
     let head = 0;
+    let tail = 0;
+    let touches = false;
+    queue[tail++] = s;
+    region[s] = r;
     while (head < tail) {
       const p = queue[head++];
       const x = p % w;
       const y = (p - x) / w;
-      if (x > 0) seed(p - 1);
-      if (x < w - 1) seed(p + 1);
-      if (y > 0) seed(p - w);
-      if (y < h - 1) seed(p + w);
+      if (x === 0 || y === 0 || x === w - 1 || y === h - 1) touches = true;
+      for (const q of [x > 0 ? p - 1 : -1, x < w - 1 ? p + 1 : -1, y > 0 ? p - w : -1, y < h - 1 ? p + w : -1]) {
+        if (q >= 0 && !solid[q] && !region[q]) {
+          region[q] = r;
+          queue[tail++] = q;
+        }
+      }
     }
+    if (!touches && tail < componentSize) for (let i = 0; i < tail; i++) (solid[queue[i]] = 1), size++;
   }
-  const solid = new Uint8Array(n);
-  let size = 0;
-  if (best) for (let p = 0; p < n; p++) if (!outside[p]) (solid[p] = 1), size++;
   return { solid, size };
 }
 
@@ -229,18 +271,23 @@ export function findSubject(lab: LabImage, img: RgbaImage): Subject {
   };
   if (size < Math.max(9, MIN_SUBJECT_SHARE * n)) return none(`no subject separates from the background: no region differs from the border colour by more than ΔE*ab ${SUBJECT_DELTA_E} over at least ${(MIN_SUBJECT_SHARE * 100).toFixed(1)}% of the image`);
   if (size > MAX_SUBJECT_SHARE * n) return none(`no subject separates from the background: the region that differs from the border colour covers ${((100 * size) / n).toFixed(0)}% of the image (a subject on a plain background is assumed)`);
-  const interior = morph(solid, w, h, INTERIOR_ERODE);
-  const core = morph(solid, w, h, EDGE_REACH);
-  const near = morph(solid, w, h, -EDGE_REACH);
-  const outside = morph(solid, w, h, -BACKGROUND_DILATE);
+  // Erosion / dilation by a (2r+1)² square = thresholds of the chessboard distance to the other side.
+  const inDist = chessboardDistance(solid, w, h, 0);
+  const outDist = chessboardDistance(solid, w, h, 1);
+  const interior = Uint8Array.from(inDist, (v) => (v > INTERIOR_ERODE ? 1 : 0));
+  const core = Uint8Array.from(inDist, (v) => (v > EDGE_REACH ? 1 : 0));
+  const near = Uint8Array.from(outDist, (v) => (v <= EDGE_REACH ? 1 : 0));
+  const outside = Uint8Array.from(outDist, (v) => (v <= BACKGROUND_DILATE ? 1 : 0));
   let interiorCount = 0;
   for (let p = 0; p < n; p++) interiorCount += interior[p];
   const d = img.data;
   const channel = (k: number, which: Uint8Array | null) => {
-    const v: number[] = [];
-    if (which) {
-      for (let p = 0; p < n; p++) if (which[p]) v.push(d[p * 4 + k]);
-    } else for (const p of borderIdx) v.push(d[p * 4 + k]);
+    if (!which) return median(borderIdx.map((p) => d[p * 4 + k]));
+    let count = 0;
+    for (let p = 0; p < n; p++) count += which[p];
+    const v = new Float64Array(count);
+    count = 0;
+    for (let p = 0; p < n; p++) if (which[p]) v[count++] = d[p * 4 + k];
     return median(v);
   };
   const fg = [0, 1, 2].map((k) => channel(k, interiorCount >= 5 ? interior : solid));
