@@ -230,3 +230,21 @@ test('erosion and dilation by distance thresholds equal the square-element morph
     assert.deepEqual(Array.from(outside, (v) => (v <= r ? 1 : 0)), Array.from(morph(mask, w, h, -r)), `dilate ${r}`);
   }
 });
+
+test('a vignetted background (brighter centre, darker corners) is background, not subject', () => {
+  // Multiply the whole image by 1 − 0.35·r² (r = distance from the centre in half-widths): the
+  // corners lose 70%, the centre nothing — more than ΔE*ab 12 between border and centre.
+  const plain = renderScene(star);
+  const data = Uint8ClampedArray.from(plain.data);
+  for (let y = 0; y < W; y++)
+    for (let x = 0; x < W; x++) {
+      const r2 = (((x + 0.5) / W) * 2 - 1) ** 2 + (((y + 0.5) / W) * 2 - 1) ** 2;
+      for (let k = 0; k < 3; k++) data[(y * W + x) * 4 + k] = Math.round(plain.data[(y * W + x) * 4 + k] * (1 - 0.35 * r2));
+    }
+  const a = measureImage(plain);
+  const b = measureImage({ width: W, height: W, data });
+  assert.equal(b[measureIndex('shape_fold')], 5);
+  // The star's own pixels darken a little too (by up to ~10%): its size and place barely move.
+  assert.ok(Math.abs(b[measureIndex('subject_radius')] - a[measureIndex('subject_radius')]) < 0.004, `radius ${a[measureIndex('subject_radius')]} → ${b[measureIndex('subject_radius')]}`);
+  assert.ok(Math.abs(b[measureIndex('subject_x')] - a[measureIndex('subject_x')]) < 0.002);
+});

@@ -118,6 +118,55 @@ export function regionMedian(ch: Float64Array, region: Uint8Array, which: number
   return median(v);
 }
 
+/** Refits of the background surface to the pixels it explains. */
+const BACKGROUND_REFITS = 2;
+
+/**
+ * Least-squares quadratic surface c0 + c1·x + c2·y + c3·x² + c4·y² + c5·xy (x, y in [−1, 1])
+ * through one channel at the given pixels, evaluated everywhere; a constant (their median) when
+ * the fit is ill-posed.
+ */
+export function fitSurface(ch: ArrayLike<number>, w: number, h: number, at: ArrayLike<number>): Float64Array {
+  const basis = (x: number, y: number) => [1, x, y, x * x, y * y, x * y];
+  const M = Array.from({ length: 6 }, () => new Float64Array(7));
+  for (let i = 0; i < at.length; i++) {
+    const p = at[i];
+    const x = ((p % w) + 0.5) / w * 2 - 1;
+    const y = (Math.floor(p / w) + 0.5) / h * 2 - 1;
+    const f = basis(x, y);
+    for (let r = 0; r < 6; r++) {
+      for (let c = 0; c < 6; c++) M[r][c] += f[r] * f[c];
+      M[r][6] += f[r] * ch[p];
+    }
+  }
+  // Gaussian elimination with partial pivoting.
+  let ok = true;
+  for (let c = 0; c < 6 && ok; c++) {
+    let piv = c;
+    for (let r = c + 1; r < 6; r++) if (Math.abs(M[r][c]) > Math.abs(M[piv][c])) piv = r;
+    if (!(Math.abs(M[piv][c]) > 1e-9 * at.length)) ok = false;
+    else {
+      [M[c], M[piv]] = [M[piv], M[c]];
+      for (let r = 0; r < 6; r++) {
+        if (r === c) continue;
+        const k = M[r][c] / M[c][c];
+        for (let j = c; j < 7; j++) M[r][j] -= k * M[c][j];
+      }
+    }
+  }
+  const out = new Float64Array(w * h);
+  if (!ok) return out.fill(median(Array.from(at, (p) => ch[p])));
+  const coef = M.map((row, r) => row[6] / row[r]);
+  for (let yy = 0; yy < h; yy++)
+    for (let xx = 0; xx < w; xx++) {
+      const f = basis(((xx + 0.5) / w) * 2 - 1, ((yy + 0.5) / h) * 2 - 1);
+      let v = 0;
+      for (let r = 0; r < 6; r++) v += coef[r] * f[r];
+      out[yy * w + xx] = v;
+    }
+  return out;
+}
+
 /** Binary erosion (r > 0) or dilation (r < 0) with a (2|r|+1)² square, separable; outside counts as 0. */
 export function morph(mask: Uint8Array, w: number, h: number, r: number): Uint8Array {
   const erode = r > 0;
@@ -258,12 +307,26 @@ export function findSubject(lab: LabImage, img: RgbaImage): Subject {
   for (let x = 0; x < w; x++) borderIdx.push(x, (h - 1) * w + x);
   for (let y = 1; y < h - 1; y++) borderIdx.push(y * w, y * w + w - 1);
   const border: [number, number, number] = [median(borderIdx.map((p) => L[p])), median(borderIdx.map((p) => a[p])), median(borderIdx.map((p) => b[p]))];
+  // The background as a smooth surface (quadratic in x, y per CIELAB and sRGB channel): fitted to
+  // the border first, then refitted to the pixels it explains, so a vignette or a gentle gradient
+  // is background rather than subject. A plain background fits as a constant.
+  const rgb = [0, 1, 2].map((k) => Float64Array.from({ length: n }, (_, p) => img.data[p * 4 + k]));
+  const channels = [L, a, b, ...rgb];
+  let fitted = channels.map((ch) => fitSurface(ch, w, h, borderIdx));
   const dE = new Float64Array(n);
   const hard = new Uint8Array(n);
-  for (let p = 0; p < n; p++) {
-    dE[p] = Math.hypot(L[p] - border[0], a[p] - border[1], b[p] - border[2]);
-    hard[p] = dE[p] > SUBJECT_DELTA_E ? 1 : 0;
+  const distances = () => {
+    for (let p = 0; p < n; p++) dE[p] = Math.hypot(L[p] - fitted[0][p], a[p] - fitted[1][p], b[p] - fitted[2][p]);
+  };
+  distances();
+  for (let round = 0; round < BACKGROUND_REFITS; round++) {
+    const quiet: number[] = [];
+    for (let p = 0; p < n; p += 3) if (dE[p] < SUBJECT_DELTA_E / 2) quiet.push(p);
+    if (quiet.length < borderIdx.length) break;
+    fitted = channels.map((ch) => fitSurface(ch, w, h, quiet));
+    distances();
   }
+  for (let p = 0; p < n; p++) hard[p] = dE[p] > SUBJECT_DELTA_E ? 1 : 0;
   const { solid, size } = largestComponentFilled(hard, w, h);
   const none = (note: string): Subject => {
     const region = new Uint8Array(n).fill(REGION_BACKGROUND);
@@ -291,8 +354,17 @@ export function findSubject(lab: LabImage, img: RgbaImage): Subject {
     return median(v);
   };
   const fg = [0, 1, 2].map((k) => channel(k, interiorCount >= 5 ? interior : solid));
-  const bgRgb = [0, 1, 2].map((k) => channel(k, null));
-  const contrast = Math.hypot(fg[0] - bgRgb[0], fg[1] - bgRgb[1], fg[2] - bgRgb[2]);
+  // The interior's distance from the background under it (the surface at the interior pixels).
+  const sel = interiorCount >= 5 ? interior : solid;
+  const bgUnder = [3, 4, 5].map((c) => {
+    let count = 0;
+    for (let p = 0; p < n; p++) count += sel[p];
+    const v = new Float64Array(count);
+    count = 0;
+    for (let p = 0; p < n; p++) if (sel[p]) v[count++] = fitted[c][p];
+    return median(v);
+  });
+  const contrast = Math.hypot(fg[0] - bgUnder[0], fg[1] - bgUnder[1], fg[2] - bgUnder[2]);
   const mask = new Float64Array(n);
   const region = new Uint8Array(n);
   for (let p = 0; p < n; p++) {
@@ -300,7 +372,7 @@ export function findSubject(lab: LabImage, img: RgbaImage): Subject {
     // background relative to the interior's (exact for coverage mixing in sRGB; clamped at 1 for
     // an outline or inset further from the background than the interior).
     if (core[p]) mask[p] = 1;
-    else if (near[p] && contrast > 0) mask[p] = Math.min(1, Math.hypot(d[p * 4] - bgRgb[0], d[p * 4 + 1] - bgRgb[1], d[p * 4 + 2] - bgRgb[2]) / contrast);
+    else if (near[p] && contrast > 0) mask[p] = Math.min(1, Math.hypot(d[p * 4] - fitted[3][p], d[p * 4 + 1] - fitted[4][p], d[p * 4 + 2] - fitted[5][p]) / contrast);
     region[p] = interior[p] ? REGION_INTERIOR : !outside[p] ? REGION_BACKGROUND : REGION_EDGE;
   }
   return { found: true, note: '', mask, region, border, contrast };
