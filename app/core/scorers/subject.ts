@@ -1,12 +1,14 @@
 // Subject/background separation for the built-in image measures. Assumes what an emblem, icon or
-// character sheet usually is: one subject on a plain background that reaches the image border.
-// The background colour is the median CIELAB colour of the one-pixel border; a pixel belongs to
-// the subject when its ΔE*ab from that colour exceeds a stated threshold; only the largest
-// 8-connected component is kept and holes inside it are filled (a gem or an inset of another
-// colour is part of the subject). The soft mask gives partial weight to anti-aliased edge pixels:
-// their distance from the background colour in 8-bit sRGB relative to the interior's, which is
-// exactly the coverage when a renderer mixes colours by coverage in sRGB (the common case), so
-// area and centroid stay smooth under sub-pixel changes and a blur conserves the area.
+// character sheet usually is: one subject on a plain or smoothly shaded background that reaches
+// the image border. The background is a smooth (quadratic) surface per channel fitted to the
+// border and refitted to the pixels it explains; a pixel belongs to the subject when its ΔE*ab
+// from the background under it exceeds a stated threshold; of the 8-connected components, the one
+// with the most solid pixels is kept and its holes smaller than itself are filled (a gem or an
+// inset of another colour is part of the subject). The soft mask gives partial weight to
+// anti-aliased edge pixels: their distance from the background in 8-bit sRGB relative to the
+// interior's, which is exactly the coverage when a renderer mixes colours by coverage in sRGB
+// (the common case), so area and centroid stay smooth under sub-pixel changes and a blur
+// conserves the area.
 import { SRGB8_TO_LINEAR, linearRgbToLab } from '../color.ts';
 import type { RgbaImage } from '../image.ts';
 
