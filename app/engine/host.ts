@@ -404,8 +404,8 @@ export class EngineHost {
       if (step.done) {
         const report = step.value;
         const savedAs = this.#project ? this.#project.saveAudit(auditReportFile(report)) : null;
-        const { report: wire, thumbnails } = auditReportWire(report);
-        return { cancelled: false, report: wire as never, thumbnails, savedAs };
+        const { report: wire, thumbnails, changeMaps } = auditReportWire(report);
+        return { cancelled: false, report: wire as never, thumbnails, changeMaps, savedAs };
       }
       // Report progress about twice a second's worth of batches, not every batch.
       if (step.value.done - last >= 4 || step.value.done === step.value.total) {

@@ -149,7 +149,7 @@ export const auditWireSchema = z.object({
     name: z.string(),
     target: z.string(),
     targetChosen: z.boolean(),
-    verdict: z.enum(['pass', 'review', 'fail']),
+    verdict: z.enum(['pass', 'review', 'fail', 'no-measure']),
     reason: z.string(),
     targetEffect: interval,
     dependency: z.record(z.string(), interval),
@@ -187,7 +187,7 @@ export const resultSchemas = {
   'directions.keep': directionInfoSchema,
   'audit.run': z.union([
     z.object({ cancelled: z.literal(true) }),
-    z.object({ cancelled: z.literal(false), report: auditWireSchema, thumbnails: z.array(z.object({ direction: z.string(), seed, strength: z.number(), attribute: z.string(), leakage: z.number(), before: bytes, after: bytes })), savedAs: z.string().nullable() }),
+    z.object({ cancelled: z.literal(false), report: auditWireSchema, thumbnails: z.array(z.object({ direction: z.string(), seed, strength: z.number(), attribute: z.string(), leakage: z.number(), before: bytes, after: bytes })), changeMaps: z.array(z.object({ direction: z.string(), png: bytes })).default([]), savedAs: z.string().nullable() }),
   ]),
   'lab.repair': z.union([z.object({ cancelled: z.literal(true) }), z.object({ cancelled: z.literal(false), direction: directionInfoSchema, boundaries: z.array(z.object({ attribute: z.string(), accuracy: z.number(), role: z.string() })) })]),
   'project.open': z.object({ path: z.string(), name: z.string(), generatorFingerprint: z.string().nullable(), generatorMatches: z.boolean(), directions: z.array(directionInfoSchema), audits: z.array(z.string()), ui: z.object({ seed, psi, strengths: z.record(z.string(), z.number()), pinned: z.array(seed), tags: z.record(z.string(), z.enum(['has', 'lacks'])) }).nullable() }),
