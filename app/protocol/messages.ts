@@ -111,7 +111,7 @@ export const auditWireSchema = z.object({
     name: z.string(),
     target: z.string(),
     targetChosen: z.boolean(),
-    verdict: z.enum(['pass', 'review', 'fail']),
+    verdict: z.enum(['pass', 'review', 'fail', 'no-measure']),
     reason: z.string(),
     targetEffect: interval,
     dependency: z.record(z.string(), interval),
@@ -193,7 +193,7 @@ export const methods = {
     defined: z.array(z.string().min(1)).max(32).optional(),
     /** Target attribute per direction id, overriding the direction's own (e.g. a defined attribute). */
     targets: z.record(z.string(), z.string().min(1)).optional(),
-  }), z.object({ report: auditWireSchema, thumbnails: z.array(thumbnailSchema), savedAs: z.string().nullable() })),
+  }), z.object({ report: auditWireSchema, thumbnails: z.array(thumbnailSchema), changeMaps: z.array(z.object({ direction: z.string(), png: bytes })).default([]), savedAs: z.string().nullable() })),
   /** Fits an attribute from seeds tagged has / lacks; saved into the open project unless refused below the accuracy floor. */
   'attributes.define': declare('job', z.object({
     name: z.string().regex(/^[A-Za-z][A-Za-z0-9_.-]{0,63}$/, 'a name of letters, digits, _ . - starting with a letter'),

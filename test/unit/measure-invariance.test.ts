@@ -215,3 +215,36 @@ test('no subject separates on a plain or noise-free gradient image: subject meas
   assert.ok(Number.isNaN(a.values[measureIndex('subject_radius')]));
   assert.ok(Math.abs(a.values[measureIndex('background_lightness')] - new Color('srgb', [120 / 255, 130 / 255, 140 / 255]).to('lab-d65').coords[0]!) < 0.02);
 });
+
+test('erosion and dilation by distance thresholds equal the square-element morphology they replace', async () => {
+  // Definition check: eroding by a (2r+1)² square keeps a pixel iff every pixel within chessboard
+  // distance r is set (the outside counts as unset); dilating sets it iff any is.
+  const { chessboardDistance, morph } = await import('../../app/core/scorers/subject.ts');
+  const w = 23;
+  const h = 17;
+  const mask = Uint8Array.from({ length: w * h }, (_, i) => (Math.sin(i * 0.7) + Math.cos(i * 0.13) > 0.2 ? 1 : 0));
+  const inside = chessboardDistance(mask, w, h, 0);
+  const outside = chessboardDistance(mask, w, h, 1);
+  for (const r of [1, 2, 4]) {
+    assert.deepEqual(Array.from(inside, (v) => (v > r ? 1 : 0)), Array.from(morph(mask, w, h, r)), `erode ${r}`);
+    assert.deepEqual(Array.from(outside, (v) => (v <= r ? 1 : 0)), Array.from(morph(mask, w, h, -r)), `dilate ${r}`);
+  }
+});
+
+test('a vignetted background (brighter centre, darker corners) is background, not subject', () => {
+  // Multiply the whole image by 1 − 0.35·r² (r = distance from the centre in half-widths): the
+  // corners lose 70%, the centre nothing — more than ΔE*ab 12 between border and centre.
+  const plain = renderScene(star);
+  const data = Uint8ClampedArray.from(plain.data);
+  for (let y = 0; y < W; y++)
+    for (let x = 0; x < W; x++) {
+      const r2 = (((x + 0.5) / W) * 2 - 1) ** 2 + (((y + 0.5) / W) * 2 - 1) ** 2;
+      for (let k = 0; k < 3; k++) data[(y * W + x) * 4 + k] = Math.round(plain.data[(y * W + x) * 4 + k] * (1 - 0.35 * r2));
+    }
+  const a = measureImage(plain);
+  const b = measureImage({ width: W, height: W, data });
+  assert.equal(b[measureIndex('shape_fold')], 5);
+  // The star's own pixels darken a little too (by up to ~10%): its size and place barely move.
+  assert.ok(Math.abs(b[measureIndex('subject_radius')] - a[measureIndex('subject_radius')]) < 0.004, `radius ${a[measureIndex('subject_radius')]} → ${b[measureIndex('subject_radius')]}`);
+  assert.ok(Math.abs(b[measureIndex('subject_x')] - a[measureIndex('subject_x')]) < 0.002);
+});

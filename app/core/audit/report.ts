@@ -4,7 +4,9 @@
 // protocol as separate binary thumbnails (auditReportWire).
 import { AUDIT_CAUTION, MIN_USEFUL_PROBES, type AuditSettings } from './settings.ts';
 import type { AuditPlan } from './plan.ts';
-import { significant, type CombinationStatistics, type DirectionStatistics, type Interval } from './statistics.ts';
+import { significant, type CombinationStatistics, type DirectionStatistics, type Interval, type WithinInstrument } from './statistics.ts';
+import type { MeasureCalibration } from './calibration.ts';
+import type { Consistency, RegionShares } from './change-map.ts';
 import type { CombinationVerdict, DirectionVerdict } from './verdict.ts';
 
 export type { Interval } from './statistics.ts';
@@ -36,6 +38,33 @@ export interface DirectionReport {
   leakageCurve: (number | null)[];
   pathLengthCurve: { strengths: number[]; mean: number[]; low: number[]; high: number[] };
   worstProbes: WorstProbe[];
+  /** Apparent leaks no larger than the instrument's noise floor or cross-talk: not counted as leaks. */
+  withinInstrument: WithinInstrument[];
+  /** Per attribute, probes left out at +reference because it was not measurable there. */
+  notMeasurable: Record<string, number>;
+  /** Where the direction acts (METHODS §9.3), or null when no probe images were kept. */
+  changeMap: ChangeMapReport | null;
+  /** How consistently it moves its target across probes, at +reference. */
+  consistency: Consistency;
+}
+
+export interface ChangeMapReport {
+  /** PNG of the mean per-pixel CIEDE2000 at +reference (black 0 … white at fullScale) */
+  png: Uint8Array;
+  width: number;
+  height: number;
+  probes: number;
+  fullScale: number;
+  meanDeltaE: number;
+  shares: RegionShares;
+}
+
+export interface InstrumentCalibrationReport {
+  probes: number;
+  operations: { invisible: string[]; exact: string[] };
+  measures: Record<string, MeasureCalibration>;
+  floorMultiple: number;
+  crossTalkMultiple: number;
 }
 
 export interface CombinationReport {
@@ -74,13 +103,18 @@ export interface AuditReport {
   combinations: CombinationReport[];
   /** MIG and DCI of the audited set against the generator's declared factors, when it declares any. */
   groundTruth: GroundTruthMetrics | null;
+  /** The instrument's own noise floor and cross-talk per measure on this probe set (null when nothing could be calibrated). */
+  calibration: InstrumentCalibrationReport | null;
+  /** Probes on which no subject separated from the background (built-in measures only). */
+  noSubject: { probes: number; of: number } | null;
 }
 
 /** One direction's report from its statistics, verdict and rendered worst probes. */
-export function directionReport(name: string, stats: DirectionStatistics, judged: { verdict: DirectionVerdict; reason: string }, plan: Pick<AuditPlan, 'distance' | 'epsilon' | 'exponent'>, worstProbes: WorstProbe[]): DirectionReport {
+export function directionReport(name: string, stats: DirectionStatistics, judged: { verdict: DirectionVerdict; reason: string }, plan: Pick<AuditPlan, 'distance' | 'epsilon' | 'exponent'>, worstProbes: WorstProbe[], extra: { changeMap?: ChangeMapReport | null; consistency?: Consistency; declaredTarget?: string | null } = {}): DirectionReport {
   return {
     name,
-    target: stats.target,
+    // A target with no measure keeps its declared name (the verdict says it has no measure).
+    target: judged.verdict === 'no-measure' && extra.declaredTarget ? extra.declaredTarget : stats.target,
     targetChosen: stats.targetChosen,
     verdict: judged.verdict,
     reason: judged.reason,
@@ -94,6 +128,10 @@ export function directionReport(name: string, stats: DirectionStatistics, judged
     leakageCurve: stats.leakageCurve,
     pathLengthCurve: stats.pathLengthCurve,
     worstProbes,
+    withinInstrument: stats.withinInstrument ?? [],
+    notMeasurable: stats.notMeasurable ?? {},
+    changeMap: extra.changeMap ?? null,
+    consistency: extra.consistency ?? { probes: 0, median: NaN, mean: NaN, coefficientOfVariation: NaN, flipShare: NaN },
   };
 }
 
@@ -112,6 +150,8 @@ export function assembleReport(x: {
   directions: DirectionReport[];
   combinations: CombinationReport[];
   groundTruth: GroundTruthMetrics | null;
+  calibration?: InstrumentCalibrationReport | null;
+  noSubject?: { probes: number; of: number } | null;
   createdAt?: Date;
 }): AuditReport {
   const { plan } = x;
@@ -130,6 +170,8 @@ export function assembleReport(x: {
     directions: x.directions,
     combinations: x.combinations,
     groundTruth: x.groundTruth,
+    calibration: x.calibration ?? null,
+    noSubject: x.noSubject ?? null,
   };
 }
 
@@ -139,12 +181,13 @@ export const tooFewProbes = (count: number) => count < MIN_USEFUL_PROBES;
 /** The report as a JSON file holds it: thumbnails inline as PNG data URIs so the file stands alone. */
 export function auditReportFile(report: AuditReport) {
   const dataUri = (png: Uint8Array) => `data:image/png;base64,${Buffer.from(png).toString('base64')}`;
-  return { ...report, directions: report.directions.map((d) => ({ ...d, worstProbes: d.worstProbes.map((w) => ({ ...w, before: dataUri(w.before), after: dataUri(w.after) })) })) };
+  return { ...report, directions: report.directions.map((d) => ({ ...d, changeMap: d.changeMap && { ...d.changeMap, png: dataUri(d.changeMap.png) }, worstProbes: d.worstProbes.map((w) => ({ ...w, before: dataUri(w.before), after: dataUri(w.after) })) })) };
 }
 
 /** The report as the protocol carries it: worst probes without images, the images as a separate binary list. */
 export function auditReportWire(report: AuditReport) {
   const thumbnails = report.directions.flatMap((d) => d.worstProbes.map((w) => ({ direction: d.name, ...w })));
-  const wire = { ...report, directions: report.directions.map((d) => ({ ...d, worstProbes: d.worstProbes.map(({ before: _before, after: _after, ...rest }) => rest) })) };
-  return { report: wire, thumbnails };
+  const changeMaps = report.directions.flatMap((d) => (d.changeMap ? [{ direction: d.name, png: d.changeMap.png }] : []));
+  const wire = { ...report, directions: report.directions.map((d) => ({ ...d, changeMap: d.changeMap && (({ png: _png, ...rest }) => rest)(d.changeMap), worstProbes: d.worstProbes.map(({ before: _before, after: _after, ...rest }) => rest) })) };
+  return { report: wire, thumbnails, changeMaps };
 }

@@ -67,12 +67,46 @@ export interface DirectionStatistics {
   pathLengthCurve: { strengths: number[]; mean: number[]; low: number[]; high: number[] };
   /** The probes that leak most at the worse reference sign, worst first. */
   worstProbes: WorstProbeChoice[];
+  /** Per attribute, probes left out at +reference because the measure was not measurable there (only those with any). */
+  notMeasurable: Record<string, number>;
+  /** Apparent leaks no larger than the instrument's floor or cross-talk, largest first: not counted. */
+  withinInstrument: WithinInstrument[];
+}
+
+/**
+ * What the instrument shows by itself, per attribute (issue 9 part 3): its noise floor in σ and
+ * the cross-talk of the exact operation that owns this direction's target (a ratio to the target
+ * change; 0 when no operation owns it). A change within FLOOR_MULTIPLE × floor, or a leak ratio
+ * within CROSSTALK_MULTIPLE × cross-talk, is not called a leak.
+ */
+export interface InstrumentAllowance {
+  floor: number[];
+  crossTalk: (target: string) => number[];
+  floorMultiple: number;
+  crossTalkMultiple: number;
+}
+
+export interface WithinInstrument {
+  attribute: string;
+  /** the apparent leak: mean |Δ|/σ of this attribute over that of the target, at the worse reference sign */
+  leak: number;
+  /** mean |Δ|/σ of this attribute at that strength */
+  change: number;
+  noiseFloor: number;
+  crossTalk: number;
+  /** set when the change is explained through cross-talk by a real leak into this attribute */
+  via?: string;
 }
 
 /** Target effects below this (in σ of the target) count as not moving it. */
 const NO_EFFECT = 1e-9;
 
-export function directionStatistics(m: DirectionMeasurements, plan: StatisticsGrid, attributes: string[], seeds: number[], declaredTarget: string | null, bootstrap: ProbeBootstrap): DirectionStatistics {
+/**
+ * `leak[j] === false` marks an attribute reported but never taken as the leak (a composite or
+ * descriptor the user did not pick). A declared target that is not among the attributes is
+ * treated as undeclared here; the verdict says it has no measure.
+ */
+export function directionStatistics(m: DirectionMeasurements, plan: StatisticsGrid, attributes: string[], seeds: number[], declaredTarget: string | null, bootstrap: ProbeBootstrap, leak?: boolean[], instrument?: InstrumentAllowance): DirectionStatistics {
   const { grid, pathLengthGrid: pplGrid, reference: ref, settings } = plan;
   const n = seeds.length;
   const K = attributes.length;
@@ -114,8 +148,39 @@ export function directionStatistics(m: DirectionMeasurements, plan: StatisticsGr
   const refIndex = grid.indexOf(ref);
   let target = declaredTarget ? attributes.indexOf(declaredTarget) : -1;
   const targetChosen = target < 0;
-  if (targetChosen) target = absolute[refIndex].reduce((best, mm, j) => (mm.mean > absolute[refIndex][best].mean ? j : best), 0);
-  const others = attributes.map((_, j) => j).filter((j) => j !== target);
+  const candidate = (j: number) => leak?.[j] !== false;
+  if (targetChosen) target = absolute[refIndex].reduce((best, mm, j) => (candidate(j) && (!candidate(best) || mm.mean > absolute[refIndex][best].mean) ? j : best), 0);
+  const candidates = attributes.map((_, j) => j).filter((j) => j !== target && candidate(j));
+  // Leaks no larger than the instrument shows by itself are set aside (and reported as such).
+  const withinInstrument: WithinInstrument[] = [];
+  const ratio: number[] = [];
+  const counted0 = () => others.slice();
+  const others = candidates.filter((j) => {
+    if (!instrument) return true;
+    const allowance = instrument.crossTalk(attributes[target]);
+    const side = [refIndex, grid.indexOf(-ref)].map((gi) => ({ dep: absolute[gi][j].mean, t: absolute[gi][target].mean })).sort((a, b) => b.dep / b.t - a.dep / a.t)[0];
+    const leakRatio = side.t > NO_EFFECT ? side.dep / side.t : Infinity;
+    const inside = !(side.dep > instrument.floorMultiple * instrument.floor[j]) || !(leakRatio > instrument.crossTalkMultiple * allowance[j]);
+    if (inside && side.dep > 0) withinInstrument.push({ attribute: attributes[j], leak: significant(leakRatio), change: significant(side.dep), noiseFloor: significant(instrument.floor[j]), crossTalk: significant(allowance[j]) });
+    ratio[j] = leakRatio;
+    return !inside;
+  });
+  // A change explained by a real leak elsewhere through the instrument's own cross-talk (a
+  // background lightness leak re-quantises the background's chroma) is not a second leak.
+  const explained = new Set<number>();
+  if (instrument)
+    for (const j of counted0())
+      for (const i of counted0()) {
+        if (i === j) continue;
+        const via = instrument.crossTalk(attributes[i]);
+        if (!(via[i] === 0 || via[i] === undefined) || !(via[j] > 0)) continue;
+        if (ratio[j] <= instrument.crossTalkMultiple * ratio[i] * via[j]) {
+          explained.add(j);
+          withinInstrument.push({ attribute: attributes[j], leak: significant(ratio[j]), change: NaN, noiseFloor: significant(instrument.floor[j]), crossTalk: significant(ratio[i] * via[j]), via: attributes[i] });
+          break;
+        }
+      }
+  if (explained.size) others.splice(0, others.length, ...others.filter((j) => !explained.has(j)));
 
   // Leakage along the grid (point estimates from the streaming means).
   const leakageCurve = grid.map((s, gi) => {
@@ -166,8 +231,8 @@ export function directionStatistics(m: DirectionMeasurements, plan: StatisticsGr
   const minus = leakStat(1);
   const worseSign = plus.value >= minus.value ? 0 : 1;
   const leakInterval = worseSign === 0 ? plus : minus;
-  const sum = (col: Float64Array) => col.reduce((x, y) => x + y, 0);
-  const leakAttr = others.reduce((b, j) => (sum(refAbs[worseSign][j]) > sum(refAbs[worseSign][b]) ? j : b), others[0] ?? target);
+  const sum = (col: Float64Array) => col.reduce((x, y) => (Number.isNaN(y) ? x : x + y), 0) / Math.max(1, col.reduce((c, y) => c + (Number.isNaN(y) ? 0 : 1), 0));
+  const leakAttr = others.reduce((b, j) => (sum(refAbs[worseSign][j]) > sum(refAbs[worseSign][b]) ? j : b), others[0] ?? -1);
   const dependency: Record<string, Interval> = {};
   for (let j = 0; j < K; j++) dependency[attributes[j]] = roundInterval(bootstrap.interval([refAbs[worseSign][j]], (mns) => mns[0]));
   const targetEffect = roundInterval(bootstrap.interval([refSigned[target]], (mns) => mns[0]));
@@ -175,11 +240,14 @@ export function directionStatistics(m: DirectionMeasurements, plan: StatisticsGr
 
   // Worst probes at the worse reference sign: largest leak relative to the target change.
   const worst: WorstProbeChoice[] = [];
-  for (let p = 0; p < n; p++) {
-    const t = Math.max(refAbs[worseSign][target][p], 1e-9);
+  for (let p = 0; p < n && others.length; p++) {
+    const tp = refAbs[worseSign][target][p];
+    if (Number.isNaN(tp)) continue;
+    const t = Math.max(tp, 1e-9);
     let bj = others[0] ?? target;
-    for (const j of others) if (refAbs[worseSign][j][p] > refAbs[worseSign][bj][p]) bj = j;
-    worst.push({ seed: seeds[p], strength: worseSign === 0 ? ref : -ref, attribute: attributes[bj], leakage: refAbs[worseSign][bj][p] / t, index: p });
+    for (const j of others) if (refAbs[worseSign][j][p] > refAbs[worseSign][bj][p] || Number.isNaN(refAbs[worseSign][bj][p])) bj = j;
+    const l = refAbs[worseSign][bj][p] / t;
+    worst.push({ seed: seeds[p], strength: worseSign === 0 ? ref : -ref, attribute: attributes[bj], leakage: Number.isNaN(l) ? 0 : l, index: p });
   }
   worst.sort((a, b) => b.leakage - a.leakage);
 
@@ -203,7 +271,7 @@ export function directionStatistics(m: DirectionMeasurements, plan: StatisticsGr
     targetChosen,
     targetEffect,
     dependency,
-    leakage: { ...roundInterval(leakInterval), strength: worseSign === 0 ? ref : -ref, attribute: attributes[leakAttr] },
+    leakage: { ...roundInterval(leakInterval), strength: worseSign === 0 ? ref : -ref, attribute: leakAttr >= 0 ? attributes[leakAttr] : 'none' },
     pathLength,
     safeRange,
     breaksAt,
@@ -214,6 +282,8 @@ export function directionStatistics(m: DirectionMeasurements, plan: StatisticsGr
     leakageCurve: leakageCurve.map((l) => (l === null ? null : Number.isFinite(l) ? significant(l) : null)),
     pathLengthCurve: { strengths: pplGrid, mean: ppl.map((mm) => significant(mm.mean)), low: ppl.map((mm) => significant(mm.interval()[0])), high: ppl.map((mm) => significant(mm.interval()[1])) },
     worstProbes: worst.slice(0, settings.worstProbes),
+    withinInstrument: withinInstrument.sort((a, b) => b.leak - a.leak),
+    notMeasurable: Object.fromEntries(attributes.map((a, j) => [a, refRows[j].reduce((c, v) => c + (Number.isNaN(v) ? 1 : 0), 0)]).filter(([, c]) => (c as number) > 0)),
   };
 }
 
@@ -230,7 +300,10 @@ export function combinationStatistics(m: PairMeasurements, attributes: string[],
   const probes = m.imageInteraction.length;
   const bootstrap = new ProbeBootstrap(probes, resamples, seed + 1);
   let worstJ = 0;
-  const means = m.attributeChange.map((c) => c.reduce((x, y) => x + y, 0) / probes);
+  const means = m.attributeChange.map((c) => {
+    const ok = c.filter((v) => !Number.isNaN(v));
+    return ok.length ? ok.reduce((x, y) => x + y, 0) / ok.length : 0;
+  });
   means.forEach((v, j) => v > means[worstJ] && (worstJ = j));
   return {
     attribute: attributes[worstJ],

@@ -4,7 +4,8 @@
 import type { AuditSettings } from './settings.ts';
 import type { CombinationStatistics, DirectionStatistics } from './statistics.ts';
 
-export type DirectionVerdict = 'pass' | 'review' | 'fail';
+/** 'no-measure': the direction's target has no measure in this audit, so nothing can be judged. */
+export type DirectionVerdict = 'pass' | 'review' | 'fail' | 'no-measure';
 export type CombinationVerdict = 'additive' | 'interacts';
 
 /** A target effect smaller than this (in σ of the target, at the reference strength) means the direction does not move its target. */
@@ -12,8 +13,12 @@ const MIN_TARGET_EFFECT = 0.05;
 /** Non-additivity below this (in σ of the attribute) counts as additive. */
 export const ADDITIVE_LIMIT = 0.15;
 
-export function judgeDirection(stats: DirectionStatistics, x: { reference: number; settings: Pick<AuditSettings, 'leakPass' | 'leakFail'>; fewProbes: boolean; pathLengthGrid: number[] }): { verdict: DirectionVerdict; reason: string } {
+export function judgeDirection(stats: DirectionStatistics, x: { reference: number; settings: Pick<AuditSettings, 'leakPass' | 'leakFail'>; fewProbes: boolean; pathLengthGrid: number[]; unmeasuredTarget?: string | null }): { verdict: DirectionVerdict; reason: string } {
   const { leakage: L } = stats;
+  if (x.unmeasuredTarget) {
+    // Judging it on whichever measure moved most would answer a question nobody asked.
+    return { verdict: 'no-measure', reason: `no measure for its target ${x.unmeasuredTarget} — define one (no card attribute, built-in measure, defined attribute or scorer is called ${x.unmeasuredTarget}); of the audited measures it moves ${stats.target} most (${Math.abs(stats.targetEffect.value).toFixed(2)} σ at ${formatStrength(x.reference)})` };
+  }
   const { settings: S, reference: ref } = x;
   const parts: string[] = [];
   const at = `at strength ${formatStrength(L.strength)}`;
@@ -28,7 +33,7 @@ export function judgeDirection(stats: DirectionStatistics, x: { reference: numbe
     parts.push(leakText);
   } else if (L.value < S.leakPass && covers && L.high < S.leakFail) {
     verdict = 'pass';
-    parts.push(`clean within ±${ref}: largest leak ${L.value.toFixed(2)} (${L.attribute}) of the target effect`);
+    parts.push(L.attribute === 'none' ? `clean within ±${ref}: no attribute moves beyond the instrument's floor and cross-talk` : `clean within ±${ref}: largest leak ${L.value.toFixed(2)} (${L.attribute}) of the target effect`);
   } else {
     verdict = 'review';
     parts.push(L.value >= S.leakPass ? leakText : `largest leak ${L.value.toFixed(2)} (${L.attribute}) but the interval reaches ${L.high.toFixed(2)}`);
@@ -39,6 +44,10 @@ export function judgeDirection(stats: DirectionStatistics, x: { reference: numbe
     if (verdict === 'pass') verdict = 'review';
   }
   if (!covers) parts.push(`safe range ${formatStrength(stats.safeRange[0])} to ${formatStrength(stats.safeRange[1])}`);
+  if (stats.withinInstrument?.length) {
+    const shown = stats.withinInstrument.slice(0, 3).map((w) => `${w.attribute} ${w.leak.toFixed(2)}`).join(', ');
+    parts.push(`not called leaks, being within what the instrument shows by itself (its noise floor or cross-talk under exact transforms): ${shown}${stats.withinInstrument.length > 3 ? ` and ${stats.withinInstrument.length - 3} more` : ''}`);
+  }
   if (stats.targetChosen) parts.push(`no target was named; took ${stats.target}, the attribute it moves most`);
   if (x.fewProbes && verdict === 'pass') {
     verdict = 'review';

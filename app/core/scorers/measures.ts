@@ -229,12 +229,19 @@ export function analyseImage(img: RgbaImage): ImageAnalysis {
   set('subject_x', (mo.cx + 0.5) / w);
   set('subject_y', (mo.cy + 0.5) / h);
   set('subject_radius', Math.sqrt(mo.m00 / Math.PI) / Math.sqrt(w * h));
-  const root = Math.sqrt(4 * mo.mu11 * mo.mu11 + (mo.mu20 - mo.mu02) ** 2);
-  const lp = mo.mu20 + mo.mu02 + root;
-  const lm = mo.mu20 + mo.mu02 - root;
+  // Shape is read from the mask re-sharpened to a one-pixel ramp about its half level: a soft
+  // edge of fixed width in pixels would otherwise make a small subject look rounder than the same
+  // subject drawn larger (shape would answer size), and a blur would change shape.
+  const edge = edgeWidth(subject.mask, w, h);
+  const gain = Number.isFinite(edge) ? Math.max(1, edge) : 1;
+  const shapeMask = gain > 1 ? subject.mask.map((m) => Math.min(1, Math.max(0, 0.5 + (m - 0.5) * gain))) : subject.mask;
+  const so = gain > 1 ? imageMoments(shapeMask, w, h) : mo;
+  const root = Math.sqrt(4 * so.mu11 * so.mu11 + (so.mu20 - so.mu02) ** 2);
+  const lp = so.mu20 + so.mu02 + root;
+  const lm = so.mu20 + so.mu02 - root;
   set('shape_elongation', lp > 0 ? Math.max(0, 1 - lm / lp) : 0);
-  set('shape_roundness', (mo.m00 * mo.m00) / (2 * Math.PI * (mo.mu20 + mo.mu02)));
-  const harmonics = angularHarmonics(subject.mask, w, h, mo.cx, mo.cy);
+  set('shape_roundness', (so.m00 * so.m00) / (2 * Math.PI * (so.mu20 + so.mu02)));
+  const harmonics = angularHarmonics(shapeMask, w, h, so.cx, so.cy);
   let k = 0;
   for (let j = 1; j <= MAX_HARMONIC; j++) if (harmonics.strength[j] > (k ? harmonics.strength[k] : 0)) k = j;
   const strength = k ? harmonics.strength[k] : 0;
@@ -252,8 +259,8 @@ export function analyseImage(img: RgbaImage): ImageAnalysis {
   set('subject_hue', hueOf(sA, sB));
 
   set('subject_detail', interiorGradient(lab, subject, w, h) / Math.sqrt(mo.m00));
-  set('edge_width', edgeWidth(subject.mask, w, h));
-  set('symmetry', mirrorSymmetry(lab, subject.mask, w, h, mo.cx, mo.cy));
+  set('edge_width', edge);
+  set('symmetry', mirrorSymmetry(lab, shapeMask, w, h, so.cx, so.cy));
   return { values, subject, lab };
 }
 

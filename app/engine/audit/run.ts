@@ -16,9 +16,26 @@ import type { DefinedAttribute } from '../defined-attributes.ts';
 import { SsimDistanceModel } from '../distance-model.ts';
 import { groundTruthMetrics } from '../lab.ts';
 import { measureAttributeSpread, sampleProbes } from './probes.ts';
+import { calibrateInstrument } from './calibrate.ts';
+import { CROSSTALK_MULTIPLE, FLOOR_MULTIPLE, owningOperation } from '../../core/audit/calibration.ts';
+import { CHANGE_MAP_FULL_SCALE, changeMapImage, consistencyAcrossProbes } from '../../core/audit/change-map.ts';
+import { significant, type InstrumentAllowance } from '../../core/audit/statistics.ts';
+import { encodePng } from '../../core/image.ts';
+import type { AttributeSpec } from '../attributes.ts';
 import { measureDirection, measurePair, renderWorstProbes, type DirectionRun, type MeasureContext } from './measure.ts';
 
 export type { AuditDirection, AuditProgress } from '../../core/audit/plan.ts';
+
+/** Probes on which no subject separated (every position measure NaN), when the built-in measures are audited. */
+function countNoSubject(specs: AttributeSpec[], baseScores: Float64Array): { probes: number; of: number } | null {
+  const j = specs.findIndex((s) => s.source === 'image' && s.name === 'subject_x');
+  if (j < 0) return null;
+  const K = specs.length;
+  const n = baseScores.length / K;
+  let count = 0;
+  for (let p = 0; p < n; p++) if (Number.isNaN(baseScores[p * K + j])) count++;
+  return { probes: count, of: n };
+}
 export type { AuditReport } from '../../core/audit/report.ts';
 
 /** The SSIM window is 11 × 11: smaller images use the JS distance (which pads). */
@@ -45,6 +62,20 @@ export async function* runAudit(gen: Generator, directions: AuditDirection[], ra
   const { specs, sigma } = spread;
   const names = specs.map((s) => s.name);
   const probes = yield* sampleProbes(gen, plan, specs, tick);
+  // Calibrate the instrument on the probes' own images: noise floor and cross-talk per measure.
+  const calibration = await calibrateInstrument(probes.images, probes.baseScores, specs, sigma);
+  const instrument: InstrumentAllowance | undefined = calibration
+    ? {
+        floor: names.map((n) => calibration.measures[n]?.noiseFloor ?? 0),
+        crossTalk: (target) => {
+          const op = owningOperation(target);
+          return names.map((n) => (op ? calibration.measures[n]?.crossTalk[op.name] ?? 0 : 0));
+        },
+        floorMultiple: FLOOR_MULTIPLE,
+        crossTalkMultiple: CROSSTALK_MULTIPLE,
+      }
+    : undefined;
+  const noSubject = countNoSubject(specs, probes.baseScores);
   const { width, height } = gen.imageSize();
   const ssimModel = plan.distance === 'ssim' && Math.min(width, height) >= SSIM_WINDOW ? await SsimDistanceModel.create(height, width, gen.range, 1) : null;
   try {
@@ -55,9 +86,13 @@ export async function* runAudit(gen: Generator, directions: AuditDirection[], ra
     for (const d of directions) {
       const run = yield* measureDirection(context, d, tick);
       runs.push(run);
-      const stats = directionStatistics(run.measurements, plan, names, plan.seeds, d.target, bootstrap);
-      const judged = judgeDirection(stats, { reference: plan.reference, settings: plan.settings, fewProbes: tooFewProbes(plan.seeds.length), pathLengthGrid: plan.pathLengthGrid });
-      reports.push(directionReport(d.name, stats, judged, plan, await renderWorstProbes(context, d, stats.worstProbes)));
+      const unmeasuredTarget = d.target && !names.includes(d.target) ? d.target : null;
+      const stats = directionStatistics(run.measurements, plan, names, plan.seeds, unmeasuredTarget ? null : d.target, bootstrap, specs.map((s) => s.leak), instrument);
+      const judged = judgeDirection(stats, { reference: plan.reference, settings: plan.settings, fewProbes: tooFewProbes(plan.seeds.length), pathLengthGrid: plan.pathLengthGrid, unmeasuredTarget });
+      const targetChange = run.measurements.change[plan.grid.indexOf(plan.reference)]![names.indexOf(stats.target)];
+      const changeMap = run.changeMap && { png: encodePng(changeMapImage(run.changeMap.map, run.changeMap.width, run.changeMap.height)), width: run.changeMap.width, height: run.changeMap.height, probes: run.changeMap.probes, fullScale: CHANGE_MAP_FULL_SCALE, meanDeltaE: significant(run.changeMap.meanDeltaE), shares: { subject: significant(run.changeMap.shares.subject), edge: significant(run.changeMap.shares.edge), background: significant(run.changeMap.shares.background) } };
+      const consistency = consistencyAcrossProbes(targetChange);
+      reports.push(directionReport(d.name, stats, judged, plan, await renderWorstProbes(context, d, stats.worstProbes), { changeMap, consistency: { ...consistency, median: significant(consistency.median), mean: significant(consistency.mean), coefficientOfVariation: significant(consistency.coefficientOfVariation), flipShare: significant(consistency.flipShare) }, declaredTarget: d.target }));
     }
     const combinations: CombinationReport[] = [];
     for (const [ia, ib] of plan.pairs) {
@@ -76,6 +111,8 @@ export async function* runAudit(gen: Generator, directions: AuditDirection[], ra
       directions: reports,
       combinations,
       groundTruth,
+      calibration: calibration && { ...calibration, floorMultiple: FLOOR_MULTIPLE, crossTalkMultiple: CROSSTALK_MULTIPLE },
+      noSubject,
     });
   } finally {
     // Released however the audit ends: finished, cancelled (return()) or failed.

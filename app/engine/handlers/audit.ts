@@ -1,5 +1,6 @@
 // Handler for running an audit over kept directions: the audit pipeline (app/engine/audit/run.ts)
-// as a job; the report is saved into the open project and answered with binary thumbnails.
+// as a job; the report is saved into the open project and answered with binary thumbnails and
+// change-map PNGs.
 import { auditReportFile, auditReportWire } from '../../core/audit/report.ts';
 import { runAudit } from '../audit/run.ts';
 import { driveSteps, type AreaHandlers } from './context.ts';
@@ -21,7 +22,7 @@ export const auditHandlers: AreaHandlers<'audit.run'> = {
       probes: p.probes, pinnedSeeds: p.pinnedSeeds, psi: p.psi, seed: p.seed, referenceStrength: p.referenceStrength, leakPass: p.leakPass, leakFail: p.leakFail, combinations: p.combinations,
     }, { defined }), ctx, AUDIT_PROGRESS_EVERY);
     const savedAs = workspace.project ? workspace.project.saveAudit(auditReportFile(report)) : null;
-    const { report: wire, thumbnails } = auditReportWire(report);
-    return { report: wire as never, thumbnails, savedAs };
+    const { report: wire, thumbnails, changeMaps } = auditReportWire(report);
+    return { report: wire as never, thumbnails, changeMaps, savedAs };
   },
 };
