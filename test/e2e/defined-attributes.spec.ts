@@ -74,7 +74,9 @@ test('tag seeds, define an attribute (accuracy shown), audit a direction against
   // The audit scores every image with the defined attribute too (512 σ samples plus the probes): minutes on a busy machine.
   await expect(page.getByTestId('verdict-outline_bold')).toBeVisible({ timeout: 1_200_000 });
   await expect(page.getByTestId('accuracy-bold_outline')).toHaveText(/Defined attribute bold_outline: AUC 0\.\d\d/);
-  // The direction was judged against the defined attribute, and it still fails: it also moves the backdrop.
+  // The direction is judged against the defined attribute, not an attribute picked for it. (With
+  // only 12 + 12 tags the scorer separates the tagged seeds, AUC ≈ 0.88, yet barely moves along
+  // outline_bold: the verdict says so — few tags can pick up a confound instead of the outline.)
   await expect(page.getByTestId('reason-outline_bold')).not.toContainText('no target was named');
   await page.screenshot({ path: join(shots, 'define-audit-result.png') });
   expect(errors).toEqual([]);
