@@ -97,6 +97,21 @@ export const imageSchema = z.object({ width: z.number().int(), height: z.number(
 export type WireImage = z.infer<typeof imageSchema>;
 
 const interval = z.object({ value: z.number().nullable(), low: z.number().nullable(), high: z.number().nullable() });
+/** A reading that may be "not measurable": NaN or ±Infinity over a MessagePort, null after JSON. */
+const reading = z.custom<number | null>((v) => v === null || typeof v === 'number', { message: 'expected a number or null' });
+const regionShares = z.object({ subject: z.number(), edge: z.number(), background: z.number() });
+/** Where a direction acts: the mean per-pixel CIEDE2000 map (its PNG travels separately) and its shares by region. */
+const changeMapWireSchema = z.object({ width: z.number(), height: z.number(), probes: z.number(), fullScale: z.number(), meanDeltaE: z.number(), shares: regionShares });
+/** An apparent leak no larger than the instrument's own noise floor or cross-talk, set aside. */
+const withinInstrumentSchema = z.object({ attribute: z.string(), leak: reading, change: reading, noiseFloor: reading, crossTalk: reading, via: z.string().optional() });
+/** The instrument calibrated on this probe set: per measure, its noise floor and its cross-talk under each exact operation. */
+const calibrationWireSchema = z.object({
+  probes: z.number(),
+  operations: z.object({ invisible: z.array(z.string()), exact: z.array(z.string()) }),
+  measures: z.record(z.string(), z.object({ noiseFloor: reading, crossTalk: z.record(z.string(), reading) })),
+  floorMultiple: z.number(),
+  crossTalkMultiple: z.number(),
+});
 /** The audit report as it crosses the protocol (thumbnails travel separately, as binary PNG). */
 export const auditWireSchema = z.object({
   format: z.literal('plumbline.audit'),
@@ -122,8 +137,14 @@ export const auditWireSchema = z.object({
     curves: z.object({ strengths: z.array(z.number()), attributes: z.record(z.string(), z.object({ mean: z.array(z.number()), low: z.array(z.number()), high: z.array(z.number()) })) }),
     leakageCurve: z.array(z.number().nullable()),
     pathLengthCurve: z.object({ strengths: z.array(z.number()), mean: z.array(z.number()), low: z.array(z.number()), high: z.array(z.number()) }),
+    withinInstrument: z.array(withinInstrumentSchema).optional(),
+    notMeasurable: z.record(z.string(), z.number()).optional(),
+    changeMap: changeMapWireSchema.nullable().optional(),
+    consistency: z.object({ probes: z.number(), median: reading, mean: reading, coefficientOfVariation: reading, flipShare: reading }).optional(),
   }).passthrough()),
   combinations: z.array(z.object({ a: z.string(), b: z.string(), attribute: z.string(), attributeInteraction: interval, imageInteraction: interval, verdict: z.string() })),
+  calibration: calibrationWireSchema.nullable().optional(),
+  noSubject: z.object({ probes: z.number(), of: z.number() }).nullable().optional(),
 }).passthrough();
 export type AuditWire = z.infer<typeof auditWireSchema>;
 

@@ -78,6 +78,80 @@ test('tag seeds, define an attribute (accuracy shown), audit a direction against
   // only 12 + 12 tags the scorer separates the tagged seeds, AUC ≈ 0.88, yet barely moves along
   // outline_bold: the verdict says so — few tags can pick up a confound instead of the outline.)
   await expect(page.getByTestId('reason-outline_bold')).not.toContainText('no target was named');
+  // The defined attribute's accuracy goes with it wherever it is used: here, beside the target it measures.
+  await expect(page.getByTestId('target-accuracy-outline_bold')).toHaveText(/\(AUC 0\.\d\d/);
+  // Where the direction acts: its change map is drawn over the preview, with shares by region.
+  await expect(page.getByTestId('change-map-outline_bold')).toHaveAttribute('data-drawn', 'true');
+  await expect(page.getByTestId('shares-outline_bold')).toContainText('background');
   await page.screenshot({ path: join(shots, 'define-audit-result.png') });
+  expect(errors).toEqual([]);
+});
+
+// Disc stamps (resources/disc/README.md) has no model card and no attribute output, so the app
+// audits it from its images alone. Its documented truth: slide is clean, swell leaks into
+// background_lightness, and sheen's target has no built-in measure.
+test('audited from its images alone: change maps over the preview, the instrument, and no measure for a target', async ({ page }) => {
+  test.setTimeout(1_200_000);
+  const errors: string[] = [];
+  page.on('pageerror', (e) => errors.push(e.message));
+  const disc = join(import.meta.dirname, '..', '..', 'resources', 'disc');
+  await page.goto(shell.url);
+  await expect(page.getByTestId('engine-state')).toHaveText('engine ready', { timeout: 60_000 });
+  await expect(page.getByRole('slider', { name: 'turn' })).toBeVisible({ timeout: 240_000 });
+  await page.getByRole('button', { name: 'Open generator…' }).click();
+  await page.getByLabel('Path').fill(join(disc, 'disc.onnx'));
+  await page.getByRole('button', { name: 'Open', exact: true }).click();
+  await expect(page.getByText(/· 12-d ·/)).toBeVisible({ timeout: 240_000 });
+  await page.getByRole('button', { name: 'Open directions…' }).click();
+  await page.getByLabel('Path').fill(join(disc, 'disc-directions.npy'));
+  await page.getByRole('button', { name: 'Open', exact: true }).click();
+  await expect(page.getByRole('slider', { name: 'sheen' })).toBeVisible({ timeout: 60_000 });
+
+  await page.keyboard.press('Alt+3');
+  await page.getByRole('button', { name: 'None' }).click();
+  for (const name of ['slide', 'swell', 'sheen']) await page.getByRole('checkbox', { name, exact: true }).check();
+  // 32 probes: at least the 30 a pass needs (MIN_USEFUL_PROBES).
+  await page.getByLabel('Probe count').fill('32');
+  await page.getByRole('button', { name: 'Run audit' }).click();
+  await expect(page.getByTestId('verdict-sheen')).toBeVisible({ timeout: 900_000 });
+
+  // No measure for sheen's target: said so, with the way to define one, not a pass or fail.
+  await expect(page.getByTestId('verdict-sheen')).toHaveText('No measure');
+  await expect(page.getByTestId('reason-sheen')).toContainText('no measure for its target sheen — define one');
+  await expect(page.getByTestId('define-one-sheen').getByRole('button', { name: 'Define one' })).toBeVisible();
+  await expect(page.getByTestId('verdict-slide')).toHaveText('Pass');
+  await expect(page.getByTestId('verdict-swell')).toHaveText('Fail');
+  await expect(page.getByTestId('reason-swell')).toContainText('background_lightness');
+
+  // The instrument: a noise floor and a cross-talk for every built-in measure judged.
+  const calibration = page.getByTestId('calibration');
+  await expect(calibration).toBeVisible();
+  for (const m of ['subject_x', 'subject_radius', 'subject_hue', 'background_lightness']) {
+    await expect(calibration.getByTestId(`calibration-${m}`)).toContainText(/\d\.\d{3}/);
+  }
+
+  // swell: its change map drawn over the preview, with most of the change outside the subject's
+  // interior (it grows the stamp and shifts the background), and what was set aside as instrument.
+  await page.getByRole('button', { name: 'Show swell' }).click();
+  const overlay = page.getByTestId('change-map-swell');
+  await expect(overlay).toHaveAttribute('data-drawn', 'true');
+  await expect(overlay).toBeVisible();
+  const shares = page.getByTestId('shares-swell');
+  await expect(shares).toContainText(/subject\s*\d+%/);
+  await expect(shares).toContainText(/edge\s*\d+%/);
+  await expect(shares).toContainText(/background\s*\d+%/);
+  await expect(page.getByTestId('set-aside-swell')).toContainText(/set aside as within the instrument/);
+  await page.getByLabel('Show change map').uncheck();
+  await expect(overlay).toBeHidden();
+  await page.getByLabel('Show change map').check();
+
+  for (const width of [1280, 1600]) {
+    await page.setViewportSize({ width, height: 900 });
+    await page.screenshot({ path: join(shots, `audit-images-alone-${width}.png`) });
+    await page.getByRole('heading', { name: 'Where swell acts' }).scrollIntoViewIfNeeded();
+    await page.screenshot({ path: join(shots, `audit-change-map-${width}.png`) });
+    await page.getByTestId('calibration').scrollIntoViewIfNeeded();
+    await page.screenshot({ path: join(shots, `audit-instrument-${width}.png`) });
+  }
   expect(errors).toEqual([]);
 });

@@ -73,4 +73,4 @@ export function pathRows(report: AuditWire, direction: string): CurveRow[] {
   return c.strengths.map((strength, i) => ({ attribute: 'path length', strength, mean: c.mean[i], low: c.low[i], high: c.high[i] }));
 }
 
-export const VERDICT_LABEL: Record<string, string> = { pass: 'Pass', review: 'Needs review', fail: 'Fail' };
+export const VERDICT_LABEL: Record<string, string> = { pass: 'Pass', review: 'Needs review', fail: 'Fail', 'no-measure': 'No measure' };

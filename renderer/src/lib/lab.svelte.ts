@@ -9,6 +9,7 @@ export type View = 'workbench' | 'discover' | 'audit' | 'signoff' | 'variants';
 type ProjectInfo = Result<'project.open'>;
 type Candidate = Extract<Result<'lab.discover'>, { cancelled: false }>['candidates'][number];
 type Thumb = Extract<Result<'audit.run'>, { cancelled: false }>['thumbnails'][number];
+type ChangeMapPng = Extract<Result<'audit.run'>, { cancelled: false }>['changeMaps'][number];
 export type Status = 'draft' | 'in-review' | 'approved' | 'rejected';
 
 const LAST_PROJECT_KEY = 'plumbline.lastProject';
@@ -45,6 +46,10 @@ export class Lab {
   report = $state.raw<AuditWire | null>(null);
   previousReport = $state.raw<AuditWire | null>(null);
   thumbnails = $state.raw<Thumb[]>([]);
+  /** Each direction's change map (PNG of the mean per-pixel ΔE00 at +reference), from the last audit. */
+  changeMaps = $state.raw<ChangeMapPng[]>([]);
+  /** Whether the change map is drawn over the preview in the Audit screen. */
+  showChangeMap = $state(true);
   focus = $state<string | null>(null);
   #auditRequest = 0;
 
@@ -199,6 +204,7 @@ export class Lab {
       if (this.report) this.previousReport = this.report;
       this.report = r.report;
       this.thumbnails = r.thumbnails;
+      this.changeMaps = r.changeMaps;
       this.focus = r.report.directions.find((d) => d.verdict !== 'pass')?.name ?? r.report.directions[0]?.name ?? null;
     });
     this.auditProgress = null;
@@ -286,6 +292,14 @@ export class Lab {
       await this.refreshDirections(r.directions);
       this.studio.banner = { kind: 'info', text: `Imported ${r.imported.join(', ')} from ${path}.` };
     });
+  }
+
+  /** "AUC 0.96 (…)" for a defined attribute used in the last audit or defined in this project; null for any other attribute. */
+  accuracyOf(name: string): string | null {
+    const inReport = this.report?.attributes.find((a) => a.name === name && a.source === 'defined')?.accuracy;
+    if (inReport) return inReport;
+    const d = this.defined.find((x) => x.name === name);
+    return d ? `${d.metric === 'auc' ? 'AUC' : 'R²'} ${d.value.toFixed(2)}${d.noisy ? ', noisy' : ''}` : null;
   }
 
   thumbUrl(bytes: Uint8Array): string {
