@@ -118,7 +118,7 @@ export const auditWireSchema = z.object({
   version: z.literal(1),
   generator: z.object({ name: z.string(), fingerprint: z.string() }),
   probes: z.object({ count: z.number(), psi: z.number() }).passthrough(),
-  attributes: z.array(z.object({ name: z.string(), unit: z.string(), source: z.string(), sigma: z.number(), accuracy: z.string().optional() })),
+  attributes: z.array(z.object({ name: z.string(), unit: z.string(), source: z.string(), sigma: z.number(), judged: z.boolean().optional(), accuracy: z.string().optional() })),
   warnings: z.array(z.string()),
   caution: z.string(),
   settings: z.object({ referenceStrength: z.number(), leakPass: z.number(), leakFail: z.number() }).passthrough(),

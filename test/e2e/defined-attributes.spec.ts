@@ -147,10 +147,11 @@ test('audited from its images alone: change maps over the preview, the instrumen
 
   for (const width of [1280, 1600]) {
     await page.setViewportSize({ width, height: 900 });
+    await page.getByRole('list', { name: 'Verdicts' }).scrollIntoViewIfNeeded();
     await page.screenshot({ path: join(shots, `audit-images-alone-${width}.png`) });
     await page.getByRole('heading', { name: 'Where swell acts' }).scrollIntoViewIfNeeded();
     await page.screenshot({ path: join(shots, `audit-change-map-${width}.png`) });
-    await page.getByTestId('calibration').scrollIntoViewIfNeeded();
+    await page.getByTestId('set-aside-swell').scrollIntoViewIfNeeded();
     await page.screenshot({ path: join(shots, `audit-instrument-${width}.png`) });
   }
   expect(errors).toEqual([]);

@@ -95,8 +95,9 @@ export interface AuditReport {
   generator: { name: string; fingerprint: string };
   settings: AuditSettings;
   probes: { count: number; pinned: number[]; firstSeed: number; psi: number };
-  /** `accuracy`: a defined attribute's cross-validated accuracy in words (reported wherever it is used). */
-  attributes: { name: string; unit: string; source: string; sigma: number; accuracy?: string }[];
+  /** `accuracy`: a defined attribute's cross-validated accuracy in words (reported wherever it is used);
+   * `judged`: false for a composite or descriptor that is reported but never a leak candidate. */
+  attributes: { name: string; unit: string; source: string; sigma: number; judged?: boolean; accuracy?: string }[];
   warnings: string[];
   caution: string;
   directions: DirectionReport[];
@@ -143,8 +144,9 @@ export function assembleReport(x: {
   plan: AuditPlan;
   tool: string;
   generator: { name: string; fingerprint: string };
-  /** `accuracy`: a defined attribute's cross-validated accuracy in words (reported wherever it is used). */
-  attributes: { name: string; unit: string; source: string; sigma: number; accuracy?: string }[];
+  /** `accuracy`: a defined attribute's cross-validated accuracy in words (reported wherever it is used);
+   * `judged`: false for a composite or descriptor that is reported but never a leak candidate. */
+  attributes: { name: string; unit: string; source: string; sigma: number; judged?: boolean; accuracy?: string }[];
   /** Warnings found while sampling (added after the plan's). */
   warnings: string[];
   directions: DirectionReport[];

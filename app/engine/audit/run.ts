@@ -106,7 +106,7 @@ export async function* runAudit(gen: Generator, directions: AuditDirection[], ra
       plan,
       tool: TOOL_STAMP,
       generator: gen.info,
-      attributes: specs.map((s, j) => ({ name: s.name, unit: s.unit, source: s.source, sigma: sigma[j], ...(s.defined ? { accuracy: s.defined.accuracy } : {}) })),
+      attributes: specs.map((s, j) => ({ name: s.name, unit: s.unit, source: s.source, sigma: sigma[j], judged: s.leak, ...(s.defined ? { accuracy: s.defined.accuracy } : {}) })),
       warnings: spread.warnings,
       directions: reports,
       combinations,
