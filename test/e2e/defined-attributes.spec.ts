@@ -129,6 +129,9 @@ test('audited from its images alone: change maps over the preview, the instrumen
   for (const m of ['subject_x', 'subject_radius', 'subject_hue', 'background_lightness']) {
     await expect(calibration.getByTestId(`calibration-${m}`)).toContainText(/\d\.\d{3}/);
   }
+  // A composite is reported but never judged (Hasler & Süsstrunk colourfulness grows with subject area).
+  await expect(calibration.getByTestId('calibration-colourfulness')).toContainText('reported, not judged');
+  await expect(calibration.getByTestId('calibration-subject_radius')).not.toContainText('reported, not judged');
 
   // swell: its change map drawn over the preview, with most of the change outside the subject's
   // interior (it grows the stamp and shifts the background), and what was set aside as instrument.

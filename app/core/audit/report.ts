@@ -166,7 +166,7 @@ export function assembleReport(x: {
     generator: { name: x.generator.name, fingerprint: x.generator.fingerprint },
     settings,
     probes: { count: plan.seeds.length, pinned: settings.pinnedSeeds, firstSeed: plan.seeds[settings.pinnedSeeds.length] ?? plan.seeds[0], psi: settings.psi },
-    attributes: x.attributes.map((a) => ({ name: a.name, unit: a.unit, source: a.source, sigma: significant(a.sigma, 6), ...(a.accuracy ? { accuracy: a.accuracy } : {}) })),
+    attributes: x.attributes.map((a) => ({ name: a.name, unit: a.unit, source: a.source, sigma: significant(a.sigma, 6), ...(a.judged === false ? { judged: false } : {}), ...(a.accuracy ? { accuracy: a.accuracy } : {}) })),
     warnings: [...plan.warnings, ...x.warnings],
     caution: AUDIT_CAUTION,
     directions: x.directions,
