@@ -17,12 +17,13 @@ gen.batchSize = batch;
 let dirs: AuditDirection[];
 if (source.startsWith('random:')) {
   // A generator without authored directions (the random-weight benchmark one): random unit
-  // directions in its latent; throughput does not depend on what they do.
+  // directions in its latent, no target (its noise images may show no subject); throughput does
+  // not depend on what they do.
   const rng = new Random(11, 5);
   dirs = Array.from({ length: Number(source.slice(7)) }, (_, k) => {
     const v = new Float32Array(gen.layout.size).map(() => rng.normal());
     const norm = Math.hypot(...v);
-    return { name: `random_${k}`, target: 'subject_radius', layers: null, vector: v.map((x) => x / norm), sigma: 1 };
+    return { name: `random_${k}`, target: null, layers: null, vector: v.map((x) => x / norm), sigma: 1 };
   });
 } else {
   dirs = host.openDirections(source).directions.slice(0, 2).map((d) => {
