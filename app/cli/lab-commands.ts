@@ -14,6 +14,8 @@ import { parseSeeds } from './seeds.ts';
 import { runCliJob } from './jobs.ts';
 import { PROBE_LIMITS } from '../protocol/messages.ts';
 import { ScorerModel } from '../engine/scorer-model.ts';
+import { DefinedAttribute, loadProjectAttributes } from '../engine/defined-attributes.ts';
+import { defineFromTagsFile } from './define-commands.ts';
 
 export interface CliContext {
   progressBar(total: number, label: string): { update(n: number, label?: string): void; stop(): void };
@@ -112,6 +114,7 @@ export function auditTable(report: AuditReport): string {
     const g = report.groundTruth;
     out.push('', `ground truth (${g.factors.length} declared factors, ${g.samples} samples): MIG ${g.mig ?? '—'}, DCI disentanglement ${g.dci.disentanglement}, completeness ${g.dci.completeness}, informativeness ${g.dci.informativeness}`);
   }
+  for (const a of report.attributes.filter((x) => x.accuracy)) out.push('', `defined attribute ${a.name}: ${a.accuracy}`);
   for (const w of report.warnings) out.push('', `warning: ${w}`);
   out.push('', `probes: ${report.probes.count} at ψ ${report.probes.psi}; generator ${report.generator.name} (${report.generator.fingerprint.slice(0, 12)}…)`);
   out.push(`note: ${report.caution}`);
@@ -182,6 +185,8 @@ export function addLabCommands(program: Command, ctx: CliContext, number: (n: st
     .option('--nulls <k>', 'random directions per layer rule for the null baseline (0 skips)', integer('--nulls', 0, 256), 16)
     .option('--scorer <card>', 'a scorer card (.json) for a user ONNX attribute model; repeatable', (v: string, prev: string[]) => [...prev, v], [] as string[])
     .option('--feature-scorer <card>', "scorer card whose features output serves the 'features' distance")
+    .option('--define <tags.json>', 'define attributes from a tags file first and audit with them (refused below the accuracy floor)')
+    .option('--defined <file|project>', 'a defined-attribute file, or a project folder with attributes/; repeatable', (v: string, prev: string[]) => [...prev, v], [] as string[])
     .option('--combinations <which>', 'all | none', 'all')
     .option('--resamples <n>', 'bootstrap resamples', integer('--resamples', 200, 100_000), 1000)
     .option('--json <file>', 'write the full report as JSON')
@@ -201,6 +206,16 @@ export function addLabCommands(program: Command, ctx: CliContext, number: (n: st
         const features = o.featureScorer ? await ScorerModel.open(o.featureScorer, { threads: o.threads }) : undefined;
         if (features) scorers.push(features);
         const dirs = loadDirections(workspace, o.directions, o.only ? String(o.only).split(',') : undefined);
+        const defined: DefinedAttribute[] = (o.defined as string[]).flatMap((p) => (p.endsWith('.json') ? [DefinedAttribute.load(p)] : loadProjectAttributes(p)));
+        if (o.define) {
+          const r = await defineFromTagsFile(workspace.requireGenerator(), o.define, { psi: o.psi, seed: o.seed });
+          if (r.refused.length) {
+            process.stderr.write(`plumbline: not auditing: ${r.refused.map((x) => x.name).join(', ')} refused below the accuracy floor (see above)\n`);
+            process.exitCode = 1;
+            return;
+          }
+          defined.push(...r.accepted);
+        }
         const attributes = ['default', 'card', 'image', 'all'].includes(o.attributes) ? o.attributes : String(o.attributes).split(',');
         const steps = runAudit(workspace.requireGenerator(), dirs, {
           probes: o.probes,
@@ -218,7 +233,7 @@ export function addLabCommands(program: Command, ctx: CliContext, number: (n: st
           bootstrapResamples: o.resamples,
           scorerCards: (o.scorer as string[]).map((c) => resolve(c)),
           featureScorer: o.featureScorer ? resolve(o.featureScorer) : null,
-        }, { scorers: scorers.filter((x) => x !== features), features });
+        }, { scorers: scorers.filter((x) => x !== features), features, defined });
         const report = await runCliJob(ctx, workspace, 'auditing', 'audit cancelled; nothing was written', (job) => driveSteps(steps, job));
         if (!report) return;
         process.stdout.write(auditTable(report));

@@ -66,6 +66,25 @@ export function linearRgbToLab(r: number, g: number, b: number): Lab {
   return [116 * fy - 16, 500 * (fx - fy), 200 * (fy - fz)];
 }
 
+const XYZ_TO_SRGB = invert3(SRGB_TO_XYZ);
+
+/** CIELAB (D65) → 8-bit sRGB, the inverse of the CIE 15 and IEC 61966-2-1 steps; out-of-gamut values are clipped. */
+export function labToSrgb8(L: number, a: number, b: number): [number, number, number] {
+  const fy = (L + 16) / 116;
+  const fx = fy + a / 500;
+  const fz = fy - b / 200;
+  const inv = (f: number) => (f > 6 / 29 ? f * f * f : (116 * f - 16) / KAPPA);
+  const X = inv(fx) * D65_WHITE[0];
+  const Y = inv(fy) * D65_WHITE[1];
+  const Z = inv(fz) * D65_WHITE[2];
+  const m = XYZ_TO_SRGB;
+  const enc = (v: number) => {
+    const c = Math.min(1, Math.max(0, v));
+    return Math.round(255 * (c <= 0.0031308 ? 12.92 * c : 1.055 * c ** (1 / 2.4) - 0.055));
+  };
+  return [enc(m[0][0] * X + m[0][1] * Y + m[0][2] * Z), enc(m[1][0] * X + m[1][1] * Y + m[1][2] * Z), enc(m[2][0] * X + m[2][1] * Y + m[2][2] * Z)];
+}
+
 /** 8-bit sRGB → CIELAB (D65). */
 export function srgb8ToLab(r: number, g: number, b: number): Lab {
   return linearRgbToLab(SRGB8_TO_LINEAR[r], SRGB8_TO_LINEAR[g], SRGB8_TO_LINEAR[b]);

@@ -72,7 +72,7 @@ export const packDirectionSchema = z.object({
   layers: z.tuple([z.number().int(), z.number().int()]).nullable(),
   sigma: z.number().positive(),
   safeRange: z.tuple([z.number(), z.number()]),
-  audit: z.object({ verdict: z.enum(['pass', 'review', 'fail']), reason: z.string(), leakage: interval, pathLength: interval, probes: z.number().int(), file: z.string().nullable() }),
+  audit: z.object({ verdict: z.enum(['pass', 'review', 'fail', 'no-measure']), reason: z.string(), leakage: interval, pathLength: interval, probes: z.number().int(), file: z.string().nullable() }),
   /** override: the written reason when the approval went against the audit (gate: what the audit said then). */
   signOff: z.object({ status: z.literal('approved'), reviewer: z.string(), at: z.string(), note: z.string(), override: z.string().optional(), gate: z.string().optional() }),
   previewSpec: z.object({ seeds: z.array(z.number().int().min(0)), strengths: z.array(z.number()), psi: z.number() }).nullable(),

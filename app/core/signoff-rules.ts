@@ -15,7 +15,7 @@ import { MIN_USEFUL_PROBES } from './audit/settings.ts';
 
 export const REVIEW_STATUSES = ['draft', 'in-review', 'approved', 'rejected'] as const;
 export type ReviewStatus = (typeof REVIEW_STATUSES)[number];
-export type Verdict = 'pass' | 'review' | 'fail';
+export type Verdict = 'pass' | 'review' | 'fail' | 'no-measure';
 
 /**
  * Fewest probes an audit may have and still support a plain approval. Below 30 samples a
@@ -69,8 +69,11 @@ export function approvalGate(direction: { vectorHash: string; changedAt: string 
       : { state: 'unaudited', audit: null, explanation: 'never audited' };
   }
   if (audit.verdict === 'fail') return { state: 'failed', audit, explanation: `its last audit failed: ${audit.reason}` };
+  // An audit with no measure for the target judged nothing: it supports no approval either.
+  if (audit.verdict === 'no-measure') return { state: 'needs-review', audit, explanation: `its last audit had no measure for its target, so it judged nothing: ${audit.reason}` };
   if (audit.verdict === 'review') return { state: 'needs-review', audit, explanation: `its last audit needs review: ${audit.reason}` };
   if (audit.probes < minProbes) return { state: 'too-few-probes', audit, explanation: `its last audit used ${audit.probes} probes; approval needs at least ${minProbes}` };
+  if (audit.verdict !== 'pass') return { state: 'needs-review', audit, explanation: `its last audit did not pass: ${audit.reason}` };
   return { state: 'passing', audit, explanation: `passed its last audit on ${audit.probes} probes` };
 }
 

@@ -60,7 +60,9 @@ export class RunningMoments {
   n = 0;
   mean = 0;
   #m2 = 0;
+  /** Adds one value; NaN ("not measurable") is left out. */
   push(x: number): void {
+    if (Number.isNaN(x)) return;
     this.n++;
     const d = x - this.mean;
     this.mean += d / this.n;
@@ -144,17 +146,30 @@ export class ProbeBootstrap {
     });
   }
 
-  /** Point estimate and BCa interval of stat(column means). */
+  /**
+   * Point estimate and BCa interval of stat(column means). NaN entries are missing values ("not
+   * measurable" on that probe): each column's mean is taken over its measurable probes only, in
+   * the full sample, every resample and every jackknife leave-one-out alike.
+   */
   interval(columns: Float64Array[], stat: (means: Float64Array) => number, confidence = 0.95): { value: number; low: number; high: number } {
     const n = this.probes;
     const k = columns.length;
     const full = new Float64Array(k);
     const sums = new Float64Array(k);
+    const valid = new Float64Array(k);
+    const gappy = columns.map((col) => col.some(Number.isNaN));
+    const clean = columns.map((col, j) => (gappy[j] ? col.map((v) => (Number.isNaN(v) ? 0 : v)) : col));
+    const present = columns.map((col, j) => (gappy[j] ? col.map((v) => (Number.isNaN(v) ? 0 : 1)) : null));
     for (let j = 0; j < k; j++) {
       let s = 0;
-      for (let i = 0; i < n; i++) s += columns[j][i];
+      let c = 0;
+      for (let i = 0; i < n; i++) {
+        s += clean[j][i];
+        c += present[j] ? present[j]![i] : 1;
+      }
       sums[j] = s;
-      full[j] = s / n;
+      valid[j] = c;
+      full[j] = c > 0 ? s / c : NaN;
     }
     const value = stat(full);
     const reps = new Float64Array(this.resamples);
@@ -162,16 +177,29 @@ export class ProbeBootstrap {
     for (let b = 0; b < this.resamples; b++) {
       const c = this.counts[b];
       for (let j = 0; j < k; j++) {
-        const col = columns[j];
+        const col = clean[j];
+        const has = present[j];
         let s = 0;
-        for (let i = 0; i < n; i++) s += c[i] * col[i];
-        means[j] = s / n;
+        let w = 0;
+        if (has) {
+          for (let i = 0; i < n; i++) {
+            s += c[i] * col[i];
+            w += c[i] * has[i];
+          }
+        } else {
+          for (let i = 0; i < n; i++) s += c[i] * col[i];
+          w = n;
+        }
+        means[j] = w > 0 ? s / w : NaN;
       }
       reps[b] = stat(means);
     }
     const jack = new Float64Array(n);
     for (let i = 0; i < n; i++) {
-      for (let j = 0; j < k; j++) means[j] = (sums[j] - columns[j][i]) / (n - 1);
+      for (let j = 0; j < k; j++) {
+        const w = valid[j] - (present[j] ? present[j]![i] : 1);
+        means[j] = w > 0 ? (sums[j] - clean[j][i]) / w : NaN;
+      }
       jack[i] = stat(means);
     }
     const finite = reps.every(Number.isFinite) && Number.isFinite(value);

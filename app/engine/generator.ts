@@ -6,7 +6,7 @@ import { basename, dirname, resolve } from 'node:path';
 import * as ort from 'onnxruntime-node';
 import { PlumblineError } from '../core/errors.ts';
 import { parseModelCard, type ModelCard } from '../core/model-card.ts';
-import { decodeModel, summarizeModel, type OnnxSummary, type TensorInterface } from '../core/onnx/inspect.ts';
+import { decodeModel, inferOutputRange, summarizeModel, type OnnxSummary, type TensorInterface } from '../core/onnx/inspect.ts';
 import { GENERATOR_LIMITS, checkGraphShapes, checkImageCaps, checkLatentCaps, type GeneratorLimits } from '../core/onnx/caps.ts';
 import { READ_LIMITS, readRegularFile, resolveInside } from '../core/path-policy.ts';
 import { applyEdits, broadcastLayers, directionSigma, seedsToZ, truncate, type EditVector, type LatentLayout } from '../core/latent.ts';
@@ -28,6 +28,8 @@ const RANGE_SLACK = 1.0;
 const FULL_CHECK_BATCHES = 4;
 const CHECK_STRIDE = 13;
 export const DEFAULT_BATCH = 16;
+/** Images rendered to infer the output range of a generator without a card. */
+const RANGE_SAMPLE = 8;
 
 
 export interface RenderOutput {
@@ -154,8 +156,10 @@ export class Generator {
 
       // A probe render checks shape, size, range and finiteness before anyone relies on the
       // model: one image first (the pixel cap then holds at the smallest allocation), then two
-      // (the batch dimension must be dynamic).
-      await gen.renderSeeds([0], 1, []);
+      // (the batch dimension must be dynamic). Without a card the output range is not stated: it
+      // is read off a sample batch first (#inferRange, which renders the single image first too).
+      if (!r.card) await gen.#inferRange();
+      else await gen.renderSeeds([0], 1, []);
       await gen.renderSeeds([0, 1], 1, []);
       const { width, height } = gen.imageSize();
       const files = [r.cardFile, r.synthesisFile, r.mappingFile].filter((f): f is string => !!f);
@@ -182,6 +186,18 @@ export class Generator {
       await gen.dispose();
       throw err;
     }
+  }
+
+  /** Renders RANGE_SAMPLE seeds unchecked, infers the output range and lists it among the assumptions. */
+  async #inferRange(): Promise<void> {
+    const r = this.#r;
+    r.range = [-Infinity, Infinity];
+    await this.renderSeeds([0], 1, []);
+    const out = await this.renderSeeds(Array.from({ length: RANGE_SAMPLE }, (_, i) => STAT_SEED_BASE + i), 1, []);
+    this.#checkedBatches = 0;
+    const inferred = inferOutputRange(out.images);
+    r.range = inferred.range;
+    r.assumptions.push(inferred.note);
   }
 
   #shape: number[] | null = null;
@@ -423,7 +439,8 @@ function resolveBare(file: string, mappingFile: string | null): Resolved {
     constants: {},
     mappingInput: null,
     mappingOutput: null,
-    assumptions: ['no model card: interface inferred from the graph', 'output range assumed to be [-1, 1]'],
+    // The output range is inferred from a sample batch once the interface is known (#inferRange).
+    assumptions: ['no model card: interface inferred from the graph'],
   };
 }
 

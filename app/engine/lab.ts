@@ -119,8 +119,17 @@ export async function fitBoundaries(gen: Generator, attributes: string[], option
     await options.checkpoint?.();
   }
   return specs.map((spec, j) => {
-    const column = Float64Array.from({ length: samples }, (_, i) => scores[i * K + j]);
-    const r = linearBoundary(codes, gen.layout.size, column, { fraction, seed, whiten: options.whiten ?? false, shrinkage: options.shrinkage });
+    // Samples where a built-in measure is "not measurable" (NaN) are left out of the fit.
+    const keep = Array.from({ length: samples }, (_, i) => i).filter((i) => !Number.isNaN(scores[i * K + j]));
+    if (keep.length < 4) throw new PlumblineError('bad-request', `${spec.name} is measurable on only ${keep.length} of ${samples} samples; no boundary can be fitted`);
+    const D = gen.layout.size;
+    const column = Float64Array.from(keep, (i) => scores[i * K + j]);
+    const kept = keep.length === samples ? codes : (() => {
+      const out = new Float32Array(keep.length * D);
+      keep.forEach((i, r) => out.set(codes.subarray(i * D, (i + 1) * D), r * D));
+      return out;
+    })();
+    const r = linearBoundary(kept, D, column, { fraction, seed, whiten: options.whiten ?? false, shrinkage: options.shrinkage });
     return {
       name: `boundary_${spec.name}`,
       target: spec.name,

@@ -37,7 +37,7 @@ export const SIGMA_TOLERANCE = 1e-4;
 
 interface AuditEntry {
   name: string;
-  verdict: 'pass' | 'review' | 'fail';
+  verdict: 'pass' | 'review' | 'fail' | 'no-measure';
   reason: string;
   leakage: { value: number | null; low: number | null; high: number | null };
   pathLength: { value: number | null; low: number | null; high: number | null };

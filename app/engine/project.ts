@@ -487,7 +487,7 @@ export class Project {
 export interface StoredReport {
   createdAt: string;
   probes: { count: number };
-  directions: { name: string; vectorHash?: string | null; verdict: 'pass' | 'review' | 'fail'; reason: string; safeRange: [number, number]; worstProbes?: { seed: number; strength: number; attribute: string; leakage: number; before: string; after: string }[] }[];
+  directions: { name: string; vectorHash?: string | null; verdict: 'pass' | 'review' | 'fail' | 'no-measure'; reason: string; safeRange: [number, number]; changeMap?: ({ png: string } & Record<string, unknown>) | null; worstProbes?: { seed: number; strength: number; attribute: string; leakage: number; before: string; after: string }[] }[];
   attributes?: { name: string }[];
   combinations?: unknown[];
   warnings?: string[];
@@ -501,10 +501,10 @@ export interface AuditThumbnail { direction: string; seed: number; strength: num
  * earlier results of the others. Attributes are the union; combinations and warnings come from
  * the newest report. Null when nothing was audited yet.
  */
-export function mergedAuditHistory(project: Project, names: readonly string[]): { report: Record<string, unknown> | null; thumbnails: AuditThumbnail[]; files: string[] } {
+export function mergedAuditHistory(project: Project, names: readonly string[]): { report: Record<string, unknown> | null; thumbnails: AuditThumbnail[]; changeMaps: { direction: string; png: Uint8Array }[]; files: string[] } {
   const files = project.audits();
   const reports = files.map((f) => ({ file: `audits/${f}`, report: project.readAudit(f) })).filter((r): r is { file: string; report: StoredReport } => !!r.report);
-  if (!reports.length) return { report: null, thumbnails: [], files };
+  if (!reports.length) return { report: null, thumbnails: [], changeMaps: [], files };
   reports.sort((a, b) => (a.report.createdAt < b.report.createdAt ? -1 : a.report.createdAt > b.report.createdAt ? 1 : 0));
   const newest = reports.at(-1)!;
   const latest = new Map<string, { entry: StoredReport['directions'][number]; file: string; at: string }>();
@@ -513,12 +513,18 @@ export function mergedAuditHistory(project: Project, names: readonly string[]): 
   for (const r of [...reports].reverse()) for (const a of r.report.attributes ?? []) if (!attributes.has(a.name)) attributes.set(a.name, a);
   const keep = names.filter((n) => latest.has(n));
   const thumbnails: AuditThumbnail[] = keep.flatMap((n) => (latest.get(n)!.entry.worstProbes ?? []).map((w) => ({ direction: n, seed: w.seed, strength: w.strength, attribute: w.attribute, leakage: w.leakage, before: fromDataUri(w.before), after: fromDataUri(w.after) })));
+  // Change maps travel as PNG bytes beside the report, like the thumbnails.
+  const changeMaps = keep.flatMap((n) => {
+    const map = latest.get(n)!.entry.changeMap;
+    return map && typeof map.png === 'string' ? [{ direction: n, png: fromDataUri(map.png) }] : [];
+  });
   const directions = keep.map((n) => {
     const { entry, file, at } = latest.get(n)!;
-    const { worstProbes, ...rest } = entry;
-    return { ...rest, worstProbes: (worstProbes ?? []).map(({ before: _b, after: _a, ...w }) => w), auditedAt: at, auditFile: file };
+    const { worstProbes, changeMap, ...rest } = entry;
+    const wireMap = changeMap ? (({ png: _png, ...m }) => m)(changeMap) : changeMap;
+    return { ...rest, ...(changeMap !== undefined ? { changeMap: wireMap } : {}), worstProbes: (worstProbes ?? []).map(({ before: _b, after: _a, ...w }) => w), auditedAt: at, auditFile: file };
   });
-  return { report: { ...newest.report, attributes: [...attributes.values()], directions }, thumbnails, files };
+  return { report: { ...newest.report, attributes: [...attributes.values()], directions }, thumbnails, changeMaps, files };
 }
 
 function fromDataUri(uri: string): Uint8Array {

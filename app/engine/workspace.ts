@@ -12,6 +12,7 @@ import type { DirectionInfo, Params, Outcome } from '../protocol/messages.ts';
 import { Generator } from './generator.ts';
 import { defaultThreads } from './sessions.ts';
 import { Project, vectorHash } from './project.ts';
+import { DefinedAttributeStore } from './defined-attributes.ts';
 
 /** The bundled demo generator's card (PLUMBLINE_RESOURCES overrides where resources live, as in a packaged app). */
 export function demoCardPath(): string {
@@ -36,6 +37,8 @@ export class Workspace {
   #project: Project | null = null;
   /** Where each unkept candidate is kept in the project (candidates/<key>.*). */
   #candidateKeys = new Map<string, string>();
+  /** Attributes the lead defined (the project's, or this session's without a project). */
+  readonly definedAttributes = new DefinedAttributeStore();
 
   constructor(options: { threads?: number } = {}) {
     this.threads = options.threads ?? defaultThreads();
@@ -66,6 +69,7 @@ export class Workspace {
     const previous = this.#generator;
     this.#generator = next;
     this.#directions.clear();
+    this.definedAttributes.clearSession();
     if (previous) await previous.dispose();
     return next.info;
   }

@@ -91,7 +91,7 @@ export const signOffSchema = z.object({
   /** Each status and whether this direction may move there now: yes, only with an override, or no. */
   transitions: z.array(z.object({ to: z.enum(['draft', 'in-review', 'approved', 'rejected']), allowed: z.enum(['yes', 'override', 'no']), why: z.string() })).optional(),
   /** Every stored audit of this direction, newest first; current = of its present vector. */
-  audits: z.array(z.object({ at: z.string(), file: z.string(), verdict: z.enum(['pass', 'review', 'fail']), reason: z.string(), probes: z.number(), current: z.boolean() })).optional(),
+  audits: z.array(z.object({ at: z.string(), file: z.string(), verdict: z.enum(['pass', 'review', 'fail', 'no-measure']), reason: z.string(), probes: z.number(), current: z.boolean() })).optional(),
 });
 export type SignOff = z.infer<typeof signOffSchema>;
 
@@ -111,17 +111,52 @@ export const directionInfoSchema = z.object({
 });
 export type DirectionInfo = z.infer<typeof directionInfoSchema>;
 
+/** A defined attribute as the app shows it: its cross-validated accuracy goes wherever it is used. */
+export const definedAttributeInfoSchema = z.object({
+  name: z.string(),
+  kind: z.enum(['tags', 'ratings']),
+  metric: z.enum(['auc', 'r2']),
+  value: z.number(),
+  floor: z.number(),
+  folds: z.number(),
+  has: z.number(),
+  lacks: z.number(),
+  noisy: z.boolean(),
+  note: z.string().nullable(),
+  /** The accuracy in words, as reports print it. */
+  accuracy: z.string(),
+  file: z.string().nullable(),
+});
+export type DefinedAttributeInfo = z.infer<typeof definedAttributeInfoSchema>;
+
 export const imageSchema = z.object({ width: z.number().int(), height: z.number().int(), rgba: bytes });
 export type WireImage = z.infer<typeof imageSchema>;
 
 const interval = z.object({ value: z.number().nullable(), low: z.number().nullable(), high: z.number().nullable() });
+/** A reading that may be "not measurable": NaN or ±Infinity over a MessagePort, null after JSON. */
+const reading = z.custom<number | null>((v) => v === null || typeof v === 'number', { message: 'expected a number or null' });
+const regionShares = z.object({ subject: z.number(), edge: z.number(), background: z.number() });
+/** Where a direction acts: the mean per-pixel CIEDE2000 map (its PNG travels separately) and its shares by region. */
+/** A direction's change map image (PNG bytes), sent beside the report like the thumbnails. */
+const changeMapPngSchema = z.object({ direction: z.string(), png: bytes });
+const changeMapWireSchema = z.object({ width: z.number(), height: z.number(), probes: z.number(), fullScale: z.number(), meanDeltaE: z.number(), shares: regionShares });
+/** An apparent leak no larger than the instrument's own noise floor or cross-talk, set aside. */
+const withinInstrumentSchema = z.object({ attribute: z.string(), change: reading, ratio: reading, noiseFloor: reading, crossTalk: reading, via: z.string().optional() });
+/** The instrument calibrated on this probe set: per measure, its noise floor and its cross-talk under each exact operation. */
+const calibrationWireSchema = z.object({
+  probes: z.number(),
+  operations: z.object({ invisible: z.array(z.string()), exact: z.array(z.string()) }),
+  measures: z.record(z.string(), z.object({ noiseFloor: reading, crossTalk: z.record(z.string(), reading) })),
+  floorMultiple: z.number(),
+  crossTalkMultiple: z.number(),
+});
 /** The audit report as it crosses the protocol (thumbnails travel separately, as binary PNG). */
 export const auditWireSchema = z.object({
   format: z.literal('plumbline.audit'),
   version: z.literal(1),
   generator: z.object({ name: z.string(), fingerprint: z.string() }),
   probes: z.object({ count: z.number(), psi: z.number() }).passthrough(),
-  attributes: z.array(z.object({ name: z.string(), unit: z.string(), source: z.string(), sigma: z.number() })),
+  attributes: z.array(z.object({ name: z.string(), unit: z.string(), source: z.string(), sigma: z.number(), judged: z.boolean().optional(), accuracy: z.string().optional() })),
   warnings: z.array(z.string()),
   caution: z.string(),
   settings: z.object({ referenceStrength: z.number(), leakPass: z.number(), leakFail: z.number() }).passthrough(),
@@ -129,7 +164,7 @@ export const auditWireSchema = z.object({
     name: z.string(),
     target: z.string(),
     targetChosen: z.boolean(),
-    verdict: z.enum(['pass', 'review', 'fail']),
+    verdict: z.enum(['pass', 'review', 'fail', 'no-measure']),
     reason: z.string(),
     targetEffect: interval,
     dependency: z.record(z.string(), interval),
@@ -144,8 +179,14 @@ export const auditWireSchema = z.object({
     curves: z.object({ strengths: z.array(z.number()), attributes: z.record(z.string(), z.object({ mean: z.array(z.number()), low: z.array(z.number()), high: z.array(z.number()) })) }),
     leakageCurve: z.array(z.number().nullable()),
     pathLengthCurve: z.object({ strengths: z.array(z.number()), mean: z.array(z.number()), low: z.array(z.number()), high: z.array(z.number()) }),
+    withinInstrument: z.array(withinInstrumentSchema).optional(),
+    notMeasurable: z.record(z.string(), z.number()).optional(),
+    changeMap: changeMapWireSchema.nullable().optional(),
+    consistency: z.object({ probes: z.number(), median: reading, mean: reading, coefficientOfVariation: reading, flipShare: reading }).optional(),
   }).passthrough()),
   combinations: z.array(z.object({ a: z.string(), b: z.string(), attribute: z.string(), attributeInteraction: interval, imageInteraction: interval, verdict: z.string() })),
+  calibration: calibrationWireSchema.nullable().optional(),
+  noSubject: z.object({ probes: z.number(), of: z.number() }).nullable().optional(),
 }).passthrough();
 export type AuditWire = z.infer<typeof auditWireSchema>;
 
@@ -224,7 +265,19 @@ export const methods = {
     /** Random directions per layer rule for the null baseline (0 skips it); the report states the count beside every percentile. */
     nullDirections: z.number().int().min(0).max(256).default(APP_NULL_DIRECTIONS),
     combinations: z.enum(['all', 'none']).default('all'),
-  }), z.object({ report: auditWireSchema, thumbnails: z.array(thumbnailSchema), savedAs: z.string().nullable() })),
+    /** Defined attributes of the open project (or this session) to audit with, by name. */
+    defined: z.array(z.string().min(1)).max(32).optional(),
+    /** Target attribute per direction id, overriding the direction's own (e.g. a defined attribute). */
+    targets: z.record(z.string(), z.string().min(1)).optional(),
+  }), z.object({ report: auditWireSchema, thumbnails: z.array(thumbnailSchema), changeMaps: z.array(changeMapPngSchema).default([]), savedAs: z.string().nullable() })),
+  /** Fits an attribute from seeds tagged has / lacks; saved into the open project unless refused below the accuracy floor. */
+  'attributes.define': declare('job', z.object({
+    name: z.string().regex(/^[A-Za-z][A-Za-z0-9_.-]{0,63}$/, 'a name of letters, digits, _ . - starting with a letter'),
+    has: z.array(seed).max(10_000),
+    lacks: z.array(seed).max(10_000),
+    psi,
+  }), z.object({ attribute: definedAttributeInfoSchema, refused: z.string().nullable() })),
+  'attributes.list': declare('control', z.object({}), z.object({ attributes: z.array(definedAttributeInfoSchema) })),
   'lab.repair': declare('job', z.object({ direction: z.string().min(1), against: z.array(z.string().min(1)).min(1).max(32), hold: z.union([z.literal('others'), z.array(z.string())]).default([]) }),
     z.object({ direction: directionInfoSchema, boundaries: z.array(z.object({ attribute: z.string(), accuracy: z.number(), role: z.string() })) })),
   'project.open': declare('control', z.object({ path: z.string().min(1), create: z.boolean().default(false), session: session.optional() }),
@@ -241,7 +294,7 @@ export const methods = {
   /** Renews (or, once free, takes) this session's lock on the open project; releases it with release. */
   'project.lock': declare('control', z.object({ session, release: z.boolean().default(false) }), z.object({ readOnly: z.boolean(), lockHolder: lockHolderSchema.nullable() })),
   /** Every stored audit of the open project merged: the newest result per direction, with history. */
-  'audit.history': declare('control', z.object({}), z.object({ report: auditWireSchema.nullable(), thumbnails: z.array(thumbnailSchema), files: z.array(z.string()) })),
+  'audit.history': declare('control', z.object({}), z.object({ report: auditWireSchema.nullable(), thumbnails: z.array(thumbnailSchema), changeMaps: z.array(changeMapPngSchema).default([]), files: z.array(z.string()) })),
   /** Full-size images of probes before and after a direction's edit (enlarged worst probes; repair before/after). */
   'lab.probeImages': declare('control', z.object({ direction: z.string().min(1), seeds: z.array(seed).min(1).max(8), strength, psi }), z.object({ images: z.array(z.object({ seed, before: bytes, after: bytes })) })),
   /** Renamed under the same name rule as keep (app/protocol/names.ts). */

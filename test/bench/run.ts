@@ -4,7 +4,7 @@ import { fork } from 'node:child_process';
 import { readFileSync } from 'node:fs';
 import { join } from 'node:path';
 import { tmpdir } from 'node:os';
-import { mkdtempSync, rmSync } from 'node:fs';
+import { mkdtempSync, readdirSync, rmSync } from 'node:fs';
 import * as ort from 'onnxruntime-node';
 import { chromium } from '@playwright/test';
 import { Generator } from '../../app/engine/generator.ts';
@@ -305,8 +305,73 @@ async function locateLarge(card: string, budget: number) {
   }
 }
 
-if (process.env.PLUMBLINE_BENCH_ONLY === 'locate') {
-  // Only the locate rows (PLUMBLINE_BENCH_ONLY=locate npm run bench).
+/** Where an audit's CPU time goes, by source file (self time in a --cpu-prof profile). */
+const TIME_GROUPS: [string, RegExp][] = [
+  ['measure', /\/app\/core\/(scorers\/|color\.ts|image\.ts|audit\/(change-map|calibration)\.ts)|\/app\/engine\/(audit\/calibrate|attributes)\.ts/],
+  ['statistics', /\/app\/core\/(stats\.ts|audit\/(statistics|verdict)\.ts)/],
+  ['path length', /\/app\/core\/(ssim\.ts|audit\/(path-length|ssim-graph)\.ts)/],
+];
+
+function selfTimeByGroup(profileFile: string): Record<string, number> {
+  const prof = JSON.parse(readFileSync(profileFile, 'utf8')) as { nodes: { id: number; callFrame: { url: string } }[]; samples: number[]; timeDeltas: number[] };
+  const group = new Map(prof.nodes.map((n) => [n.id, TIME_GROUPS.find(([, re]) => re.test(n.callFrame.url))?.[0] ?? null]));
+  const out: Record<string, number> = Object.fromEntries(TIME_GROUPS.map(([g]) => [g, 0]));
+  // Each sample lasts until the next one: its duration is the next time delta (µs).
+  for (let i = 0; i + 1 < prof.samples.length; i++) {
+    const g = group.get(prof.samples[i]);
+    if (g) out[g] += prof.timeDeltas[i + 1] / 1000;
+  }
+  return out;
+}
+
+/** One image-only audit (measures, calibration, change maps) in a fresh profiled process: throughput and time split. */
+function auditSplitChild(card: string, probes: number, batch: number, source: string): Promise<{ ms: number; renderMs: number; images: number; changeMaps: number; calibrated: boolean; split: Record<string, number> }> {
+  const profDir = mkdtempSync(join(tmpdir(), 'plumbline-prof-'));
+  return new Promise((done, fail) => {
+    const child = fork(join(root, 'test', 'bench', 'audit-split-child.ts'), [card, String(probes), String(batch), source], { execArgv: ['--import', 'tsx', '--cpu-prof', '--cpu-prof-dir', profDir], stdio: ['ignore', 'pipe', 'inherit', 'ipc'], env: { ...process.env, PLUMBLINE_THREADS: String(THREADS) } });
+    let out = '';
+    child.stdout!.on('data', (c) => (out += c));
+    child.on('exit', (code) => {
+      try {
+        if (code !== 0) throw new Error(`audit child exited ${code}`);
+        const profile = readdirSync(profDir).find((f) => f.endsWith('.cpuprofile'));
+        if (!profile) throw new Error('audit child wrote no CPU profile');
+        done({ ...JSON.parse(out.trim().split('\n').pop()!), split: selfTimeByGroup(join(profDir, profile)) });
+      } catch (err) {
+        fail(err);
+      } finally {
+        rmSync(profDir, { recursive: true, force: true });
+      }
+    });
+  });
+}
+
+/** Issue 9: audit throughput from images alone vs bare generator throughput (same batch, same threads), and where the time goes. */
+async function auditMeasureRow(label: string, card: string, bareRate: number, batch: number, source: string, target: string) {
+  const r = await auditSplitChild(card, 64, batch, source);
+  const rate = r.images / (r.ms / 1000);
+  const share = (v: number) => `${Math.round((100 * v) / r.ms)}%`;
+  const other = r.ms - r.renderMs - Object.values(r.split).reduce((a, b) => a + b, 0);
+  rows.push([
+    `${label}: audit from images alone (measures, calibration, ${r.changeMaps} change maps), 64 probes, batch ${batch}`,
+    `${rate.toFixed(1)} img/s (${r.images} rendered + measured)`,
+    `${bareRate.toFixed(1)} img/s bare`,
+    `${(rate / bareRate).toFixed(3)}×${target}; time: render ${share(r.renderMs)}, ${Object.entries(r.split).map(([g, v]) => `${g} ${share(v)}`).join(', ')}, other ${share(other)}`,
+  ]);
+}
+
+function printRows() {
+  const widths = [0, 1, 2, 3].map((k) => Math.max(...rows.map((r) => r[k].length), ['measure', 'plumbline', 'reference', 'ratio'][k].length));
+  const line = (r: string[]) => r.map((c, k) => c.padEnd(widths[k])).join(' │ ');
+  console.log('\n' + line(['measure', 'plumbline', 'reference', 'ratio']));
+  console.log(widths.map((w) => '─'.repeat(w)).join('─┼─'));
+  for (const r of rows) console.log(line(r));
+}
+
+// PLUMBLINE_BENCH_ONLY=locate or =audit-measures runs those rows alone (with the bare throughputs
+// they compare with); without it, every row.
+const ONLY = process.env.PLUMBLINE_BENCH_ONLY ?? '';
+if (ONLY === 'locate') {
   await locateThroughput('demo 128²', demoCardPath(), 700);
   await locateTimeToMatch();
   const dir = mkdtempSync(join(tmpdir(), 'plumbline-bench-'));
@@ -315,6 +380,17 @@ if (process.env.PLUMBLINE_BENCH_ONLY === 'locate') {
   } finally {
     rmSync(dir, { recursive: true, force: true });
   }
+} else if (ONLY === 'audit-measures') {
+  const dir = mkdtempSync(join(tmpdir(), 'plumbline-bench-'));
+  try {
+    const large = authorLarge(dir);
+    const big = await throughput('realistic 256²', large.card, 4, 8, 3);
+    await auditMeasureRow('realistic 256²', large.card, big.rate, 4, 'random:1', ' (target ≥ 0.8)');
+  } finally {
+    rmSync(dir, { recursive: true, force: true });
+  }
+  const demo = await throughput('demo 128²', demoCardPath(), 16, 256, 5);
+  await auditMeasureRow('demo 128²', demoCardPath(), demo.rate, 16, join(root, 'resources', 'demo', 'sigil-directions.npy'), '');
 } else {
   const demo = await throughput('demo 128²', demoCardPath(), 16, 256, 15);
   const dir = mkdtempSync(join(tmpdir(), 'plumbline-bench-'));
@@ -322,6 +398,7 @@ if (process.env.PLUMBLINE_BENCH_ONLY === 'locate') {
     const large = authorLarge(dir);
     const big = await throughput(`realistic 256², ${(large.parameters / 1e6).toFixed(1)} M params`, large.card, 4, 8, 3);
     await variantRow('realistic 256²', large.card, big.rate, [1, 2, 3, 4], 2, 4);
+    await auditMeasureRow('realistic 256²', large.card, big.rate, 4, 'random:1', ' (target ≥ 0.8)');
     await locateLarge(large.card, 220);
   } finally {
     rmSync(dir, { recursive: true, force: true });
@@ -331,12 +408,8 @@ if (process.env.PLUMBLINE_BENCH_ONLY === 'locate') {
   await previewLatency(demo.single);
   await coldStart();
   await auditRows(demo.rate);
+  await auditMeasureRow('demo 128²', demoCardPath(), demo.rate, 16, join(root, 'resources', 'demo', 'sigil-directions.npy'), '');
   await locateThroughput('demo 128²', demoCardPath(), 700);
   await locateTimeToMatch();
 }
-
-const widths = [0, 1, 2, 3].map((k) => Math.max(...rows.map((r) => r[k].length), ['measure', 'plumbline', 'reference', 'ratio'][k].length));
-const line = (r: string[]) => r.map((c, k) => c.padEnd(widths[k])).join(' │ ');
-console.log('\n' + line(['measure', 'plumbline', 'reference', 'ratio']));
-console.log(widths.map((w) => '─'.repeat(w)).join('─┼─'));
-for (const r of rows) console.log(line(r));
+printRows();

@@ -41,11 +41,13 @@ test('the plan fixes seeds, grid and pairs and rejects impossible settings', () 
     [[{ probes: 4, strengths: [-1, 1] }, [unit('a')], { size: 4, layers: 1 }, ['x'], false], /must contain ±2/],
     [[{ probes: 4, pathLength: { distance: 'features', epsilon: 0.01, spikeRatio: 5 } }, [unit('a')], { size: 4, layers: 1 }, ['x'], false], /features output/],
     [[{ probes: 1 }, [unit('a')], { size: 4, layers: 1 }, ['x'], false], /at least 2 probes/],
-    [[{ probes: 4 }, [unit('a', 'y')], { size: 4, layers: 1 }, ['x'], false], /targets unknown attribute 'y'/],
+    [[{ probes: 4, attributes: ['x'] }, [unit('a', 'y')], { size: 4, layers: 1 }, ['x'], false], /targets unknown attribute 'y'/],
     [[{ probes: 4, combinations: [['a', 'z']] }, [unit('a'), unit('b')], { size: 4, layers: 1 }, ['x'], false], /combination a \+ z: unknown direction/],
     [[{ probes: 4 }, [{ ...unit('a'), vector: new Float32Array(3) }], { size: 4, layers: 2 }, ['x'], false], /has 3 values; this generator's latent size is 4/],
   ];
   for (const [args, pattern] of bad) assert.throws(() => planAudit(...args), pattern);
+  // Without an explicit attribute list a target with no measure is audited, and its verdict says so (issue 9, part 6).
+  assert.equal(planAudit({ probes: 4 }, [unit('a', 'y')], { size: 4, layers: 1 }, ['x'], false).seeds.length, 4);
 });
 
 /** A synthetic direction: target moves linearly, 'other' leaks a little and a lot at +3, path length spikes at +3. */

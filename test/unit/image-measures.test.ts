@@ -61,8 +61,9 @@ test('image moments of the METHODS §5.6 masks', () => {
   assert.ok(Math.abs(L.theta - 59.036243) < 1e-6);
 });
 
-test('the built-in measures see a drawn subject: area, centroid and colours', () => {
-  // A 40×20 orange rectangle on a grey 64×64 canvas, offset to the right.
+test('the built-in measures see a drawn subject: size, centroid, orientation and colours', () => {
+  // A 40×20 orange rectangle on a grey 64×64 canvas, offset to the right. Expected values are the
+  // rectangle's own geometry (area 800 px², centroid (40, 32) in pixel-centre coordinates + ½).
   const w = 64;
   const data = new Uint8ClampedArray(w * w * 4);
   for (let y = 0; y < w; y++)
@@ -72,11 +73,16 @@ test('the built-in measures see a drawn subject: area, centroid and colours', ()
     }
   const m = measureImage({ width: w, height: w, data });
   const get = (n: string) => m[IMAGE_MEASURES.findIndex((x) => x.name === n)];
-  assert.ok(Math.abs(get('area') - 800 / 4096) < 0.01, `area ${get('area')}`);
-  assert.ok(Math.abs(get('centroid_x') - 40 / 64) < 0.01);
-  assert.ok(Math.abs(get('centroid_y') - 32 / 64) < 0.01);
-  assert.ok(Math.abs(get('orientation')) < 1e-6, 'wide rectangle lies along x');
+  assert.ok(Math.abs(get('subject_radius') - Math.sqrt(800 / Math.PI) / 64) < 1e-9, `radius ${get('subject_radius')}`);
+  assert.ok(Math.abs(get('subject_x') - 40 / 64) < 1e-9);
+  assert.ok(Math.abs(get('subject_y') - 32 / 64) < 1e-9);
+  assert.equal(get('shape_fold'), 2, 'a 2:1 rectangle is two-fold');
+  assert.ok(Math.abs(get('orientation')) < 1e-9, 'wide rectangle lies along x');
+  // Principal variances of a w×h block of pixels are (w² − 1)/12 and (h² − 1)/12 (variance of a
+  // discrete uniform distribution, textbook): elongation 1 − 399/1599.
+  assert.ok(Math.abs(get('shape_elongation') - (1 - 399 / 1599)) < 1e-9);
   assert.ok(get('subject_chroma') > 50 && get('background_chroma') < 1);
+  assert.ok(Number.isNaN(get('background_hue')), 'a grey background has no hue');
   assert.ok(get('subject_hue') > 40 && get('subject_hue') < 80, `orange hue ${get('subject_hue')}`);
-  assert.ok(get('symmetry') < 1);
+  assert.ok(Math.abs(get('symmetry') - 1) < 1e-9, 'a rectangle is mirror-symmetric about its own axes');
 });

@@ -120,7 +120,7 @@ test('a cancelled job ends with the one cancelled result, which every job method
   await until(() => failing.settled.length === 1);
   assert.deepEqual(failing.settled, [{ kind: 'cancelled' }], 'cancellation is a result, not an error');
   const jobs = (Object.keys(methods) as Method[]).filter((m) => methods[m].lane === 'job');
-  assert.deepEqual(jobs.sort(), ['audit.run', 'grid.render', 'lab.discover', 'lab.repair', 'locate.run', 'variants.render']);
+  assert.deepEqual(jobs.sort(), ['attributes.define', 'audit.run', 'grid.render', 'lab.discover', 'lab.repair', 'locate.run', 'variants.render']);
   for (const m of jobs) {
     assert.deepEqual(resultSchemas[m].parse({ cancelled: true }), cancelledSchema.parse({ cancelled: true }), m);
     // The outcome schemas themselves never mention cancellation: it is declared once.

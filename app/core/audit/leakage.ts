@@ -35,20 +35,38 @@ export interface LeakSummary {
   targetIndex: number;
 }
 
-const mean = (c: Float64Array) => c.reduce((a, b) => a + b, 0) / c.length;
+/** Mean over the measurable probes (NaN = "not measurable here", left out); NaN when none is. */
+const mean = (c: Float64Array) => {
+  let s = 0;
+  let n = 0;
+  for (const v of c) if (!Number.isNaN(v)) (s += v), n++;
+  return n ? s / n : NaN;
+};
 const absColumns = (cols: ChangeColumns) => cols.map((c) => c.map(Math.abs));
+
+/**
+ * Which attributes may be called the leak, given the mean |Δ|/σ of every attribute at one strength
+ * and the target's index: false for an attribute that is never a leak candidate (a composite the
+ * user did not pick) or whose change is within what the instrument shows by itself (issue 9: its
+ * noise floor or its cross-talk under exact transforms). Applied inside every resample, like the
+ * choice of sign and attribute. Without a screen every non-target attribute counts.
+ */
+export type LeakScreen = (means: ArrayLike<number>, target: number) => boolean[];
+const everyAttribute: LeakScreen = (means) => Array.from(means, () => true);
 
 /**
  * The leak at ±reference: columns[0] are the changes at +reference, columns[1] at −reference.
  * target = null picks, inside each resample, the attribute with the largest mean |Δ| at +reference.
  */
-export function leakAtReference(bootstrap: ProbeBootstrap, plus: ChangeColumns, minus: ChangeColumns, target: number | null, reference: number): LeakSummary {
+export function leakAtReference(bootstrap: ProbeBootstrap, plus: ChangeColumns, minus: ChangeColumns, target: number | null, reference: number, screen: LeakScreen = everyAttribute, candidates: boolean[] = plus.map(() => true)): LeakSummary {
   const K = plus.length;
   const cols = [...absColumns(plus), ...absColumns(minus)];
   const pickTarget = (m: Float64Array) => {
     if (target !== null) return target;
-    let best = 0;
-    for (let j = 1; j < K; j++) if (m[j] > m[best]) best = j;
+    // The attribute moved most at +reference among those that may be a target (NaN never wins).
+    let best = candidates.indexOf(true);
+    if (best < 0) best = 0;
+    for (let j = 0; j < K; j++) if (candidates[j] && m[j] > m[best]) best = j;
     return best;
   };
   /** [leak, sign (0 = +, 1 = −), attribute, target, ratio] of a vector of column means. */
@@ -57,16 +75,23 @@ export function leakAtReference(bootstrap: ProbeBootstrap, plus: ChangeColumns, 
     let leak = -Infinity;
     let sign = 0;
     let attribute = t;
-    for (let s = 0; s < 2; s++)
+    for (let s = 0; s < 2; s++) {
+      const side = m.subarray(s * K, s * K + K);
+      const counts = screen(side, t);
       for (let j = 0; j < K; j++) {
-        if (j === t) continue;
+        if (j === t || !counts[j]) continue;
         if (m[s * K + j] > leak) {
           leak = m[s * K + j];
           sign = s;
           attribute = j;
         }
       }
-    if (K < 2) leak = 0;
+    }
+    // Nothing that counts moved (or there is nothing else): no leak, and no leaked attribute.
+    if (!(leak > -Infinity)) {
+      leak = 0;
+      attribute = -1;
+    }
     const tv = m[sign * K + t];
     return { leak, sign, attribute, t, target: tv, ratio: tv > 1e-12 ? leak / tv : Infinity };
   };
@@ -82,31 +107,50 @@ export function leakAtReference(bootstrap: ProbeBootstrap, plus: ChangeColumns, 
 }
 
 /** max over non-target attributes of mean |Δ| at one strength, with the attribute chosen inside each resample. */
-export function leakAtStrength(bootstrap: ProbeBootstrap, changes: ChangeColumns, target: number): Interval & { attribute: number } {
+export function leakAtStrength(bootstrap: ProbeBootstrap, changes: ChangeColumns, target: number, screen: LeakScreen = everyAttribute): Interval & { attribute: number } {
   const cols = absColumns(changes);
   const worst = (m: Float64Array) => {
+    const counts = screen(m, target);
     let best = -1;
-    for (let j = 0; j < m.length; j++) if (j !== target && (best < 0 || m[j] > m[best])) best = j;
+    for (let j = 0; j < m.length; j++) if (j !== target && counts[j] && m[j] >= 0 && (best < 0 || m[j] > m[best])) best = j;
     return best;
   };
   const attribute = worst(Float64Array.from(cols, mean));
-  if (attribute < 0) return { value: 0, low: 0, high: 0, attribute: target };
-  return { ...bootstrap.interval(cols, (m) => m[worst(m)]), attribute };
+  // Nothing that counts moved on the full sample: no leak here (resamples are not asked to find one).
+  if (attribute < 0) return { value: 0, low: 0, high: 0, attribute: -1 };
+  return { ...bootstrap.interval(cols, (m) => {
+    const j = worst(m);
+    return j < 0 ? 0 : m[j];
+  }), attribute };
 }
 
 /**
  * Probe-level exceedance: x of n probes whose own leak (largest |Δa_j|/σ_j over non-target
  * attributes and both reference signs) reaches `threshold`, with the Clopper–Pearson interval.
  */
-export function exceedance(plus: ChangeColumns, minus: ChangeColumns, target: number, threshold: number, confidence = 0.95): { threshold: number; probes: number; count: number; share: number; low: number; high: number } {
+export function exceedance(plus: ChangeColumns, minus: ChangeColumns, target: number, threshold: number, confidence = 0.95, counted: [boolean[], boolean[]] | null = null): { threshold: number; probes: number; count: number; share: number; low: number; high: number } {
   const n = plus[0]?.length ?? 0;
   let count = 0;
+  let probes = 0;
   for (let p = 0; p < n; p++) {
+    // A probe on which no counted attribute is measurable says nothing either way: left out.
     let leak = 0;
-    for (const side of [plus, minus]) for (let j = 0; j < side.length; j++) if (j !== target) leak = Math.max(leak, Math.abs(side[j][p]));
+    let measurable = false;
+    [plus, minus].forEach((side, s) => {
+      for (let j = 0; j < side.length; j++) {
+        if (j === target || (counted && !counted[s][j])) continue;
+        const v = Math.abs(side[j][p]);
+        if (Number.isNaN(v)) continue;
+        measurable = true;
+        leak = Math.max(leak, v);
+      }
+    });
+    if (!measurable && (counted ? counted.some((c) => c.some((x, j) => x && j !== target)) : plus.length > 1)) continue;
+    probes++;
     if (leak >= threshold) count++;
   }
-  return { threshold, probes: n, count, ...clopperPearson(count, n, confidence) };
+  if (probes === 0) return { threshold, probes: 0, count: 0, share: NaN, low: 0, high: 1 };
+  return { threshold, probes, count, ...clopperPearson(count, probes, confidence) };
 }
 
 export interface BreakPoint {

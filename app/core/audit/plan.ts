@@ -67,8 +67,12 @@ export function planAudit(rawSettings: Partial<AuditSettings>, directions: Audit
       throw new PlumblineError('latent-size-mismatch', `direction '${d.name}' has ${d.vector.length} values; this generator's latent size is ${latent.size}`);
     }
   }
-  for (const d of directions) {
-    if (d.target && !attributes.includes(d.target)) throw new PlumblineError('bad-request', `direction '${d.name}' targets unknown attribute '${d.target}'; audited attributes: ${attributes.join(', ')}`);
+  // A target with no measure: with an explicit attribute list it is most likely a typo (an
+  // error); otherwise the direction is audited and its verdict says its target has no measure.
+  if (Array.isArray(settings.attributes)) {
+    for (const d of directions) {
+      if (d.target && !attributes.includes(d.target)) throw new PlumblineError('bad-request', `direction '${d.name}' targets unknown attribute '${d.target}'; audited attributes: ${attributes.join(', ')}`);
+    }
   }
   const seeds = [...settings.pinnedSeeds, ...Array.from({ length: settings.probes }, (_, i) => PROBE_SEED_BASE + settings.seed * SEED_STRIDE + i)];
   if (seeds.length === 0) throw new PlumblineError('bad-request', 'the probe set is empty: ask for --probes N or pin some seeds');

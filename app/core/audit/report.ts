@@ -4,10 +4,12 @@
 // protocol as separate binary thumbnails (auditReportWire).
 import { AUDIT_CAUTION, MIN_USEFUL_PROBES, type AuditSettings } from './settings.ts';
 import type { AuditPlan } from './plan.ts';
-import { significant, type CombinationStatistics, type DirectionStatistics, type Interval } from './statistics.ts';
+import { significant, type CombinationStatistics, type DirectionStatistics, type Interval, type WithinInstrument } from './statistics.ts';
 import type { CombinationVerdict, DirectionVerdict, NullPercentiles } from './verdict.ts';
 import { VERDICT_RULE } from './leakage.ts';
 import { pathLengthUnits } from './path-length.ts';
+import type { MeasureCalibration } from './calibration.ts';
+import type { Consistency, RegionShares } from './change-map.ts';
 
 export type { Interval } from './statistics.ts';
 
@@ -46,6 +48,33 @@ export interface DirectionReport {
   leakageUpper: (number | null)[];
   pathLengthCurve: { strengths: number[]; mean: number[]; low: number[]; high: number[] };
   worstProbes: WorstProbe[];
+  /** Apparent leaks no larger than the instrument's noise floor or cross-talk: not counted as leaks. */
+  withinInstrument: WithinInstrument[];
+  /** Per attribute, probes left out at +reference because it was not measurable there. */
+  notMeasurable: Record<string, number>;
+  /** Where the direction acts (METHODS §9.3), or null when no probe images were kept. */
+  changeMap: ChangeMapReport | null;
+  /** How consistently it moves its target across probes, at +reference. */
+  consistency: Consistency;
+}
+
+export interface ChangeMapReport {
+  /** PNG of the mean per-pixel CIEDE2000 at +reference (black 0 … white at fullScale) */
+  png: Uint8Array;
+  width: number;
+  height: number;
+  probes: number;
+  fullScale: number;
+  meanDeltaE: number;
+  shares: RegionShares;
+}
+
+export interface InstrumentCalibrationReport {
+  probes: number;
+  operations: { invisible: string[]; exact: string[] };
+  measures: Record<string, MeasureCalibration>;
+  floorMultiple: number;
+  crossTalkMultiple: number;
 }
 
 /** The generator's path length in the published form (Karras et al. 2019), as a reference row. */
@@ -97,7 +126,9 @@ export interface AuditReport {
   generator: { name: string; fingerprint: string };
   settings: AuditSettings;
   probes: { count: number; pinned: number[]; firstSeed: number; psi: number };
-  attributes: { name: string; unit: string; source: string; sigma: number }[];
+  /** `accuracy`: a defined attribute's cross-validated accuracy in words (reported wherever it is used);
+   * `judged`: false for a composite or descriptor that is reported but never a leak candidate. */
+  attributes: { name: string; unit: string; source: string; sigma: number; judged?: boolean; accuracy?: string }[];
   warnings: string[];
   caution: string;
   directions: DirectionReport[];
@@ -108,13 +139,26 @@ export interface AuditReport {
   referencePathLength: ReferencePathLength | null;
   /** The pass / review / fail rule the verdicts applied, in words. */
   verdictRule: string[];
+  /** The instrument's own noise floor and cross-talk per measure on this probe set (null when nothing could be calibrated). */
+  calibration: InstrumentCalibrationReport | null;
+  /** Probes on which no subject separated from the background (built-in measures only). */
+  noSubject: { probes: number; of: number } | null;
 }
 
 /** One direction's report from its statistics, verdict and rendered worst probes. */
-export function directionReport(name: string, stats: DirectionStatistics, judged: { verdict: DirectionVerdict; reason: string; decidedBy?: string }, plan: Pick<AuditPlan, 'distance' | 'epsilon' | 'exponent'>, worstProbes: WorstProbe[], nullBaseline: NullPercentiles | null = null): DirectionReport {
+export function directionReport(
+  name: string,
+  stats: DirectionStatistics,
+  judged: { verdict: DirectionVerdict; reason: string; decidedBy?: string },
+  plan: Pick<AuditPlan, 'distance' | 'epsilon' | 'exponent'>,
+  worstProbes: WorstProbe[],
+  nullBaseline: NullPercentiles | null = null,
+  extra: { changeMap?: ChangeMapReport | null; consistency?: Consistency; declaredTarget?: string | null } = {},
+): DirectionReport {
   return {
     name,
-    target: stats.target,
+    // A target with no measure keeps its declared name (the verdict says it has no measure).
+    target: judged.verdict === 'no-measure' && extra.declaredTarget ? extra.declaredTarget : stats.target,
     targetChosen: stats.targetChosen,
     verdict: judged.verdict,
     reason: judged.reason,
@@ -134,6 +178,10 @@ export function directionReport(name: string, stats: DirectionStatistics, judged
     leakageUpper: stats.leakageUpper,
     pathLengthCurve: stats.pathLengthCurve,
     worstProbes,
+    withinInstrument: stats.withinInstrument ?? [],
+    notMeasurable: stats.notMeasurable ?? {},
+    changeMap: extra.changeMap ?? null,
+    consistency: extra.consistency ?? { probes: 0, median: NaN, mean: NaN, coefficientOfVariation: NaN, flipShare: NaN },
   };
 }
 
@@ -145,7 +193,9 @@ export function assembleReport(x: {
   plan: AuditPlan;
   tool: string;
   generator: { name: string; fingerprint: string };
-  attributes: { name: string; unit: string; source: string; sigma: number }[];
+  /** `accuracy`: a defined attribute's cross-validated accuracy in words (reported wherever it is used);
+   * `judged`: false for a composite or descriptor that is reported but never a leak candidate. */
+  attributes: { name: string; unit: string; source: string; sigma: number; judged?: boolean; accuracy?: string }[];
   /** Warnings found while sampling (added after the plan's). */
   warnings: string[];
   directions: DirectionReport[];
@@ -153,6 +203,8 @@ export function assembleReport(x: {
   groundTruth: GroundTruthMetrics | null;
   nullBaseline?: NullBaseline | null;
   referencePathLength?: ReferencePathLength | null;
+  calibration?: InstrumentCalibrationReport | null;
+  noSubject?: { probes: number; of: number } | null;
   createdAt?: Date;
 }): AuditReport {
   const { plan } = x;
@@ -165,7 +217,7 @@ export function assembleReport(x: {
     generator: { name: x.generator.name, fingerprint: x.generator.fingerprint },
     settings,
     probes: { count: plan.seeds.length, pinned: settings.pinnedSeeds, firstSeed: plan.seeds[settings.pinnedSeeds.length] ?? plan.seeds[0], psi: settings.psi },
-    attributes: x.attributes.map((a) => ({ name: a.name, unit: a.unit, source: a.source, sigma: significant(a.sigma, 6) })),
+    attributes: x.attributes.map((a) => ({ name: a.name, unit: a.unit, source: a.source, sigma: significant(a.sigma, 6), ...(a.judged === false ? { judged: false } : {}), ...(a.accuracy ? { accuracy: a.accuracy } : {}) })),
     warnings: [...plan.warnings, ...x.warnings],
     caution: AUDIT_CAUTION,
     directions: x.directions,
@@ -174,6 +226,8 @@ export function assembleReport(x: {
     nullBaseline: x.nullBaseline ?? null,
     referencePathLength: x.referencePathLength ?? null,
     verdictRule: VERDICT_RULE,
+    calibration: x.calibration ?? null,
+    noSubject: x.noSubject ?? null,
   };
 }
 
@@ -183,12 +237,13 @@ export const tooFewProbes = (count: number) => count < MIN_USEFUL_PROBES;
 /** The report as a JSON file holds it: thumbnails inline as PNG data URIs so the file stands alone. */
 export function auditReportFile(report: AuditReport) {
   const dataUri = (png: Uint8Array) => `data:image/png;base64,${Buffer.from(png).toString('base64')}`;
-  return { ...report, directions: report.directions.map((d) => ({ ...d, worstProbes: d.worstProbes.map((w) => ({ ...w, before: dataUri(w.before), after: dataUri(w.after) })) })) };
+  return { ...report, directions: report.directions.map((d) => ({ ...d, changeMap: d.changeMap && { ...d.changeMap, png: dataUri(d.changeMap.png) }, worstProbes: d.worstProbes.map((w) => ({ ...w, before: dataUri(w.before), after: dataUri(w.after) })) })) };
 }
 
 /** The report as the protocol carries it: worst probes without images, the images as a separate binary list. */
 export function auditReportWire(report: AuditReport) {
   const thumbnails = report.directions.flatMap((d) => d.worstProbes.map((w) => ({ direction: d.name, ...w })));
-  const wire = { ...report, directions: report.directions.map((d) => ({ ...d, worstProbes: d.worstProbes.map(({ before: _before, after: _after, ...rest }) => rest) })) };
-  return { report: wire, thumbnails };
+  const changeMaps = report.directions.flatMap((d) => (d.changeMap ? [{ direction: d.name, png: d.changeMap.png }] : []));
+  const wire = { ...report, directions: report.directions.map((d) => ({ ...d, changeMap: d.changeMap && (({ png: _png, ...rest }) => rest)(d.changeMap), worstProbes: d.worstProbes.map(({ before: _before, after: _after, ...rest }) => rest) })) };
+  return { report: wire, thumbnails, changeMaps };
 }

@@ -5,7 +5,7 @@
 // arrays in, plain numbers out; the engine's measure step (app/engine/audit/measure.ts) fills the
 // arrays, and verdict.ts turns these numbers into words.
 import { ProbeBootstrap, RunningMoments, percentileRank } from '../stats.ts';
-import { exceedance, leakAtReference, leakAtStrength, type BreakPoint } from './leakage.ts';
+import { exceedance, leakAtReference, leakAtStrength, type BreakPoint, type LeakScreen } from './leakage.ts';
 import { filteredMean, percentileFilterBounds } from './path-length.ts';
 import type { AuditSettings } from './settings.ts';
 import { safeRangeFromCurves } from './safe-range.ts';
@@ -84,6 +84,87 @@ export interface DirectionStatistics {
   pathLengthCurve: { strengths: number[]; mean: number[]; low: number[]; high: number[] };
   /** The probes that leak most at the worse reference sign, worst first. */
   worstProbes: WorstProbeChoice[];
+  /** Per attribute, probes left out at ±reference because the measure was not measurable there (only those with any). */
+  notMeasurable: Record<string, number>;
+  /** Apparent leaks no larger than the instrument shows by itself, largest first: not counted. */
+  withinInstrument: WithinInstrument[];
+}
+
+/**
+ * What the instrument shows by itself, per attribute (issue 9 part 3, app/core/audit/calibration.ts):
+ * its noise floor in σ, and the cross-talk of the exact operation that owns a target (per attribute,
+ * a ratio to the target's own change; 0 when no operation owns it). A change within
+ * floorMultiple × floor, or within crossTalkMultiple × cross-talk × the target's change, is not
+ * called a leak; nor is a change explained, through cross-talk, by a real leak into another
+ * attribute (a background-lightness leak re-quantises the background's chroma).
+ */
+export interface InstrumentAllowance {
+  floor: number[];
+  crossTalk: (target: string) => number[];
+  floorMultiple: number;
+  crossTalkMultiple: number;
+}
+
+export interface WithinInstrument {
+  attribute: string;
+  /** mean |Δ|/σ of this attribute at the worse reference sign */
+  change: number;
+  /** that change over the target's own mean |Δ|/σ */
+  ratio: number;
+  noiseFloor: number;
+  crossTalk: number;
+  /** set when the change is explained through cross-talk by a real leak into this attribute */
+  via?: string;
+}
+
+/** Target changes below this (in σ of the target) count as not moving it (a ratio to it is unbounded). */
+const NO_EFFECT = 1e-9;
+
+/**
+ * The leak screen of a direction: `candidate[j] === false` marks an attribute reported but never the
+ * leak; the instrument allowance sets aside changes within its floor and cross-talk. Returns, for
+ * one sign's mean |Δ|/σ per attribute and the target, which attributes count and why the others
+ * do not (for the report).
+ */
+export function leakScreen(attributes: string[], candidate: boolean[] | undefined, instrument: InstrumentAllowance | undefined) {
+  const reasons = (means: ArrayLike<number>, t: number) => {
+    const K = attributes.length;
+    const counts = new Array<boolean>(K).fill(false);
+    const aside: WithinInstrument[] = [];
+    const tChange = means[t];
+    const ratioOf = (j: number) => (tChange > NO_EFFECT ? means[j] / tChange : Infinity);
+    const allowance = instrument?.crossTalk(attributes[t]);
+    for (let j = 0; j < K; j++) {
+      if (j === t || candidate?.[j] === false) continue;
+      if (!instrument) {
+        counts[j] = true;
+        continue;
+      }
+      const change = means[j];
+      const inside = !(change > instrument.floorMultiple * instrument.floor[j]) || !(ratioOf(j) > instrument.crossTalkMultiple * allowance![j]);
+      if (inside) {
+        if (change > 0) aside.push({ attribute: attributes[j], change: significant(change), ratio: significant(ratioOf(j)), noiseFloor: significant(instrument.floor[j]), crossTalk: significant(allowance![j]) });
+      } else counts[j] = true;
+    }
+    if (instrument) {
+      const counted = counts.map((c, j) => (c ? j : -1)).filter((j) => j >= 0);
+      for (const j of counted)
+        for (const i of counted) {
+          if (i === j) continue;
+          const via = instrument.crossTalk(attributes[i]);
+          // i must be owned by an exact operation (its own entry 0) that moves j by cross-talk.
+          if (!(via[i] === 0 || via[i] === undefined) || !(via[j] > 0)) continue;
+          if (means[j] <= instrument.crossTalkMultiple * means[i] * via[j]) {
+            counts[j] = false;
+            aside.push({ attribute: attributes[j], change: significant(means[j]), ratio: significant(ratioOf(j)), noiseFloor: significant(instrument.floor[j]), crossTalk: significant((means[i] * via[j]) / Math.max(tChange, NO_EFFECT)), via: attributes[i] });
+            break;
+          }
+        }
+    }
+    return { counts, aside };
+  };
+  const screen: LeakScreen = (means, t) => reasons(means, t).counts;
+  return { screen, reasons };
 }
 
 /** What a random direction is compared on: see nullSummary. */
@@ -100,7 +181,7 @@ export interface NullSummary {
  * the same way: mean |Δ|/σ of every attribute at ±reference and the end-point path length.
  */
 export function nullSummary(m: DirectionMeasurements, plan: Pick<StatisticsGrid, 'grid' | 'pathLengthGrid' | 'reference'>): NullSummary {
-  const at = (s: number) => m.change[plan.grid.indexOf(s)]!.map((c) => c.reduce((a, v) => a + Math.abs(v), 0) / c.length);
+  const at = (s: number) => m.change[plan.grid.indexOf(s)]!.map(meanAbs);
   const zero = plan.pathLengthGrid.indexOf(0);
   return { plus: at(plan.reference), minus: at(-plan.reference), pathLength: zero >= 0 ? filteredMean(m.pathLength[zero]).mean : NaN };
 }
@@ -111,14 +192,24 @@ export function nullSummary(m: DirectionMeasurements, plan: Pick<StatisticsGrid,
  * nullSummary) for this direction's target: mean |Δ target| at +reference, the largest mean |Δ|
  * over the other attributes at ±reference, and the end-point path length (at strength 0).
  */
-export function nullPercentiles(direction: NullSummary, target: number, nulls: NullSummary[]): { count: number; targetEffect: number; leakage: number; pathLength: number } {
-  const leakOf = (x: NullSummary) => Math.max(0, ...[x.plus, x.minus].flatMap((side) => side.filter((_, j) => j !== target)));
+export function nullPercentiles(direction: NullSummary, target: number, nulls: NullSummary[], candidate?: boolean[]): { count: number; targetEffect: number; leakage: number; pathLength: number } {
+  // Composites the user did not pick are never the leak, for the nulls as for the direction; an
+  // attribute not measurable anywhere (NaN) is left out.
+  const leakOf = (x: NullSummary) => Math.max(0, ...[x.plus, x.minus].flatMap((side) => side.filter((v, j) => j !== target && candidate?.[j] !== false && !Number.isNaN(v))));
   return {
     count: nulls.length,
     targetEffect: significant(percentileRank(nulls.map((x) => x.plus[target]), direction.plus[target]), 4),
     leakage: significant(percentileRank(nulls.map(leakOf), leakOf(direction)), 4),
     pathLength: significant(percentileRank(nulls.map((x) => x.pathLength), direction.pathLength), 4),
   };
+}
+
+/** Mean |v| over the measurable probes (NaN = not measurable there); NaN when none is. */
+function meanAbs(c: Float64Array): number {
+  let sum = 0;
+  let n = 0;
+  for (const v of c) if (!Number.isNaN(v)) (sum += Math.abs(v)), n++;
+  return n ? sum / n : NaN;
 }
 
 /**
@@ -146,7 +237,12 @@ function pathLengthColumns(m: DirectionMeasurements, plan: Pick<StatisticsGrid, 
   return { sums, counts, mean: total ? sums.reduce((a, b) => a + b, 0) / total : NaN, dropped: all.length - total };
 }
 
-export function directionStatistics(m: DirectionMeasurements, plan: StatisticsGrid, attributes: string[], seeds: number[], declaredTarget: string | null, bootstrap: ProbeBootstrap): DirectionStatistics {
+/**
+ * `leak[j] === false` marks an attribute reported but never taken as the leak (a composite or
+ * descriptor the user did not pick); `instrument` sets aside changes within what the instrument
+ * shows by itself. NaN changes are "not measurable on that probe" and are left out of every mean.
+ */
+export function directionStatistics(m: DirectionMeasurements, plan: StatisticsGrid, attributes: string[], seeds: number[], declaredTarget: string | null, bootstrap: ProbeBootstrap, leak?: boolean[], instrument?: InstrumentAllowance): DirectionStatistics {
   const { grid, pathLengthGrid: pplGrid, reference: ref, settings } = plan;
   const n = seeds.length;
   const K = attributes.length;
@@ -167,14 +263,15 @@ export function directionStatistics(m: DirectionMeasurements, plan: StatisticsGr
   // The leak at ±reference, with sign, worst attribute and (when none is declared) the target
   // chosen inside every resample.
   const declared = declaredTarget ? attributes.indexOf(declaredTarget) : -1;
-  const atRef = leakAtReference(bootstrap, plusRows, minusRows, declared >= 0 ? declared : null, ref);
+  const { screen, reasons } = leakScreen(attributes, leak, instrument);
+  const atRef = leakAtReference(bootstrap, plusRows, minusRows, declared >= 0 ? declared : null, ref, screen, attributes.map((_, j) => leak?.[j] !== false));
   const target = atRef.targetIndex;
   const targetChosen = declared < 0;
   const worseSign = atRef.strength > 0 ? 0 : 1;
   const worseRows = worseSign === 0 ? plusRows : minusRows;
 
   // Leak along the grid, each with its interval; the safe range reads the upper bounds.
-  const curveLeaks = grid.map((s, gi) => (s === 0 ? null : leakAtStrength(bootstrap, m.change[gi]!, target)));
+  const curveLeaks = grid.map((s, gi) => (s === 0 ? null : leakAtStrength(bootstrap, m.change[gi]!, target, screen)));
   const pplMeans = ppl.map((mm) => mm.mean);
   const calm = pplGrid.map((t, i) => (Math.abs(t) <= 1 ? pplMeans[i] : NaN)).filter(Number.isFinite);
   const calmMedian = calm.length ? [...calm].sort((a, b) => a - b)[Math.floor(calm.length / 2)] : NaN;
@@ -198,12 +295,21 @@ export function directionStatistics(m: DirectionMeasurements, plan: StatisticsGr
   const pathLength = roundInterval(bootstrap.interval([paths.sums, paths.counts], (mns) => (mns[1] > 0 ? mns[0] / mns[1] : NaN)));
   const ratioFinite = [atRef.ratio.value, atRef.ratio.low, atRef.ratio.high].every(Number.isFinite);
 
-  // Worst probes at the worse reference sign: the largest own leak, in σ of the leaked attribute.
-  const others = attributes.map((_, j) => j).filter((j) => j !== target);
+  // What counts at each reference sign on the full sample (the exceedance and the worst probes
+  // read these; the leak's interval re-screens inside every resample).
+  const sideMeans = (rows: Float64Array[]) => rows.map(meanAbs);
+  const plusScreen = reasons(sideMeans(plusRows), target);
+  const minusScreen = reasons(sideMeans(minusRows), target);
+  const worseScreen = worseSign === 0 ? plusScreen : minusScreen;
+
+  // Worst probes at the worse reference sign: the largest own leak among the attributes that count,
+  // in σ of the leaked attribute (a probe where none of them is measurable is left out).
+  const others = attributes.map((_, j) => j).filter((j) => worseScreen.counts[j]);
   const worst: WorstProbeChoice[] = [];
-  for (let p = 0; p < n; p++) {
-    let bj = others[0] ?? target;
-    for (const j of others) if (Math.abs(worseRows[j][p]) > Math.abs(worseRows[bj][p])) bj = j;
+  for (let p = 0; p < n && others.length; p++) {
+    let bj = -1;
+    for (const j of others) if (!Number.isNaN(worseRows[j][p]) && (bj < 0 || Math.abs(worseRows[j][p]) > Math.abs(worseRows[bj][p]))) bj = j;
+    if (bj < 0) continue;
     worst.push({ seed: seeds[p], strength: atRef.strength, attribute: attributes[bj], leakage: Math.abs(worseRows[bj][p]), index: p });
   }
   worst.sort((a, b) => b.leakage - a.leakage);
@@ -228,8 +334,8 @@ export function directionStatistics(m: DirectionMeasurements, plan: StatisticsGr
     targetChosen,
     targetEffect,
     dependency,
-    leakage: { ...roundInterval(atRef.leak), strength: atRef.strength, attribute: attributes[atRef.attribute], unit: 'σ', targetChange: roundInterval(atRef.target), ratio: ratioFinite ? roundInterval(atRef.ratio) : null },
-    exceedance: roundExceedance(exceedance(plusRows, minusRows, target, settings.leakPass)),
+    leakage: { ...roundInterval(atRef.leak), strength: atRef.strength, attribute: atRef.attribute >= 0 ? attributes[atRef.attribute] : 'none', unit: 'σ', targetChange: roundInterval(atRef.target), ratio: ratioFinite ? roundInterval(atRef.ratio) : null },
+    exceedance: roundExceedance(exceedance(plusRows, minusRows, target, settings.leakPass, 0.95, [plusScreen.counts, minusScreen.counts])),
     pathLength: { ...pathLength, filtered: paths.dropped },
     safeRange: safe,
     breaksAt: breaks.positive?.strength ?? null,
@@ -243,6 +349,12 @@ export function directionStatistics(m: DirectionMeasurements, plan: StatisticsGr
     leakageUpper,
     pathLengthCurve: { strengths: pplGrid, mean: pathLengthCurveMean, low: ppl.map((mm) => significant(mm.interval()[0])), high: ppl.map((mm) => significant(mm.interval()[1])) },
     worstProbes: worst.slice(0, settings.worstProbes),
+    notMeasurable: Object.fromEntries(
+      attributes
+        .map((a, j) => [a, Math.max(...[plusRows, minusRows].map((rows) => rows[j].reduce((c, v) => c + (Number.isNaN(v) ? 1 : 0), 0)))] as const)
+        .filter(([, c]) => c > 0),
+    ),
+    withinInstrument: worseScreen.aside.sort((a, b) => b.change - a.change),
   };
 }
 
@@ -266,11 +378,15 @@ export function combinationStatistics(m: PairMeasurements, attributes: string[],
   const probes = m.imageInteraction.length;
   const bootstrap = new ProbeBootstrap(probes, resamples, seed + 1);
   let worstJ = 0;
-  const means = m.attributeChange.map((c) => c.reduce((x, y) => x + y, 0) / probes);
+  // Probes where an attribute is not measurable (NaN) are left out of its mean.
+  const means = m.attributeChange.map((c) => {
+    const v = meanAbs(c);
+    return Number.isNaN(v) ? -Infinity : v;
+  });
   means.forEach((v, j) => v > means[worstJ] && (worstJ = j));
   return {
     attribute: attributes[worstJ],
-    attributeInteraction: roundInterval(bootstrap.interval(m.attributeChange, (mns) => Math.max(...mns))),
+    attributeInteraction: roundInterval(bootstrap.interval(m.attributeChange, (mns) => Math.max(...Array.from(mns).filter((v) => !Number.isNaN(v))))),
     imageInteraction: roundInterval(bootstrap.interval([m.imageInteraction], (mns) => mns[0])),
   };
 }

@@ -5,7 +5,8 @@ import type { AuditSettings } from './settings.ts';
 import type { CombinationStatistics, DirectionStatistics } from './statistics.ts';
 import { MAX_EXCEEDANCE_SHARE, verdictFor } from './leakage.ts';
 
-export type DirectionVerdict = 'pass' | 'review' | 'fail';
+/** 'no-measure': the direction's target has no measure in this audit, so nothing can be judged. */
+export type DirectionVerdict = 'pass' | 'review' | 'fail' | 'no-measure';
 export type CombinationVerdict = 'additive' | 'interacts';
 
 /** Non-additivity below this (in σ of the attribute) counts as additive; judged on the upper 95% bound. */
@@ -25,9 +26,17 @@ export interface NullPercentiles {
  * bounds (what this probe count can and cannot rule out), breaks on either side by name, the
  * safe range and, when measured, the null-baseline percentiles.
  */
-export function judgeDirection(stats: DirectionStatistics, x: { reference: number; settings: Pick<AuditSettings, 'leakPass' | 'leakFail'>; fewProbes: boolean; pathLengthGrid: number[]; nulls?: NullPercentiles | null }): { verdict: DirectionVerdict; reason: string; decidedBy: string } {
+export function judgeDirection(stats: DirectionStatistics, x: { reference: number; settings: Pick<AuditSettings, 'leakPass' | 'leakFail'>; fewProbes: boolean; pathLengthGrid: number[]; nulls?: NullPercentiles | null; unmeasuredTarget?: string | null }): { verdict: DirectionVerdict; reason: string; decidedBy: string } {
   const L = stats.leakage;
   const { settings: S, reference: ref } = x;
+  if (x.unmeasuredTarget) {
+    // Judging it on whichever measure moved most would answer a question nobody asked.
+    return {
+      verdict: 'no-measure',
+      decidedBy: 'no measure for the target',
+      reason: `no measure for its target ${x.unmeasuredTarget} — define one (no card attribute, built-in measure, defined attribute or scorer is called ${x.unmeasuredTarget}); of the audited measures it moves ${stats.target} most (${fmt2(Math.abs(stats.targetEffect.value))} σ at ${formatStrength(ref)})`,
+    };
+  }
   const { verdict, decidedBy } = verdictFor({
     leak: L,
     target: stats.targetEffect,
@@ -45,6 +54,7 @@ export function judgeDirection(stats: DirectionStatistics, x: { reference: numbe
   const exceedText = `${E.count} of ${E.probes} probes leak ≥ ${fmt2(E.threshold)} σ (95% CI ${pct(E.low)}–${pct(E.high)} of probes)`;
   const leakText = `leaks into ${L.attribute}: ${fmt2(L.value)} σ at strength ${formatStrength(L.strength)} (95% CI ${fmt2(L.low)}–${fmt2(L.high)}) against the target's own ${fmt2(L.targetChange.value)} σ`;
   if (decidedBy === 'target barely moves') parts.push(`barely moves its target ${stats.target} (${fmt2(stats.targetEffect.value)} σ at ${formatStrength(ref)})`);
+  else if (verdict === 'pass' && L.attribute === 'none') parts.push(`clean within ±${ref}: no other attribute moves beyond what the instrument shows by itself (its noise floor and cross-talk)`);
   else if (verdict === 'pass') parts.push(`clean within ±${ref}: largest leak ${fmt2(L.value)} σ (${L.attribute}, 95% CI up to ${fmt2(L.high)}) against the target's ${fmt2(L.targetChange.value)} σ`);
   else if (L.high < S.leakPass) parts.push(`largest leak ${fmt2(L.value)} σ (${L.attribute}, 95% CI up to ${fmt2(L.high)}) against the target's ${fmt2(L.targetChange.value)} σ`);
   else parts.push(leakText);
@@ -54,6 +64,10 @@ export function judgeDirection(stats: DirectionStatistics, x: { reference: numbe
   if (!covers) parts.push(`safe range ${formatStrength(stats.safeRange[0])} to ${formatStrength(stats.safeRange[1])}`);
   if (verdict === 'review' && x.fewProbes && L.high < S.leakPass) parts.push('too few probes to pass');
   else if (verdict === 'review' && L.high < S.leakPass && E.high > MAX_EXCEEDANCE_SHARE && covers) parts.push(`${E.probes} probes cannot rule out a leaking share above ${pct(MAX_EXCEEDANCE_SHARE)}`);
+  if (stats.withinInstrument.length) {
+    const shown = stats.withinInstrument.slice(0, 3).map((w) => `${w.attribute} ${fmt2(w.change)} σ${w.via ? ` (via ${w.via})` : ''}`).join(', ');
+    parts.push(`not called leaks, being within what the instrument shows by itself (its noise floor or cross-talk under exact transforms): ${shown}${stats.withinInstrument.length > 3 ? ` and ${stats.withinInstrument.length - 3} more` : ''}`);
+  }
   if (x.nulls) parts.push(`against ${x.nulls.count} random directions: target effect at the ${Math.round(x.nulls.targetEffect)}th percentile, leak ${Math.round(x.nulls.leakage)}th, path length ${Math.round(x.nulls.pathLength)}th`);
   if (stats.targetChosen) parts.push(`no target was named; took ${stats.target}, the attribute it moves most`);
   return { verdict, reason: parts.join('; '), decidedBy };

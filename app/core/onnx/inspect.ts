@@ -83,3 +83,41 @@ export function initializerValues(tensor: TensorProto): Float32Array {
   if (tensor.dataLocation === onnx.TensorProto.DataLocation.EXTERNAL) throw new Error(`initializer ${tensor.name} uses external data, which is not supported yet`);
   return new Float32Array(0);
 }
+
+/** Output ranges a generator without a card may use, in the order they are tried. */
+export const OUTPUT_RANGES: [number, number][] = [[0, 1], [-1, 1], [0, 255]];
+/** Quantiles read as the sample's low and high ends, so a stray value does not decide the range. */
+const RANGE_QUANTILE = 0.001;
+
+/** A candidate range fits when the sample's ends lie within this share of its span beyond it. */
+const RANGE_FIT_SLACK = 0.05;
+
+/**
+ * Infers a generator's output range from a sample batch when no model card states it: the first
+ * of [0, 1] (sigmoid outputs), [−1, 1] (the tanh output of StyleGAN-family generators) and
+ * [0, 255] (8-bit outputs) that holds the sample's ends (0.1% and 99.9% quantiles, so a stray
+ * value does not decide it). When none does, [−1, 1] is kept and the range check that follows
+ * reports the values as far outside it. The note says what was seen, for the list of assumptions.
+ */
+export function inferOutputRange(values: Float32Array): { range: [number, number]; low: number; high: number; note: string } {
+  const stride = Math.max(1, Math.floor(values.length / 200_000));
+  const sample = new Float64Array(Math.ceil(values.length / stride));
+  let n = 0;
+  for (let i = 0; i < values.length; i += stride) if (Number.isFinite(values[i])) sample[n++] = values[i];
+  const sorted = sample.subarray(0, n).sort();
+  const low = n ? sorted[Math.floor(RANGE_QUANTILE * (n - 1))] : 0;
+  const high = n ? sorted[Math.ceil((1 - RANGE_QUANTILE) * (n - 1))] : 0;
+  const fits = ([lo, hi]: [number, number]) => low >= lo - RANGE_FIT_SLACK * (hi - lo) && high <= hi + RANGE_FIT_SLACK * (hi - lo);
+  const found = OUTPUT_RANGES.find(fits);
+  const range = found ?? OUTPUT_RANGES[1];
+  const fmt = (v: number) => Number(v.toPrecision(3));
+  const seen = `values ${fmt(low)} to ${fmt(high)}`;
+  return {
+    range,
+    low,
+    high,
+    note: found
+      ? `output range inferred as [${range[0]}, ${range[1]}] from a sample batch (${seen}); state "range" in a model card if this is wrong`
+      : `output range: a sample batch (${seen}) fits none of [0, 1], [−1, 1], [0, 255]; assumed [−1, 1]`,
+  };
+}

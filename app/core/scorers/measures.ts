@@ -1,38 +1,98 @@
-// Built-in image measures, each with its unit and range. All work on the 8-bit sRGB image that
-// production would see. A soft foreground mask separates the subject from the background: the
-// background colour is the median CIELAB colour of the one-pixel border, and a pixel's subject
-// weight rises smoothly with its ΔE*ab distance from it.
-import { SRGB8_TO_LINEAR, linearRgbToLab } from '../color.ts';
+// Built-in image measures, in families that each measure one thing and are blind to the others
+// (METHODS §9): position, size, orientation, shape, subject colour, background colour, detail,
+// symmetry, plus whole-image colourfulness kept as a described composite. All work on the 8-bit
+// sRGB image production would see, after separating the subject from its background
+// (./subject.ts). A measure that cannot be taken on an image (orientation of a round shape, hue of
+// a grey) is NaN there: "not measurable", left out of statistics and counted, never noise.
+import { findSubject, regionMedian, toLab, REGION_BACKGROUND, REGION_INTERIOR, type LabImage, type Subject } from './subject.ts';
 import type { RgbaImage } from '../image.ts';
-
-/** Mask midpoint and softness in ΔE*ab (a just-noticeable difference is about 2.3; these pick out a designed subject). */
-const MASK_DELTA_E = 12;
-const MASK_SOFTNESS = 3;
-const MASK_FLOOR = 1 / (1 + Math.exp(MASK_DELTA_E / MASK_SOFTNESS));
 
 export interface MeasureInfo {
   name: string;
+  family: 'position' | 'size' | 'orientation' | 'shape' | 'subject colour' | 'background colour' | 'detail' | 'symmetry' | 'composite';
   unit: string;
   range: string;
   description: string;
   /** Period for circular measures (differences wrap), e.g. 360 for hue in degrees. */
   period?: number;
+  /** Circular with a per-image period 360°/k, k read from this measure of the unedited image. */
+  periodFrom?: string;
+  /** May be NaN ("not measurable here") on some images; says when. */
+  undefinedWhen?: string;
+  /** false: described and reported, but not a leak attribute unless the user picks it by name. */
+  verdicts: boolean;
 }
 
+/** Orientation needs an angular harmonic at least this strong (|H_k|/H_0); below, it is noise. */
+export const ORIENTATION_STRENGTH_FLOOR = 0.02;
+/** Angular harmonics examined: k = 1…8 (period 360°/k). */
+export const MAX_HARMONIC = 8;
+/** Hue needs at least this chroma C*ab; a grey has no hue (CIE 15: h_ab undefined at C* = 0). */
+export const HUE_CHROMA_FLOOR = 3;
+/** Symmetry: colour differences are saturated at this ΔE*ab (a clearly different colour). */
+const SYMMETRY_DELTA_E = 20;
+/** Symmetry is compared on a grid of this many points per side across the subject's own extent. */
+const SYMMETRY_GRID = 40;
+
 export const IMAGE_MEASURES: MeasureInfo[] = [
-  { name: 'subject_lightness', unit: 'L* (CIELAB, D65)', range: '0–100', description: 'mask-weighted mean lightness of the subject' },
-  { name: 'subject_chroma', unit: 'C*ab', range: '0–~130', description: 'mask-weighted mean chroma of the subject' },
-  { name: 'subject_hue', unit: 'degrees h_ab', range: '0–360 (circular)', description: 'hue angle of the subject’s mean a*, b*', period: 360 },
-  { name: 'background_lightness', unit: 'L* (CIELAB, D65)', range: '0–100', description: 'mean lightness outside the subject' },
-  { name: 'background_chroma', unit: 'C*ab', range: '0–~130', description: 'mean chroma outside the subject' },
-  { name: 'colourfulness', unit: 'M3 (Hasler & Süsstrunk 2003)', range: '0–~110 (0 grey, 33 moderate, 59 quite, 82 highly)', description: 'colourfulness of the whole image' },
-  { name: 'area', unit: 'fraction of the image', range: '0–1', description: 'subject area from the soft mask (m00 / pixels)' },
-  { name: 'centroid_x', unit: 'fraction of the width', range: '0–1', description: 'subject centroid, left to right' },
-  { name: 'centroid_y', unit: 'fraction of the height', range: '0–1', description: 'subject centroid, top to bottom' },
-  { name: 'orientation', unit: 'degrees', range: '−90–90 (circular, period 180)', description: 'principal axis angle from second moments, clockwise on screen', period: 180 },
-  { name: 'sharpness', unit: 'variance of the Laplacian (8-bit luma²)', range: '0–~10⁴', description: 'fine detail and edge contrast' },
-  { name: 'symmetry', unit: '1 − mean |Y − mirrored Y| / 255', range: '0–1', description: 'left–right mirror symmetry of the luma' },
+  { name: 'subject_x', family: 'position', unit: 'fraction of the width', range: '0–1', description: 'subject centroid m10/m00, left to right', verdicts: true, undefinedWhen: 'no subject separates' },
+  { name: 'subject_y', family: 'position', unit: 'fraction of the height', range: '0–1', description: 'subject centroid m01/m00, top to bottom', verdicts: true, undefinedWhen: 'no subject separates' },
+  { name: 'subject_radius', family: 'size', unit: 'fraction of √(width·height)', range: '0–~0.5', description: 'equivalent radius √(m00/π) of the soft subject mask', verdicts: true, undefinedWhen: 'no subject separates' },
+  { name: 'orientation', family: 'orientation', unit: 'degrees, clockwise on screen', range: '±180/k (circular, period 360/k)', description: 'angle of the strongest angular harmonic k = 1…8 of the subject mask about its centroid, arg(H_k)/k', periodFrom: 'shape_fold', verdicts: true, undefinedWhen: `no harmonic reaches strength ${ORIENTATION_STRENGTH_FLOOR} (round shapes), or no subject` },
+  { name: 'shape_fold', family: 'shape', unit: 'k (count)', range: '0–8', description: 'order k of the strongest angular harmonic (2 elongated, 5 five-pointed; 0 when none reaches the floor); sets the period of orientation', verdicts: false, undefinedWhen: 'no subject separates' },
+  { name: 'shape_harmonic', family: 'shape', unit: '|H_k| / H_0', range: '0–1', description: 'strength of the strongest angular harmonic: 0 for a disc, larger for pointed or elongated shapes', verdicts: true, undefinedWhen: 'no subject separates' },
+  { name: 'shape_elongation', family: 'shape', unit: '1 − λ−/λ+', range: '0–1', description: 'from the principal second moments: 0 for a disc or any n-fold shape (n ≥ 3), → 1 for a line', verdicts: true, undefinedWhen: 'no subject separates' },
+  { name: 'shape_roundness', family: 'shape', unit: 'm00² / (2π(μ20 + μ02))', range: '0–1', description: '1 for a disc; the reciprocal of Hu’s first invariant φ1 times 1/(2π)', verdicts: true, undefinedWhen: 'no subject separates' },
+  { name: 'subject_lightness', family: 'subject colour', unit: 'L* (CIELAB, D65)', range: '0–100', description: 'median L* of the subject interior (eroded 2 px from its edge)', verdicts: true, undefinedWhen: 'no subject separates' },
+  { name: 'subject_chroma', family: 'subject colour', unit: 'C*ab', range: '0–~130', description: 'chroma of the median a*, b* of the subject interior', verdicts: true, undefinedWhen: 'no subject separates' },
+  { name: 'subject_hue', family: 'subject colour', unit: 'degrees h_ab', range: '0–360 (circular)', description: 'hue angle of the median a*, b* of the subject interior', period: 360, verdicts: true, undefinedWhen: `the subject is grey (C*ab < ${HUE_CHROMA_FLOOR})` },
+  { name: 'background_lightness', family: 'background colour', unit: 'L* (CIELAB, D65)', range: '0–100', description: 'median L* outside the subject dilated by 3 px', verdicts: true },
+  { name: 'background_chroma', family: 'background colour', unit: 'C*ab', range: '0–~130', description: 'chroma of the median a*, b* outside the dilated subject', verdicts: true },
+  { name: 'background_hue', family: 'background colour', unit: 'degrees h_ab', range: '0–360 (circular)', description: 'hue angle of the median a*, b* outside the dilated subject', period: 360, verdicts: true, undefinedWhen: `the background is grey (C*ab < ${HUE_CHROMA_FLOOR})` },
+  { name: 'subject_detail', family: 'detail', unit: 'Σ|∇L*| / √(subject area)', range: '0–~100', description: 'edge contrast and texture inside the subject (interior eroded 3 px, so the outline is not counted): total L* gradient over the interior divided by √(subject area), so scaling the same subject neither raises nor lowers it', verdicts: true, undefinedWhen: 'no subject separates' },
+  { name: 'edge_width', family: 'detail', unit: 'pixels', range: '~1 (crisp) and up', description: 'width of the subject’s edge ramp: (3/2)·Σ4m(1−m) / Σ|∇m| of the soft mask (exactly w for a linear ramp of w px)', verdicts: true, undefinedWhen: 'no subject separates' },
+  { name: 'symmetry', family: 'symmetry', unit: '1 − mirror difference', range: '0–1', description: 'best mirror agreement of shape and colour about an axis through the subject’s own centroid', verdicts: true, undefinedWhen: 'no subject separates' },
+  { name: 'colourfulness', family: 'composite', unit: 'M3 (Hasler & Süsstrunk 2003)', range: '0–~110 (0 grey, 33 moderate, 59 quite, 82 highly)', description: 'colourfulness of the whole image; composite (grows with subject area and with both colours), not a leak attribute unless picked', verdicts: false },
 ];
+
+const INDEX = new Map(IMAGE_MEASURES.map((m, i) => [m.name, i]));
+export const measureIndex = (name: string): number => {
+  const i = INDEX.get(name);
+  if (i === undefined) throw new Error(`no built-in image measure '${name}'`);
+  return i;
+};
+
+/** The period that differences of measure j wrap with, given the unedited image's measures. */
+export function measurePeriod(j: number, base: ArrayLike<number>): number | undefined {
+  const info = IMAGE_MEASURES[j];
+  if (info.periodFrom) {
+    const k = base[measureIndex(info.periodFrom)];
+    return k > 0 ? 360 / k : NaN;
+  }
+  return info.period;
+}
+
+/**
+ * Change of measure j from an unedited image (base row) to its edit (edit row), wrapped into
+ * (−period/2, period/2] for circular measures. NaN when either side is not measurable, or when
+ * the orientation's harmonic order differs between the two (the angles are then not comparable).
+ */
+export function measureDelta(j: number, base: ArrayLike<number>, edit: ArrayLike<number>): number {
+  const info = IMAGE_MEASURES[j];
+  let d = edit[j] - base[j];
+  if (Number.isNaN(d)) return NaN;
+  if (info.periodFrom) {
+    const f = measureIndex(info.periodFrom);
+    if (base[f] !== edit[f]) return NaN;
+  }
+  const period = measurePeriod(j, base);
+  if (period !== undefined) {
+    if (!(period > 0)) return NaN;
+    d = ((d % period) + period) % period;
+    if (d > period / 2) d -= period;
+  }
+  return d;
+}
 
 export interface Moments {
   m00: number;
@@ -135,73 +195,218 @@ export function laplacianVariance(gray: ArrayLike<number>, width: number, height
   return s2 / n - m * m;
 }
 
-function median(xs: Float64Array | number[]): number {
-  const a = Float64Array.from(xs).sort();
-  const mid = a.length >> 1;
-  return a.length % 2 ? a[mid] : (a[mid - 1] + a[mid]) / 2;
+
+/** Everything measured on one image: the values in IMAGE_MEASURES order, and the subject found. */
+export interface ImageAnalysis {
+  values: Float64Array;
+  subject: Subject;
+  lab: LabImage;
 }
 
-/** Every built-in measure of one image, in IMAGE_MEASURES order. */
+/** Every built-in measure of one image, in IMAGE_MEASURES order; NaN where not measurable. */
 export function measureImage(img: RgbaImage): Float64Array {
-  const { width: w, height: h, data } = img;
-  const n = w * h;
-  const L = new Float64Array(n);
-  const A = new Float64Array(n);
-  const B = new Float64Array(n);
-  for (let p = 0; p < n; p++) {
-    const lab = linearRgbToLab(SRGB8_TO_LINEAR[data[p * 4]], SRGB8_TO_LINEAR[data[p * 4 + 1]], SRGB8_TO_LINEAR[data[p * 4 + 2]]);
-    L[p] = lab[0];
-    A[p] = lab[1];
-    B[p] = lab[2];
+  return analyseImage(img).values;
+}
+
+export function analyseImage(img: RgbaImage): ImageAnalysis {
+  const lab = toLab(img);
+  const subject = findSubject(lab, img);
+  const { width: w, height: h } = img;
+  const values = new Float64Array(IMAGE_MEASURES.length).fill(NaN);
+  const set = (name: string, v: number) => (values[measureIndex(name)] = v);
+  set('colourfulness', colourfulness(img));
+
+  // Background colour: median outside the dilated subject (the whole image when there is none).
+  const [bL, bA, bB] = [lab.L, lab.a, lab.b].map((ch) => regionMedian(ch, subject.region, REGION_BACKGROUND));
+  if (!Number.isNaN(bL)) {
+    set('background_lightness', bL);
+    set('background_chroma', Math.hypot(bA, bB));
+    set('background_hue', hueOf(bA, bB));
   }
-  const border: number[] = [];
-  for (let x = 0; x < w; x++) border.push(x, (h - 1) * w + x);
-  for (let y = 1; y < h - 1; y++) border.push(y * w, y * w + w - 1);
-  const bL = median(border.map((p) => L[p]));
-  const bA = median(border.map((p) => A[p]));
-  const bB = median(border.map((p) => B[p]));
-  const mask = new Float64Array(n);
-  let sw = 0;
-  let sL = 0;
-  let sA = 0;
-  let sB = 0;
-  let sC = 0;
-  let bw = 0;
-  let bgL = 0;
-  let bgC = 0;
-  for (let p = 0; p < n; p++) {
-    const dE = Math.hypot(L[p] - bL, A[p] - bA, B[p] - bB);
-    // A logistic ramp in ΔE, shifted so the background colour itself weighs exactly 0.
-    const m = Math.max(0, (1 / (1 + Math.exp(-(dE - MASK_DELTA_E) / MASK_SOFTNESS)) - MASK_FLOOR) / (1 - MASK_FLOOR));
-    mask[p] = m;
-    const c = Math.hypot(A[p], B[p]);
-    sw += m;
-    sL += m * L[p];
-    sA += m * A[p];
-    sB += m * B[p];
-    sC += m * c;
-    bw += 1 - m;
-    bgL += (1 - m) * L[p];
-    bgC += (1 - m) * c;
+  if (!subject.found) return { values, subject, lab };
+
+  const mo = imageMoments(subject.mask, w, h);
+  set('subject_x', (mo.cx + 0.5) / w);
+  set('subject_y', (mo.cy + 0.5) / h);
+  set('subject_radius', Math.sqrt(mo.m00 / Math.PI) / Math.sqrt(w * h));
+  // Shape is read from the mask re-sharpened to a one-pixel ramp about its half level: a soft
+  // edge of fixed width in pixels would otherwise make a small subject look rounder than the same
+  // subject drawn larger (shape would answer size), and a blur would change shape.
+  const edge = edgeWidth(subject.mask, w, h);
+  const gain = Number.isFinite(edge) ? Math.max(1, edge) : 1;
+  const shapeMask = gain > 1 ? subject.mask.map((m) => Math.min(1, Math.max(0, 0.5 + (m - 0.5) * gain))) : subject.mask;
+  const so = gain > 1 ? imageMoments(shapeMask, w, h) : mo;
+  const root = Math.sqrt(4 * so.mu11 * so.mu11 + (so.mu20 - so.mu02) ** 2);
+  const lp = so.mu20 + so.mu02 + root;
+  const lm = so.mu20 + so.mu02 - root;
+  set('shape_elongation', lp > 0 ? Math.max(0, 1 - lm / lp) : 0);
+  set('shape_roundness', (so.m00 * so.m00) / (2 * Math.PI * (so.mu20 + so.mu02)));
+  const harmonics = angularHarmonics(shapeMask, w, h, so.cx, so.cy);
+  let k = 0;
+  for (let j = 1; j <= MAX_HARMONIC; j++) if (harmonics.strength[j] > (k ? harmonics.strength[k] : 0)) k = j;
+  const strength = k ? harmonics.strength[k] : 0;
+  set('shape_harmonic', strength);
+  const measurable = strength >= ORIENTATION_STRENGTH_FLOOR;
+  set('shape_fold', measurable ? k : 0);
+  if (measurable) set('orientation', harmonics.angle[k]);
+
+  // Subject colour: median of the interior, so an inset of another colour does not move it.
+  // A subject too thin to have an interior: its half-covered pixels instead.
+  const which = subject.region.includes(REGION_INTERIOR) ? subject.region : Uint8Array.from(subject.mask, (m) => (m >= 0.5 ? REGION_INTERIOR : 0));
+  const [sL, sA, sB] = [lab.L, lab.a, lab.b].map((ch) => regionMedian(ch, which, REGION_INTERIOR));
+  set('subject_lightness', sL);
+  set('subject_chroma', Math.hypot(sA, sB));
+  set('subject_hue', hueOf(sA, sB));
+
+  set('subject_detail', interiorGradient(lab, subject, w, h) / Math.sqrt(mo.m00));
+  set('edge_width', edge);
+  set('symmetry', mirrorSymmetry(lab, shapeMask, w, h, so.cx, so.cy));
+  return { values, subject, lab };
+}
+
+function hueOf(a: number, b: number): number {
+  if (!(Math.hypot(a, b) >= HUE_CHROMA_FLOOR)) return NaN;
+  const h = (Math.atan2(b, a) * 180) / Math.PI;
+  return h < 0 ? h + 360 : h;
+}
+
+/**
+ * Angular harmonics of a mask about (cx, cy) (METHODS §9.1): H_k = Σ m(x, y)·e^{ikφ} over pixels,
+ * the area-weighted form of Σ m(r, φ)·r·e^{ikφ} over polar samples. φ is measured with y pointing
+ * down, so arg(H_2)/2 equals the second-moment angle ½·atan2(2μ11, μ20 − μ02) (clockwise on
+ * screen positive) for any shape symmetric about its axes. Strength |H_k|/H_0; angle arg(H_k)/k
+ * in degrees, in (−180/k, 180/k]. Pixels within half a pixel of the centroid have no direction and
+ * are left out.
+ */
+export function angularHarmonics(mask: ArrayLike<number>, w: number, h: number, cx: number, cy: number): { strength: number[]; angle: number[] } {
+  const re = new Float64Array(MAX_HARMONIC + 1);
+  const im = new Float64Array(MAX_HARMONIC + 1);
+  for (let y = 0; y < h; y++)
+    for (let x = 0; x < w; x++) {
+      const m = mask[y * w + x];
+      if (!m) continue;
+      const dx = x - cx;
+      const dy = y - cy;
+      const r = Math.hypot(dx, dy);
+      if (r < 0.5) continue;
+      // e^{iφ} from the offset, then powers by repeated multiplication.
+      const c1 = dx / r;
+      const s1 = dy / r;
+      let c = 1;
+      let s = 0;
+      re[0] += m;
+      for (let k = 1; k <= MAX_HARMONIC; k++) {
+        const nc = c * c1 - s * s1;
+        s = c * s1 + s * c1;
+        c = nc;
+        re[k] += m * c;
+        im[k] += m * s;
+      }
+    }
+  const strength = [1];
+  const angle = [0];
+  for (let k = 1; k <= MAX_HARMONIC; k++) {
+    strength.push(re[0] > 0 ? Math.hypot(re[k], im[k]) / re[0] : 0);
+    angle.push((Math.atan2(im[k], re[k]) * 180) / Math.PI / k);
   }
-  const mo = imageMoments(mask, w, h);
-  const Y = luma(img);
-  let asym = 0;
-  for (let y = 0; y < h; y++) for (let x = 0; x < w; x++) asym += Math.abs(Y[y * w + x] - Y[y * w + (w - 1 - x)]);
-  const hue = (Math.atan2(sB, sA) * 180) / Math.PI;
-  const safe = (num: number, den: number, fallback: number) => (den > 1e-9 ? num / den : fallback);
-  return Float64Array.from([
-    safe(sL, sw, bL),
-    safe(sC, sw, 0),
-    hue < 0 ? hue + 360 : hue,
-    safe(bgL, bw, bL),
-    safe(bgC, bw, 0),
-    colourfulness(img),
-    sw / n,
-    sw > 1e-9 ? (mo.cx + 0.5) / w : 0.5,
-    sw > 1e-9 ? (mo.cy + 0.5) / h : 0.5,
-    sw > 1e-9 ? mo.theta : 0,
-    laplacianVariance(Y, w, h),
-    1 - asym / n / 255,
-  ]);
+  return { strength, angle };
+}
+
+/**
+ * Σ|∇L*| (central differences) over the subject interior eroded one more pixel than the colour
+ * interior. The caller divides by √(subject area): internal edges scale in length with the
+ * subject and so does the square root of its area, so a scaled subject keeps its value.
+ */
+function interiorGradient(lab: LabImage, subject: Subject, w: number, h: number): number {
+  let s = 0;
+  const inner = (p: number) => subject.region[p] === REGION_INTERIOR;
+  for (let y = 1; y < h - 1; y++)
+    for (let x = 1; x < w - 1; x++) {
+      const p = y * w + x;
+      if (!(inner(p) && inner(p - 1) && inner(p + 1) && inner(p - w) && inner(p + w))) continue;
+      s += 0.5 * Math.hypot(lab.L[p + 1] - lab.L[p - 1], lab.L[p + w] - lab.L[p - w]);
+    }
+  return s;
+}
+
+/** Edge ramp width in pixels: (3/2)·Σ 4m(1−m) / Σ|∇m|, exactly w for a linear ramp of width w. */
+function edgeWidth(mask: Float64Array, w: number, h: number): number {
+  let band = 0;
+  let variation = 0;
+  for (let y = 1; y < h - 1; y++)
+    for (let x = 1; x < w - 1; x++) {
+      const p = y * w + x;
+      const m = mask[p];
+      band += 4 * m * (1 - m);
+      variation += 0.5 * Math.hypot(mask[p + 1] - mask[p - 1], mask[p + w] - mask[p - w]);
+    }
+  return variation > 0 ? (1.5 * band) / variation : NaN;
+}
+
+function bilinear(ch: ArrayLike<number>, w: number, h: number, x: number, y: number): number {
+  if (x < 0 || y < 0 || x > w - 1 || y > h - 1) return NaN;
+  const x0 = Math.min(w - 2, Math.floor(x));
+  const y0 = Math.min(h - 2, Math.floor(y));
+  const fx = x - x0;
+  const fy = y - y0;
+  const p = y0 * w + x0;
+  return (ch[p] * (1 - fx) + ch[p + 1] * fx) * (1 - fy) + (ch[p + w] * (1 - fx) + ch[p + w + 1] * fx) * fy;
+}
+
+/**
+ * Mirror symmetry about the best axis through the subject's own centroid: 1 − ½(shape mismatch +
+ * colour mismatch), on a grid spanning the subject's extent (so size and position do not matter),
+ * searched over axis angles (so rotation does not matter). Shape mismatch Σ|m − m'| / Σ(m + m');
+ * colour mismatch the overlap-weighted mean of min(1, ΔE*ab / 20) between mirrored points
+ * (Euclidean ΔE*ab, unchanged by a hue rotation).
+ */
+function mirrorSymmetry(lab: LabImage, mask: Float64Array, w: number, h: number, cx: number, cy: number): number {
+  let R = 0;
+  for (let y = 0; y < h; y++) for (let x = 0; x < w; x++) if (mask[y * w + x] > 0) R = Math.max(R, Math.hypot(x - cx, y - cy));
+  R += 1;
+  const G = SYMMETRY_GRID;
+  const pts: { u: number; v: number; m: number; L: number; a: number; b: number }[] = [];
+  const sample = (x: number, y: number) => {
+    const m = bilinear(mask, w, h, x, y);
+    return Number.isNaN(m) ? { m: 0, L: 0, a: 0, b: 0 } : { m, L: bilinear(lab.L, w, h, x, y), a: bilinear(lab.a, w, h, x, y), b: bilinear(lab.b, w, h, x, y) };
+  };
+  for (let i = 0; i < G; i++)
+    for (let j = 0; j < G; j++) {
+      const u = ((i + 0.5) / G) * 2 * R - R;
+      const v = ((j + 0.5) / G) * 2 * R - R;
+      if (u * u + v * v > R * R) continue;
+      pts.push({ u, v, ...sample(cx + u, cy + v) });
+    }
+  const score = (alpha: number) => {
+    const c = Math.cos(2 * alpha);
+    const s = Math.sin(2 * alpha);
+    let diff = 0;
+    let total = 0;
+    let colour = 0;
+    let overlap = 0;
+    for (const p of pts) {
+      const q = sample(cx + c * p.u + s * p.v, cy + s * p.u - c * p.v);
+      diff += Math.abs(p.m - q.m);
+      total += p.m + q.m;
+      const o = Math.min(p.m, q.m);
+      if (o > 0) {
+        colour += o * Math.min(1, Math.hypot(p.L - q.L, p.a - q.a, p.b - q.b) / SYMMETRY_DELTA_E);
+        overlap += o;
+      }
+    }
+    return 1 - 0.5 * ((total > 0 ? diff / total : 1) + (overlap > 0 ? colour / overlap : 1));
+  };
+  // Coarse search over axes every 5°, then refine around the best to 0.25°.
+  let best = 0;
+  let bestScore = -Infinity;
+  for (let d = 0; d < 180; d += 5) {
+    const v = score((d * Math.PI) / 180);
+    if (v > bestScore) (bestScore = v), (best = d);
+  }
+  for (let step = 2.5; step >= 0.25; step /= 2)
+    for (const d of [best - step, best + step]) {
+      const v = score((d * Math.PI) / 180);
+      if (v > bestScore) (bestScore = v), (best = d);
+    }
+  return bestScore;
 }

@@ -9,8 +9,9 @@ import { imageDistance, type ImageLayout, type PathDistance } from '../../core/a
 import type { AuditDirection, AuditPlan, AuditProgress } from '../../core/audit/plan.ts';
 import { significant, type DirectionMeasurements, type PairMeasurements, type WorstProbeChoice } from '../../core/audit/statistics.ts';
 import { formatStrength } from '../../core/audit/verdict.ts';
+import { ChangeMapAccumulator, type ChangeMapSummary } from '../../core/audit/change-map.ts';
 import type { WorstProbe } from '../../core/audit/report.ts';
-import { attributeDelta, scoreBatch, type AttributeSpec } from '../attributes.ts';
+import { attributeChange as changeOf, scoreBatch, type AttributeSpec } from '../attributes.ts';
 import type { Generator } from '../generator.ts';
 import type { FloatRgbImage, ScorerModel } from '../scorer-model.ts';
 import type { SsimDistanceModel } from '../distance-model.ts';
@@ -43,6 +44,8 @@ function editedProbes(c: MeasureContext, at: number, m: number, edits: { d: Audi
 
 export interface DirectionRun {
   measurements: DirectionMeasurements;
+  /** Where the direction acts: per-pixel CIEDE2000 at +reference over the kept probe images. */
+  changeMap: ChangeMapSummary | null;
   /** Scores at +reference strength, [probe × attribute], for the combination check. */
   scoresAtReference: Float64Array;
 }
@@ -56,6 +59,7 @@ export async function* measureDirection(c: MeasureContext, d: AuditDirection, ti
   const change = grid.map((s) => (s === 0 ? null : specs.map(() => new Float64Array(n))));
   const pathLength = pathLengthGrid.map(() => new Float64Array(n));
   const scoresAtReference = new Float64Array(n * K);
+  const changeMap = probes.images.length ? new ChangeMapAccumulator() : null;
   for (let gi = 0; gi < grid.length; gi++) {
     const s = grid[gi];
     const pi = pathLengthGrid.indexOf(s);
@@ -67,10 +71,14 @@ export async function* measureDirection(c: MeasureContext, d: AuditDirection, ti
         const sc = await scoreBatch(gen, out, specs);
         for (let i = 0; i < m; i++) {
           const p = at + i;
+          const baseRow = probes.baseScores.subarray(p * K, (p + 1) * K);
+          const editRow = sc.subarray(i * K, (i + 1) * K);
           for (let j = 0; j < K; j++) {
-            change[gi]![j][p] = attributeDelta(probes.baseScores[p * K + j], sc[i * K + j], specs[j].period) / sigma[j];
+            // NaN where the measure is not measurable on this probe: left out of the statistics.
+            change[gi]![j][p] = changeOf(specs, j, baseRow, editRow) / sigma[j];
             if (s === ref) scoresAtReference[p * K + j] = sc[i * K + j];
           }
+          if (s === ref && changeMap && p < probes.images.length) changeMap.add(probes.images[p], gen.toRgba(out.images, i));
         }
         yield tick(`auditing ${d.name} at ${formatStrength(s)}`);
       }
@@ -83,7 +91,7 @@ export async function* measureDirection(c: MeasureContext, d: AuditDirection, ti
       }
     }
   }
-  return { measurements: { change, pathLength }, scoresAtReference };
+  return { measurements: { change, pathLength }, scoresAtReference, changeMap: changeMap?.summary() ?? null };
 }
 
 /**
@@ -112,7 +120,12 @@ export async function* measureNullBaseline(c: MeasureContext, nulls: AuditDirect
       const d = nulls[k];
       for (const [row, s] of [[0, -ref], [2, ref]] as const) {
         const sc = await scoreBatch(gen, await gen.synthesize(editedProbes(c, at, m, [{ d, s }]), m), specs);
-        for (let i = 0; i < m; i++) for (let j = 0; j < K; j++) out[k].change[row]![j][at + i] = attributeDelta(probes.baseScores[(at + i) * K + j], sc[i * K + j], specs[j].period) / sigma[j];
+        for (let i = 0; i < m; i++) {
+          const baseRow = probes.baseScores.subarray((at + i) * K, (at + i + 1) * K);
+          const editRow = sc.subarray(i * K, (i + 1) * K);
+          // NaN where the measure is not measurable on this probe, as for the audited directions.
+          for (let j = 0; j < K; j++) out[k].change[row]![j][at + i] = changeOf(specs, j, baseRow, editRow) / sigma[j];
+        }
       }
       const next = await gen.synthesize(editedProbes(c, at, m, [{ d, s: eps }]), m);
       const raw = await pairDistances(c, base.images, next.images, m);
@@ -171,11 +184,14 @@ export async function* measurePair(c: MeasureContext, a: { d: AuditDirection; sc
     const sc = await scoreBatch(gen, both, specs);
     for (let i = 0; i < m; i++) {
       const p = at + i;
+      const base = probes.baseScores.subarray(p * K, (p + 1) * K);
+      const rowA = a.scoresAtReference.subarray(p * K, (p + 1) * K);
+      const rowB = b.scoresAtReference.subarray(p * K, (p + 1) * K);
+      const rowAB = sc.subarray(i * K, (i + 1) * K);
       for (let j = 0; j < K; j++) {
-        const base = probes.baseScores[p * K + j];
-        const da = attributeDelta(base, a.scoresAtReference[p * K + j], specs[j].period);
-        const db = attributeDelta(base, b.scoresAtReference[p * K + j], specs[j].period);
-        const dab = attributeDelta(base, sc[i * K + j], specs[j].period);
+        const da = changeOf(specs, j, base, rowA);
+        const db = changeOf(specs, j, base, rowB);
+        const dab = changeOf(specs, j, base, rowAB);
         attributeChange[j][p] = Math.abs(dab - da - db) / sigma[j];
       }
     }

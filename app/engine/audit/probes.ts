@@ -4,8 +4,10 @@
 import { PlumblineError } from '../../core/errors.ts';
 import { RunningMoments } from '../../core/stats.ts';
 import type { AuditDirection, AuditPlan, AuditProgress } from '../../core/audit/plan.ts';
-import { attributeDelta, scoreBatch, type AttributeSpec } from '../attributes.ts';
+import { IMAGE_MEASURES, attributeChange, scoreBatch, type AttributeSpec } from '../attributes.ts';
 import type { Generator } from '../generator.ts';
+import type { RgbaImage } from '../../core/image.ts';
+import { CALIBRATION_PROBES } from '../../core/audit/calibration.ts';
 
 /** A spread at or below this counts as zero variance. */
 const ZERO_SPREAD = 1e-12;
@@ -24,6 +26,8 @@ export interface ProbeSet {
   codes: Float32Array;
   /** Unedited scores, [probe × attribute] in spec order. */
   baseScores: Float64Array;
+  /** Images of the first CALIBRATION_PROBES probes (for calibration and change maps). */
+  images: RgbaImage[];
 }
 
 /** `tick` advances the audit's progress by one batch. */
@@ -33,32 +37,46 @@ export async function* measureAttributeSpread(gen: Generator, plan: AuditPlan, s
   const K = specs.length;
   const batch = gen.batchSize;
   const moments = specs.map(() => new RunningMoments());
-  const circularReference: number[] = [];
+  // Circular attributes: spread of the wrapped difference from the first sample measurable in them.
+  const reference: (Float64Array | undefined)[] = [];
+  const unmeasurable = new Array<number>(K).fill(0);
   for (let at = 0; at < plan.sigmaSeeds.length; at += batch) {
     const out = await gen.renderSeeds(plan.sigmaSeeds.slice(at, at + batch), 1, []);
     const s = await scoreBatch(gen, out, specs);
-    for (let i = 0; i < out.n; i++)
+    for (let i = 0; i < out.n; i++) {
+      const row = s.subarray(i * K, (i + 1) * K);
       for (let j = 0; j < K; j++) {
-        // Circular attributes: spread of the wrapped difference from the first sample.
-        if (specs[j].period) {
-          if (circularReference[j] === undefined) circularReference[j] = s[j];
-          moments[j].push(attributeDelta(circularReference[j], s[i * K + j], specs[j].period));
-        } else moments[j].push(s[i * K + j]);
+        if (Number.isNaN(row[j])) {
+          unmeasurable[j]++;
+          continue;
+        }
+        if (specs[j].period || specs[j].periodFrom !== undefined) {
+          if (!reference[j]) reference[j] = Float64Array.from(row);
+          moments[j].push(attributeChange(specs, j, reference[j]!, row));
+        } else moments[j].push(row[j]);
       }
+    }
     yield tick('measuring attribute spread');
   }
+  const warnings: string[] = [];
+  specs.forEach((spec, j) => {
+    if (unmeasurable[j]) warnings.push(`${spec.name} is not measurable on ${unmeasurable[j]} of ${plan.sigmaSeeds.length} random samples${spec.source === 'image' && IMAGE_MEASURES[spec.index].undefinedWhen ? ` (${IMAGE_MEASURES[spec.index].undefinedWhen})` : ''}; those are left out of its statistics`);
+  });
   const sigma = moments.map((m) => m.std);
-  const zero = specs.filter((_, j) => !(sigma[j] > ZERO_SPREAD)).map((s) => s.name);
-  if (!zero.length) return { specs, sigma, warnings: [] };
+  // A measure kept only to give another its period (orientation's harmonic order) is never normalised.
+  const periodSources = new Set(specs.flatMap((x) => (x.periodFrom !== undefined ? [x.periodFrom] : [])));
+  const zero = specs.filter((_, j) => !(sigma[j] > ZERO_SPREAD) && !periodSources.has(j)).map((s) => s.name);
+  for (const j of periodSources) if (!(sigma[j] > ZERO_SPREAD)) sigma[j] = 1;
+  if (!zero.length) return { specs, sigma, warnings };
   const problem = `attribute(s) ${zero.join(', ')} do not vary over ${plan.sigmaSeeds.length} random samples (zero variance), so changes cannot be normalised`;
   // Asked for by name: an error. Part of a default set: left out, and the report says so.
   if (Array.isArray(plan.settings.attributes) || specs.length === zero.length) throw new PlumblineError('bad-request', `${problem}; leave them out with --attributes`);
-  const keep = specs.map((_, j) => j).filter((j) => sigma[j] > ZERO_SPREAD);
-  const kept = keep.map((j) => specs[j]);
+  const keep = specs.map((_, j) => j).filter((j) => !zero.includes(specs[j].name));
+  const kept = keep.map((j) => ({ ...specs[j], periodFrom: specs[j].periodFrom === undefined ? undefined : keep.indexOf(specs[j].periodFrom!) }));
   for (const d of directions) {
-    if (d.target && !kept.some((s) => s.name === d.target)) throw new PlumblineError('bad-request', `direction '${d.name}' targets ${d.target}, which does not vary over the random samples`);
+    if (d.target && specs.some((s) => s.name === d.target) && !kept.some((s) => s.name === d.target)) throw new PlumblineError('bad-request', `direction '${d.name}' targets ${d.target}, which does not vary over the random samples`);
   }
-  return { specs: kept, sigma: keep.map((j) => sigma[j]), warnings: [`${problem}; they were left out of this audit (more --sigma samples may reveal rare variation)`] };
+  return { specs: kept, sigma: keep.map((j) => sigma[j]), warnings: [...warnings, `${problem}; they were left out of this audit (more --sigma samples may reveal rare variation)`] };
 }
 
 export async function* sampleProbes(gen: Generator, plan: AuditPlan, specs: AttributeSpec[], tick: Tick): AsyncGenerator<AuditProgress, ProbeSet, void> {
@@ -68,11 +86,14 @@ export async function* sampleProbes(gen: Generator, plan: AuditPlan, specs: Attr
   const per = gen.layout.layers * gen.layout.size;
   const codes = await gen.codesForSeeds(plan.seeds, plan.settings.psi);
   const baseScores = new Float64Array(n * K);
+  const images: RgbaImage[] = [];
+  const keep = Math.min(n, CALIBRATION_PROBES);
   for (let at = 0; at < n; at += batch) {
     const m = Math.min(batch, n - at);
     const out = await gen.synthesize(codes.slice(at * per, (at + m) * per), m);
     baseScores.set(await scoreBatch(gen, out, specs), at * K);
+    for (let i = 0; i < m && images.length < keep; i++) images.push(gen.toRgba(out.images, i));
     yield tick('rendering probes');
   }
-  return { seeds: plan.seeds, codes, baseScores };
+  return { seeds: plan.seeds, codes, baseScores, images };
 }

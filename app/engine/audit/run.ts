@@ -4,7 +4,7 @@
 // can serve previews and cancel (cancel = stop pulling; native resources are released either way).
 import { planAudit, auditWorkUnits, type AuditDirection, type AuditProgress } from '../../core/audit/plan.ts';
 import type { AuditSettings } from '../../core/audit/settings.ts';
-import { directionStatistics, combinationStatistics, nullPercentiles, nullSummary, significant, type DirectionStatistics, type NullSummary } from '../../core/audit/statistics.ts';
+import { directionStatistics, combinationStatistics, nullPercentiles, nullSummary, significant, type DirectionStatistics, type InstrumentAllowance, type NullSummary } from '../../core/audit/statistics.ts';
 import { judgeDirection, judgeCombination } from '../../core/audit/verdict.ts';
 import { assembleReport, combinationReport, directionReport, tooFewProbes, type AuditReport, type CombinationReport, type DirectionReport } from '../../core/audit/report.ts';
 import { ProbeBootstrap } from '../../core/stats.ts';
@@ -16,14 +16,31 @@ import { TOOL_STAMP } from '../../protocol/version.ts';
 import { resolveAttributes } from '../attributes.ts';
 import type { Generator } from '../generator.ts';
 import type { ScorerModel } from '../scorer-model.ts';
+import type { DefinedAttribute } from '../defined-attributes.ts';
 import { SsimDistanceModel } from '../distance-model.ts';
 import { groundTruthMetrics } from '../lab.ts';
 import { measureAttributeSpread, sampleProbes } from './probes.ts';
 import { measureDirection, measureNullBaseline, measurePair, pairDistances, renderWorstProbes, type DirectionRun, type MeasureContext } from './measure.ts';
 import type { AuditDirection as Direction } from '../../core/audit/plan.ts';
 import type { Tick } from './probes.ts';
+import { calibrateInstrument } from './calibrate.ts';
+import { CROSSTALK_MULTIPLE, FLOOR_MULTIPLE, owningOperation } from '../../core/audit/calibration.ts';
+import { CHANGE_MAP_FULL_SCALE, changeMapImage, consistencyAcrossProbes } from '../../core/audit/change-map.ts';
+import { encodePng } from '../../core/image.ts';
+import type { AttributeSpec } from '../attributes.ts';
 
 export type { AuditDirection, AuditProgress } from '../../core/audit/plan.ts';
+
+/** Probes on which no subject separated (every position measure NaN), when the built-in measures are audited. */
+function countNoSubject(specs: AttributeSpec[], baseScores: Float64Array): { probes: number; of: number } | null {
+  const j = specs.findIndex((s) => s.source === 'image' && s.name === 'subject_x');
+  if (j < 0) return null;
+  const K = specs.length;
+  const n = baseScores.length / K;
+  let count = 0;
+  for (let p = 0; p < n; p++) if (Number.isNaN(baseScores[p * K + j])) count++;
+  return { probes: count, of: n };
+}
 export type { AuditReport } from '../../core/audit/report.ts';
 
 /** The SSIM window is 11 × 11: smaller images use the JS distance (which pads). */
@@ -34,11 +51,13 @@ export interface AuditModels {
   scorers?: ScorerModel[];
   /** Feature model for the 'features' path-length distance. */
   features?: ScorerModel;
+  /** Attributes the lead defined from tagged seeds. */
+  defined?: DefinedAttribute[];
 }
 
 export async function* runAudit(gen: Generator, directions: AuditDirection[], rawSettings: Partial<AuditSettings> = {}, models: AuditModels = {}): AsyncGenerator<AuditProgress, AuditReport, void> {
   const selection = rawSettings.attributes ?? 'default';
-  const resolved = resolveAttributes(gen, selection, models.scorers ?? []);
+  const resolved = resolveAttributes(gen, selection, models.scorers ?? [], models.defined ?? []);
   const plan = planAudit(rawSettings, directions, gen.layout, resolved.map((s) => s.name), !!models.features);
   let done = 0;
   const probeBatches = Math.ceil(plan.seeds.length / gen.batchSize);
@@ -49,6 +68,20 @@ export async function* runAudit(gen: Generator, directions: AuditDirection[], ra
   const { specs, sigma } = spread;
   const names = specs.map((s) => s.name);
   const probes = yield* sampleProbes(gen, plan, specs, tick);
+  // Calibrate the instrument on the probes' own images: noise floor and cross-talk per measure.
+  const calibration = await calibrateInstrument(probes.images, probes.baseScores, specs, sigma);
+  const instrument: InstrumentAllowance | undefined = calibration
+    ? {
+        floor: names.map((n) => calibration.measures[n]?.noiseFloor ?? 0),
+        crossTalk: (target) => {
+          const op = owningOperation(target);
+          return names.map((n) => (op ? calibration.measures[n]?.crossTalk[op.name] ?? 0 : 0));
+        },
+        floorMultiple: FLOOR_MULTIPLE,
+        crossTalkMultiple: CROSSTALK_MULTIPLE,
+      }
+    : undefined;
+  const noSubject = countNoSubject(specs, probes.baseScores);
   const { width, height } = gen.imageSize();
   const ssimSpace = plan.distance === 'ssim' ? 'luma' : plan.distance === 'ssim-lab' ? 'lab' : null;
   const ssimModel = ssimSpace && Math.min(width, height) >= SSIM_WINDOW ? await SsimDistanceModel.create(height, width, gen.range, 1, ssimSpace) : null;
@@ -57,11 +90,14 @@ export async function* runAudit(gen: Generator, directions: AuditDirection[], ra
     const bootstrap = new ProbeBootstrap(plan.seeds.length, plan.settings.bootstrapResamples, plan.settings.seed);
     const reports: DirectionReport[] = [];
     const runs: DirectionRun[] = [];
-    const measured: { d: AuditDirection; stats: DirectionStatistics; summary: NullSummary }[] = [];
+    const leakCandidates = specs.map((s) => s.leak);
+    const measured: { d: AuditDirection; run: DirectionRun; stats: DirectionStatistics; unmeasuredTarget: string | null; summary: NullSummary }[] = [];
     for (const d of directions) {
       const run = yield* measureDirection(context, d, tick);
       runs.push(run);
-      measured.push({ d, stats: directionStatistics(run.measurements, plan, names, plan.seeds, d.target, bootstrap), summary: nullSummary(run.measurements, plan) });
+      const unmeasuredTarget = d.target && !names.includes(d.target) ? d.target : null;
+      const stats = directionStatistics(run.measurements, plan, names, plan.seeds, unmeasuredTarget ? null : d.target, bootstrap, leakCandidates, instrument);
+      measured.push({ d, run, stats, unmeasuredTarget, summary: nullSummary(run.measurements, plan) });
     }
     // Null baseline (METHODS §10): K random unit directions for each layer rule in use, with the
     // same σ scaling, probes and edit rule, measured at ±reference and, for path length, at the
@@ -78,10 +114,14 @@ export async function* runAudit(gen: Generator, directions: AuditDirection[], ra
         nulls.set(layerKey(layers), runs.map((r) => nullSummary(r, nullPlan)));
       }
     }
-    for (const { d, stats, summary } of measured) {
-      const nullRow = K > 0 ? nullPercentiles(summary, names.indexOf(stats.target), nulls.get(layerKey(d.layers))!) : null;
-      const judged = judgeDirection(stats, { reference: plan.reference, settings: plan.settings, fewProbes: tooFewProbes(plan.seeds.length), pathLengthGrid: plan.pathLengthGrid, nulls: nullRow });
-      reports.push(directionReport(d.name, stats, judged, plan, await renderWorstProbes(context, d, stats.worstProbes), nullRow));
+    for (const { d, run, stats, unmeasuredTarget, summary } of measured) {
+      const nullRow = K > 0 && !unmeasuredTarget ? nullPercentiles(summary, names.indexOf(stats.target), nulls.get(layerKey(d.layers))!, leakCandidates) : null;
+      const judged = judgeDirection(stats, { reference: plan.reference, settings: plan.settings, fewProbes: tooFewProbes(plan.seeds.length), pathLengthGrid: plan.pathLengthGrid, nulls: nullRow, unmeasuredTarget });
+      const targetChange = run.measurements.change[plan.grid.indexOf(plan.reference)]![names.indexOf(stats.target)];
+      const changeMap = run.changeMap && { png: encodePng(changeMapImage(run.changeMap.map, run.changeMap.width, run.changeMap.height)), width: run.changeMap.width, height: run.changeMap.height, probes: run.changeMap.probes, fullScale: CHANGE_MAP_FULL_SCALE, meanDeltaE: significant(run.changeMap.meanDeltaE), shares: { subject: significant(run.changeMap.shares.subject), edge: significant(run.changeMap.shares.edge), background: significant(run.changeMap.shares.background) } };
+      const consistency = consistencyAcrossProbes(targetChange);
+      const roundedConsistency = { ...consistency, median: significant(consistency.median), mean: significant(consistency.mean), coefficientOfVariation: significant(consistency.coefficientOfVariation), flipShare: significant(consistency.flipShare) };
+      reports.push(directionReport(d.name, stats, judged, plan, await renderWorstProbes(context, d, stats.worstProbes), nullRow, { changeMap, consistency: roundedConsistency, declaredTarget: d.target }));
     }
     const referencePathLength = plan.settings.referencePathSamples > 0 ? yield* publishedPathLength(context, plan.settings.referencePathSamples, tick) : null;
     const combinations: CombinationReport[] = [];
@@ -96,13 +136,15 @@ export async function* runAudit(gen: Generator, directions: AuditDirection[], ra
       plan,
       tool: TOOL_STAMP,
       generator: gen.info,
-      attributes: specs.map((s, j) => ({ name: s.name, unit: s.unit, source: s.source, sigma: sigma[j] })),
+      attributes: specs.map((s, j) => ({ name: s.name, unit: s.unit, source: s.source, sigma: sigma[j], judged: s.leak, ...(s.defined ? { accuracy: s.defined.accuracy } : {}) })),
       warnings: spread.warnings,
       directions: reports,
       combinations,
       groundTruth,
       nullBaseline: K > 0 ? { directions: K, rules: [...nulls.keys()], seed: plan.settings.seed } : null,
       referencePathLength,
+      calibration: calibration && { ...calibration, floorMultiple: FLOOR_MULTIPLE, crossTalkMultiple: CROSSTALK_MULTIPLE },
+      noSubject,
     });
   } finally {
     // Released however the audit ends: finished, cancelled (return()) or failed.

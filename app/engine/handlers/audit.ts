@@ -1,5 +1,6 @@
 // Handler for running an audit over kept directions: the audit pipeline (app/engine/audit/run.ts)
-// as a job; the report is saved into the open project and answered with binary thumbnails.
+// as a job; the report is saved into the open project and answered with binary thumbnails and
+// change-map PNGs.
 import { auditReportFile, auditReportWire } from '../../core/audit/report.ts';
 import { runAudit } from '../audit/run.ts';
 import { driveSteps, type AreaHandlers } from './context.ts';
@@ -12,14 +13,19 @@ export const auditHandlers: AreaHandlers<'audit.run'> = {
   'audit.run': async (p, ctx) => {
     const { workspace } = ctx;
     const gen = workspace.requireGenerator();
-    const directions = p.directions.map((id) => workspace.direction(id));
+    // A direction's target may be overridden for this audit, e.g. by an attribute the lead defined.
+    const directions = p.directions.map((id) => {
+      const d = workspace.direction(id);
+      return p.targets?.[id] ? { ...d, target: p.targets[id] } : d;
+    });
+    const defined = workspace.definedAttributes.pick(workspace.project?.dir ?? null, p.defined ?? [], gen.info);
     const report = await driveSteps(runAudit(gen, directions, {
       probes: p.probes, pinnedSeeds: p.pinnedSeeds, psi: p.psi, seed: p.seed, referenceStrength: p.referenceStrength, leakPass: p.leakPass, leakFail: p.leakFail, nullDirections: p.nullDirections, combinations: p.combinations,
-    }), ctx, AUDIT_PROGRESS_EVERY);
+    }, { defined }), ctx, AUDIT_PROGRESS_EVERY);
     // Kept as history with each direction's vector hash, so sign-off can tell which version passed.
     const project = workspace.project && !workspace.project.readOnly ? workspace.project : null;
     const savedAs = project ? project.saveAudit(auditReportFile(report), Object.fromEntries(directions.map((d) => [d.name, vectorHash(d.vector, d.layers)]))) : null;
-    const { report: wire, thumbnails } = auditReportWire(report);
-    return { report: wire as never, thumbnails, savedAs };
+    const { report: wire, thumbnails, changeMaps } = auditReportWire(report);
+    return { report: wire as never, thumbnails, changeMaps, savedAs };
   },
 };

@@ -129,4 +129,4 @@ export function logTicks(lo: number, hi: number, max = 7): number[] {
   return thinned.length >= 2 ? thinned : [...new Set([Number(lo.toPrecision(2)), ...thinned, Number(hi.toPrecision(2))])].sort((a, b) => a - b);
 }
 
-export const VERDICT_LABEL: Record<string, string> = { pass: 'Pass', review: 'Needs review', fail: 'Fail' };
+export const VERDICT_LABEL: Record<string, string> = { pass: 'Pass', review: 'Needs review', fail: 'Fail', 'no-measure': 'No measure' };

@@ -1,7 +1,7 @@
 // State and intents of the lab screens: project, discovery, audit, repair and sign-off. Works
 // through the same engine client as the workbench (Studio) and keeps Studio's direction list
 // in step with the engine's.
-import { APP_NULL_DIRECTIONS, PROBE_LIMITS, type AuditWire, type DirectionInfo, type LockHolder, type Params, type Result, type VariantDraft, type WireImage } from '../../../app/protocol/messages.ts';
+import { APP_NULL_DIRECTIONS, PROBE_LIMITS, type AuditWire, type DefinedAttributeInfo, type DirectionInfo, type LockHolder, type Params, type Result, type VariantDraft, type WireImage } from '../../../app/protocol/messages.ts';
 import { EngineRequestError } from './engine.ts';
 import { desktop } from './bridge.ts';
 import { reportHtml } from './report.ts';
@@ -11,6 +11,7 @@ export type View = 'workbench' | 'discover' | 'audit' | 'signoff' | 'variants';
 type ProjectInfo = Result<'project.open'>;
 type Candidate = Extract<Result<'lab.discover'>, { cancelled: false }>['candidates'][number];
 type Thumb = Extract<Result<'audit.run'>, { cancelled: false }>['thumbnails'][number];
+type ChangeMapPng = Extract<Result<'audit.run'>, { cancelled: false }>['changeMaps'][number];
 export type Status = 'draft' | 'in-review' | 'approved' | 'rejected';
 
 const LAST_PROJECT_KEY = 'plumbline.lastProject';
@@ -101,6 +102,10 @@ export class Lab {
   report = $state.raw<AuditWire | null>(null);
   previousReport = $state.raw<AuditWire | null>(null);
   thumbnails = $state.raw<Thumb[]>([]);
+  /** Each direction's change map (PNG of the mean per-pixel ΔE00 at +reference), from the last audit. */
+  changeMaps = $state.raw<ChangeMapPng[]>([]);
+  /** Whether the change map is drawn over the preview in the Audit screen. */
+  showChangeMap = $state(true);
   focus = $state<string | null>(null);
   #auditRequest = 0;
 
@@ -120,6 +125,17 @@ export class Lab {
   enlarged = $state.raw<{ direction: string; seed: number; strength: number; attribute: string; leakage: number; before: string; after: string } | null>(null);
   /** Repair before/after on the same probes, by repaired direction name. */
   repairImages = $state.raw<Record<string, { parent: string; strength: number; rows: { seed: number; before: string; original: string; repaired: string }[] }>>({});
+  /** Attributes defined from tagged seeds (the project's, or this session's without a project). */
+  defined = $state.raw<DefinedAttributeInfo[]>([]);
+  defineName = $state('');
+  defining = $state(false);
+  /** The last definition's outcome: its accuracy, or why it was refused. */
+  lastDefinition = $state.raw<{ attribute: DefinedAttributeInfo; refused: string | null } | null>(null);
+  /** Defined attributes chosen for the next audit, by name. */
+  auditDefined = $state<string[]>([]);
+  /** Target attribute per direction id for the next audit (absent: the direction's own target). */
+  auditTargets = $state<Record<string, string>>({});
+
   repairAgainst = $state<string[]>([]);
   holdOthers = $state(true);
   repairing = $state(false);
@@ -163,6 +179,7 @@ export class Lab {
       this.studio.onAutosave = p.readOnly ? null : (ui) => this.engine.request('project.saveUi', { ...ui, variants: this.variantDraft(), auditProbes: this.probesProblem ? undefined : this.probes }).then((r) => r.savedAt);
       this.studio.onRecover = () => this.openProject(path, false).then(() => undefined);
       await this.refreshDirections(p.directions);
+      this.defined = (await this.engine.request('attributes.list', {})).attributes;
       if (p.ui) {
         this.studio.restoreUi(p.ui);
         if (p.ui.variants) this.#restoreVariants(p.ui.variants);
@@ -208,6 +225,7 @@ export class Lab {
     if (this.report) this.previousReport = this.report;
     this.report = h.report;
     this.thumbnails = h.thumbnails;
+    this.changeMaps = h.changeMaps;
     if (!this.focus || !h.report.directions.some((d) => d.name === this.focus)) this.focus = h.report.directions.find((d) => d.verdict !== 'pass')?.name ?? h.report.directions[0]?.name ?? null;
   }
 
@@ -304,13 +322,43 @@ export class Lab {
     await this.discardCandidates(this.candidates.map((c) => c.direction.id));
   }
 
+  /** Fits an attribute from the seeds tagged has/lacks in the workbench; shows its accuracy or the refusal. */
+  async defineAttribute(): Promise<void> {
+    const name = this.defineName.trim();
+    if (!name) {
+      this.studio.banner = { kind: 'warning', text: 'Name the attribute first (letters, digits, _ . -).' };
+      return;
+    }
+    const tags = Object.entries(this.studio.tags);
+    this.defining = true;
+    await this.#guard(`Defining ${name}`, async () => {
+      const r = await this.engine.request('attributes.define', {
+        name,
+        has: tags.filter(([, t]) => t === 'has').map(([s]) => Number(s)),
+        lacks: tags.filter(([, t]) => t === 'lacks').map(([s]) => Number(s)),
+        psi: this.studio.psi,
+      });
+      if (r.cancelled) return;
+      this.lastDefinition = { attribute: r.attribute, refused: r.refused };
+      if (!r.refused) {
+        this.defined = [...this.defined.filter((d) => d.name !== r.attribute.name), r.attribute];
+        if (!this.auditDefined.includes(r.attribute.name)) this.auditDefined = [...this.auditDefined, r.attribute.name];
+      }
+    });
+    this.defining = false;
+  }
+
   async runAudit(ids = this.auditSelection): Promise<void> {
     if (ids.length === 0 || this.probesProblem) return;
     this.auditProgress = { done: 0, total: 1, label: 'starting' };
     await this.#guard('Auditing', async () => {
       const pending = this.engine.request(
         'audit.run',
-        { directions: ids, probes: this.probes, pinnedSeeds: this.studio.pinned, psi: this.studio.psi, seed: 1, referenceStrength: 2, leakPass: 0.2, leakFail: 0.5, nullDirections: APP_NULL_DIRECTIONS, combinations: 'all' },
+        {
+          directions: ids, probes: this.probes, pinnedSeeds: this.studio.pinned, psi: this.studio.psi, seed: 1, referenceStrength: 2, leakPass: 0.2, leakFail: 0.5, nullDirections: APP_NULL_DIRECTIONS, combinations: 'all',
+          defined: this.auditDefined.filter((n) => this.defined.some((d) => d.name === n)),
+          targets: Object.fromEntries(Object.entries(this.auditTargets).filter(([id, t]) => ids.includes(id) && t)),
+        },
         (done, total, label) => (this.auditProgress = { done, total, label }),
       );
       this.#auditRequest = this.engine.lastRequestId;
@@ -327,6 +375,7 @@ export class Lab {
         if (this.report) this.previousReport = this.report;
         this.report = mergeReports(this.report, r.report);
         this.thumbnails = [...this.thumbnails.filter((t) => !r.report.directions.some((d) => d.name === t.direction)), ...r.thumbnails];
+        this.changeMaps = [...this.changeMaps.filter((c) => !r.report.directions.some((d) => d.name === c.direction)), ...r.changeMaps];
         this.focus = r.report.directions.find((d) => d.verdict !== 'pass')?.name ?? r.report.directions[0]?.name ?? null;
       }
       await this.refreshDirections();
@@ -497,6 +546,14 @@ export class Lab {
     a.download = `${name}-sign-off.html`;
     a.click();
     setTimeout(() => URL.revokeObjectURL(a.href), 10_000);
+  }
+
+  /** "AUC 0.96 (…)" for a defined attribute used in the last audit or defined in this project; null for any other attribute. */
+  accuracyOf(name: string): string | null {
+    const inReport = this.report?.attributes.find((a) => a.name === name && a.source === 'defined')?.accuracy;
+    if (inReport) return inReport;
+    const d = this.defined.find((x) => x.name === name);
+    return d ? `${d.metric === 'auc' ? 'AUC' : 'R²'} ${d.value.toFixed(2)}${d.noisy ? ', noisy' : ''}` : null;
   }
 
   thumbUrl(bytes: Uint8Array): string {
