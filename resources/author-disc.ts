@@ -65,7 +65,7 @@ export function authorDisc(outDir: string): { files: string[] } {
     { name: 'spin', target: 'orientation', vector: u('rotation'), truth: { verdict: 'pass', leaksInto: [], note: 'clean: turns the five-pointed stamp about its centre' } },
     { name: 'tint', target: 'subject_hue', vector: u('hue'), truth: { verdict: 'pass', leaksInto: [], note: 'clean: turns the stamp’s hue in LCh(ab) at constant L* and C*ab' } },
     { name: 'swell', target: 'subject_radius', vector: mix(u('size'), u('backdrop'), 0.8), truth: { verdict: 'fail', leaksInto: ['background_lightness'], note: 'leaky: grows the stamp and lightens the card by 0.8 of the size change (in σ units)' } },
-    { name: 'drift', target: 'subject_y', vector: mix(u('shift_y'), u('hue'), 0.1), truth: { verdict: 'pass', leaksInto: [], note: 'nearly clean: moves the stamp down and its hue by 0.1 of that (in σ units), below the pass threshold of 0.15' } },
+    { name: 'drift', target: 'subject_y', vector: mix(u('shift_y'), u('hue'), 0.05), truth: { verdict: 'pass', leaksInto: [], note: 'nearly clean: moves the stamp down and turns its hue by 0.05 of that (in latent σ units): about 0.1 σ of subject hue at ±2, half the pass threshold of 0.2 σ' } },
     { name: 'still', target: 'subject_x', vector: inert, truth: { verdict: 'fail', leaksInto: [], note: 'inert: no factor reads this axis; it barely moves its target (or anything)' } },
     { name: 'sheen', target: 'sheen', vector: mix(u('hue'), u('backdrop'), 1), truth: { verdict: 'no-measure', leaksInto: [], note: 'its target, sheen, has no measure: the audit must say so rather than judge it on whatever moved most' } },
   ];

@@ -63,7 +63,9 @@ test('the demo from its images alone, with gem, outline and glow defined from de
     const d = all.find((x) => x.name === name)!;
     return { name, target: TARGETS[name], layers: d.layers, vector: d.vector, sigma: d.sigma };
   };
-  const settings = { probes: 32, psi: PSI, attributes: 'image' as const, strengths: [-3, -2, -1, 0, 1, 2, 2.5, 3], sigmaSamples: 128, combinations: 'none' as const, groundTruthSamples: 0, bootstrapResamples: 400, worstProbes: 0 };
+  const settings = { probes: 32, psi: PSI, attributes: 'image' as const, strengths: [-3, -2, -1, 0, 1, 2, 2.5, 3], sigmaSamples: 128, combinations: 'none' as const, groundTruthSamples: 0, bootstrapResamples: 400, worstProbes: 0, nullDirections: 0, referencePathSamples: 0 };
+  // No null baseline or published-form path length here: they take no part in a verdict, and the
+  // null baseline's own checks live in test/engine/audit-steps.test.ts and audit.test.ts.
   // turn is audited on its own: a failure to measure its target must not hide the other rows.
   const failures: string[] = [];
   const reports: AuditReport[] = [];
@@ -93,7 +95,12 @@ test('the demo from its images alone, with gem, outline and glow defined from de
   };
   for (const name of ['crest_size', 'turn']) if (by(name)) check(by(name)!.verdict === 'pass', `${name} passes (${by(name)!.verdict}: ${by(name)!.reason})`);
   if (by('outline_bold')) {
-    check(by('outline_bold')!.verdict === 'fail', `outline_bold fails (${by('outline_bold')!.verdict})`);
+    // Image-only truth (resources/demo/README.md): its backdrop leak is 0.7 of its outline change by
+    // construction, but the defined outline attribute moves only about 0.6 σ at ±2, so the leak in
+    // σ of background lightness (issue 14's unit) sits between the pass and fail thresholds: not a
+    // pass, and the leak named is a background measure, confidently beyond the pass threshold.
+    const ob = by('outline_bold')!;
+    check(ob.verdict !== 'pass' && ob.leakage.attribute.startsWith('background_') && ob.leakage.low >= 0.2, `outline_bold does not pass and leaks into a background measure confidently beyond 0.2 σ (${ob.verdict}: ${ob.leakage.attribute} ${ob.leakage.value} σ, 95% CI ${ob.leakage.low}–${ob.leakage.high})`);
     check(leaks('outline_bold').some((a) => a.startsWith('background_')), `outline_bold has a background measure among its leaks (${leaks('outline_bold').join(', ')})`);
   }
   if (by('axis_07')) check(by('axis_07')!.verdict === 'fail', `axis_07 fails (${by('axis_07')!.verdict}: ${by('axis_07')!.reason})`);

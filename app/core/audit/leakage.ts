@@ -45,20 +45,40 @@ const mean = (c: Float64Array) => {
 const absColumns = (cols: ChangeColumns) => cols.map((c) => c.map(Math.abs));
 
 /**
- * Which attributes may be called the leak, given the mean |Δ|/σ of every attribute at one strength
- * and the target's index: false for an attribute that is never a leak candidate (a composite the
- * user did not pick) or whose change is within what the instrument shows by itself (issue 9: its
- * noise floor or its cross-talk under exact transforms). Applied inside every resample, like the
- * choice of sign and attribute. Without a screen every non-target attribute counts.
+ * How much of each attribute's change may be called a leak (issue 9): given the mean |Δ|/σ of every
+ * attribute at one strength and the target's index, the allowance per attribute — what the
+ * instrument shows by itself at that size of change (its noise floor, its cross-talk under exact
+ * transforms) — or NaN for an attribute that is never a leak candidate (a composite the user did
+ * not pick). The leak of an attribute is its change beyond its allowance, max(0, mean − allowance):
+ * continuous in the means, so it bootstraps like the mean itself, and evaluated inside every
+ * resample like the choice of sign and attribute. Without a screen every non-target attribute
+ * counts in full (allowance 0), which is attribute dependency as published.
  */
-export type LeakScreen = (means: ArrayLike<number>, target: number) => boolean[];
-const everyAttribute: LeakScreen = (means) => Array.from(means, () => true);
+export interface LeakScreen {
+  allowance: (means: ArrayLike<number>, target: number) => Float64Array;
+  /** true when allowances come from a calibrated instrument (a leak of 0 then names no attribute) */
+  calibrated: boolean;
+}
+export const noScreen = (candidates?: boolean[]): LeakScreen => ({
+  allowance: (means) => Float64Array.from({ length: means.length }, (_, j) => (candidates?.[j] === false ? NaN : 0)),
+  calibrated: false,
+});
+
+/** The leak reading of every attribute at one sign: change beyond allowance (≥ 0), −∞ where it cannot be the leak. */
+function leakReadings(means: ArrayLike<number>, target: number, screen: LeakScreen): Float64Array {
+  const allowance = screen.allowance(means, target);
+  return Float64Array.from({ length: means.length }, (_, j) => {
+    if (j === target || Number.isNaN(allowance[j]) || Number.isNaN(means[j])) return -Infinity;
+    return Math.max(0, means[j] - allowance[j]);
+  });
+}
 
 /**
  * The leak at ±reference: columns[0] are the changes at +reference, columns[1] at −reference.
- * target = null picks, inside each resample, the attribute with the largest mean |Δ| at +reference.
+ * target = null picks, inside each resample, the attribute with the largest mean |Δ| at +reference
+ * among the candidates.
  */
-export function leakAtReference(bootstrap: ProbeBootstrap, plus: ChangeColumns, minus: ChangeColumns, target: number | null, reference: number, screen: LeakScreen = everyAttribute, candidates: boolean[] = plus.map(() => true)): LeakSummary {
+export function leakAtReference(bootstrap: ProbeBootstrap, plus: ChangeColumns, minus: ChangeColumns, target: number | null, reference: number, screen: LeakScreen = noScreen(), candidates: boolean[] = plus.map(() => true)): LeakSummary {
   const K = plus.length;
   const cols = [...absColumns(plus), ...absColumns(minus)];
   const pickTarget = (m: Float64Array) => {
@@ -74,24 +94,19 @@ export function leakAtReference(bootstrap: ProbeBootstrap, plus: ChangeColumns, 
     const t = pickTarget(m);
     let leak = -Infinity;
     let sign = 0;
-    let attribute = t;
+    let attribute = -1;
     for (let s = 0; s < 2; s++) {
-      const side = m.subarray(s * K, s * K + K);
-      const counts = screen(side, t);
-      for (let j = 0; j < K; j++) {
-        if (j === t || !counts[j]) continue;
-        if (m[s * K + j] > leak) {
-          leak = m[s * K + j];
+      const reading = leakReadings(m.subarray(s * K, s * K + K), t, screen);
+      for (let j = 0; j < K; j++)
+        if (reading[j] > leak) {
+          leak = reading[j];
           sign = s;
           attribute = j;
         }
-      }
     }
-    // Nothing that counts moved (or there is nothing else): no leak, and no leaked attribute.
-    if (!(leak > -Infinity)) {
-      leak = 0;
-      attribute = -1;
-    }
+    // Nothing else can leak, or (calibrated) nothing moves beyond the instrument: no leaked attribute.
+    if (!(leak > -Infinity)) leak = 0;
+    if (attribute >= 0 && leak === 0 && screen.calibrated) attribute = -1;
     const tv = m[sign * K + t];
     return { leak, sign, attribute, t, target: tv, ratio: tv > 1e-12 ? leak / tv : Infinity };
   };
@@ -106,46 +121,50 @@ export function leakAtReference(bootstrap: ProbeBootstrap, plus: ChangeColumns, 
   };
 }
 
-/** max over non-target attributes of mean |Δ| at one strength, with the attribute chosen inside each resample. */
-export function leakAtStrength(bootstrap: ProbeBootstrap, changes: ChangeColumns, target: number, screen: LeakScreen = everyAttribute): Interval & { attribute: number } {
+/** The largest leak reading at one strength, with the attribute chosen inside each resample. */
+export function leakAtStrength(bootstrap: ProbeBootstrap, changes: ChangeColumns, target: number, screen: LeakScreen = noScreen()): Interval & { attribute: number } {
   const cols = absColumns(changes);
   const worst = (m: Float64Array) => {
-    const counts = screen(m, target);
+    const reading = leakReadings(m, target, screen);
     let best = -1;
-    for (let j = 0; j < m.length; j++) if (j !== target && counts[j] && m[j] >= 0 && (best < 0 || m[j] > m[best])) best = j;
-    return best;
+    for (let j = 0; j < m.length; j++) if (reading[j] > -Infinity && (best < 0 || reading[j] > reading[best])) best = j;
+    return { j: best, value: best < 0 ? 0 : reading[best] };
   };
-  const attribute = worst(Float64Array.from(cols, mean));
-  // Nothing that counts moved on the full sample: no leak here (resamples are not asked to find one).
-  if (attribute < 0) return { value: 0, low: 0, high: 0, attribute: -1 };
-  return { ...bootstrap.interval(cols, (m) => {
-    const j = worst(m);
-    return j < 0 ? 0 : m[j];
-  }), attribute };
+  const full = worst(Float64Array.from(cols, mean));
+  if (full.j < 0) return { value: 0, low: 0, high: 0, attribute: -1 };
+  return { ...bootstrap.interval(cols, (m) => worst(m).value), attribute: full.value === 0 && screen.calibrated ? -1 : full.j };
 }
 
 /**
- * Probe-level exceedance: x of n probes whose own leak (largest |Δa_j|/σ_j over non-target
- * attributes and both reference signs) reaches `threshold`, with the Clopper–Pearson interval.
+ * Probe-level exceedance: x of n probes whose own leak (largest |Δa_j|/σ_j over the attributes
+ * that can leak and both reference signs) reaches `threshold`, with the Clopper–Pearson interval.
+ * `share[s][j]` is, on the full sample at each sign, the part of attribute j's mean change that
+ * lies beyond the instrument's allowance (its leak reading ÷ its mean change; NaN: never a leak):
+ * each probe's change is discounted by it, so a measure whose mean change the instrument explains
+ * entirely counts for nothing on any single probe (one probe's scatter of a noisy measure is not a
+ * leak), and a measure with no allowance counts in full. Without it every non-target attribute
+ * counts in full. A probe on which no such attribute is measurable is left out of the count.
  */
-export function exceedance(plus: ChangeColumns, minus: ChangeColumns, target: number, threshold: number, confidence = 0.95, counted: [boolean[], boolean[]] | null = null): { threshold: number; probes: number; count: number; share: number; low: number; high: number } {
+export function exceedance(plus: ChangeColumns, minus: ChangeColumns, target: number, threshold: number, confidence = 0.95, share: [ArrayLike<number>, ArrayLike<number>] | null = null): { threshold: number; probes: number; count: number; share: number; low: number; high: number } {
   const n = plus[0]?.length ?? 0;
+  const K = plus.length;
+  const counts = (s: number, j: number) => j !== target && !(share && Number.isNaN(share[s][j]));
+  const anyCounts = [0, 1].some((s) => Array.from({ length: K }, (_, j) => counts(s, j)).some(Boolean));
   let count = 0;
   let probes = 0;
   for (let p = 0; p < n; p++) {
-    // A probe on which no counted attribute is measurable says nothing either way: left out.
     let leak = 0;
     let measurable = false;
     [plus, minus].forEach((side, s) => {
-      for (let j = 0; j < side.length; j++) {
-        if (j === target || (counted && !counted[s][j])) continue;
+      for (let j = 0; j < K; j++) {
+        if (!counts(s, j)) continue;
         const v = Math.abs(side[j][p]);
         if (Number.isNaN(v)) continue;
         measurable = true;
-        leak = Math.max(leak, v);
+        leak = Math.max(leak, v * (share ? share[s][j] : 1));
       }
     });
-    if (!measurable && (counted ? counted.some((c) => c.some((x, j) => x && j !== target)) : plus.length > 1)) continue;
+    if (!measurable && anyCounts) continue;
     probes++;
     if (leak >= threshold) count++;
   }

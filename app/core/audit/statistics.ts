@@ -58,8 +58,10 @@ export interface DirectionStatistics {
   /**
    * The leak: largest mean |Δa|/σa over non-target attributes at ±reference (attribute
    * dependency, Wu et al. 2021), in σ of that attribute; sign and attribute chosen inside each
-   * resample. `targetChange` is the target's own mean |Δ|/σ at that sign; `ratio` = leak /
-   * target change, a readout the verdict does not use.
+   * resample. With a calibrated instrument it is the change beyond the attribute's allowance
+   * (what the instrument shows by itself at that size of change; leakScreen), so a measure's own
+   * noise and cross-talk are never called a leak. `targetChange` is the target's own mean |Δ|/σ
+   * at that sign; `ratio` = leak / target change, a readout the verdict does not use.
    */
   leakage: Interval & { strength: number; attribute: string; unit: 'σ'; targetChange: Interval; ratio: Interval | null };
   /** Probes whose own leak reaches leakPass, with the Clopper–Pearson interval of their share. */
@@ -121,50 +123,55 @@ export interface WithinInstrument {
 const NO_EFFECT = 1e-9;
 
 /**
- * The leak screen of a direction: `candidate[j] === false` marks an attribute reported but never the
- * leak; the instrument allowance sets aside changes within its floor and cross-talk. Returns, for
- * one sign's mean |Δ|/σ per attribute and the target, which attributes count and why the others
- * do not (for the report).
+ * The leak screen of a direction (leakage.ts LeakScreen): `candidate[j] === false` marks an
+ * attribute reported but never the leak; with a calibrated instrument, each attribute's allowance
+ * is the most the instrument shows by itself at this size of change — floorMultiple × its noise
+ * floor, crossTalkMultiple × the cross-talk of the exact operation owning the target × the
+ * target's change, or crossTalkMultiple × the cross-talk of an operation owning another attribute
+ * × that attribute's change (a background-lightness leak re-quantises the background's chroma).
+ * `explain` says, for the report, which attributes the allowance covers entirely and why.
  */
 export function leakScreen(attributes: string[], candidate: boolean[] | undefined, instrument: InstrumentAllowance | undefined) {
-  const reasons = (means: ArrayLike<number>, t: number) => {
-    const K = attributes.length;
-    const counts = new Array<boolean>(K).fill(false);
-    const aside: WithinInstrument[] = [];
-    const tChange = means[t];
-    const ratioOf = (j: number) => (tChange > NO_EFFECT ? means[j] / tChange : Infinity);
-    const allowance = instrument?.crossTalk(attributes[t]);
+  const K = attributes.length;
+  const crossTalk = instrument ? attributes.map((a) => instrument.crossTalk(a)) : [];
+  /** Allowance of every attribute, and which term set it (-1 floor, else the attribute whose operation's cross-talk). */
+  const terms = (means: ArrayLike<number>, t: number) => {
+    const allowance = new Float64Array(K);
+    const source = new Int32Array(K).fill(-1);
     for (let j = 0; j < K; j++) {
-      if (j === t || candidate?.[j] === false) continue;
-      if (!instrument) {
-        counts[j] = true;
+      if (candidate?.[j] === false) {
+        allowance[j] = NaN;
         continue;
       }
-      const change = means[j];
-      const inside = !(change > instrument.floorMultiple * instrument.floor[j]) || !(ratioOf(j) > instrument.crossTalkMultiple * allowance![j]);
-      if (inside) {
-        if (change > 0) aside.push({ attribute: attributes[j], change: significant(change), ratio: significant(ratioOf(j)), noiseFloor: significant(instrument.floor[j]), crossTalk: significant(allowance![j]) });
-      } else counts[j] = true;
-    }
-    if (instrument) {
-      const counted = counts.map((c, j) => (c ? j : -1)).filter((j) => j >= 0);
-      for (const j of counted)
-        for (const i of counted) {
-          if (i === j) continue;
-          const via = instrument.crossTalk(attributes[i]);
-          // i must be owned by an exact operation (its own entry 0) that moves j by cross-talk.
-          if (!(via[i] === 0 || via[i] === undefined) || !(via[j] > 0)) continue;
-          if (means[j] <= instrument.crossTalkMultiple * means[i] * via[j]) {
-            counts[j] = false;
-            aside.push({ attribute: attributes[j], change: significant(means[j]), ratio: significant(ratioOf(j)), noiseFloor: significant(instrument.floor[j]), crossTalk: significant((means[i] * via[j]) / Math.max(tChange, NO_EFFECT)), via: attributes[i] });
-            break;
-          }
+      if (!instrument) continue;
+      allowance[j] = instrument.floorMultiple * instrument.floor[j];
+      for (let i = 0; i < K; i++) {
+        // The target's own operation, or another attribute's operation moving j through cross-talk.
+        if (i === j || !(crossTalk[i][j] > 0) || Number.isNaN(means[i])) continue;
+        const v = instrument.crossTalkMultiple * crossTalk[i][j] * means[i];
+        if (v > allowance[j] || (i === t && v === allowance[j] && source[j] !== t)) {
+          allowance[j] = v;
+          source[j] = i;
         }
+      }
     }
-    return { counts, aside };
+    return { allowance, source };
   };
-  const screen: LeakScreen = (means, t) => reasons(means, t).counts;
-  return { screen, reasons };
+  const screen: LeakScreen = { allowance: (means, t) => terms(means, t).allowance, calibrated: !!instrument };
+  const explain = (means: ArrayLike<number>, t: number): WithinInstrument[] => {
+    if (!instrument) return [];
+    const { allowance, source } = terms(means, t);
+    const out: WithinInstrument[] = [];
+    const tChange = means[t];
+    for (let j = 0; j < K; j++) {
+      if (j === t || Number.isNaN(allowance[j]) || !(means[j] > 0) || means[j] > allowance[j]) continue;
+      const ratio = tChange > NO_EFFECT ? means[j] / tChange : Infinity;
+      const via = source[j] >= 0 && source[j] !== t ? attributes[source[j]] : undefined;
+      out.push({ attribute: attributes[j], change: significant(means[j]), ratio: significant(ratio), noiseFloor: significant(instrument.floor[j]), crossTalk: significant(crossTalk[t]?.[j] ?? 0), ...(via ? { via } : {}) });
+    }
+    return out.sort((a, b) => b.change - a.change);
+  };
+  return { screen, allowance: (means: ArrayLike<number>, t: number) => terms(means, t).allowance, explain };
 }
 
 /** What a random direction is compared on: see nullSummary. */
@@ -263,7 +270,7 @@ export function directionStatistics(m: DirectionMeasurements, plan: StatisticsGr
   // The leak at ±reference, with sign, worst attribute and (when none is declared) the target
   // chosen inside every resample.
   const declared = declaredTarget ? attributes.indexOf(declaredTarget) : -1;
-  const { screen, reasons } = leakScreen(attributes, leak, instrument);
+  const { screen, allowance, explain } = leakScreen(attributes, leak, instrument);
   const atRef = leakAtReference(bootstrap, plusRows, minusRows, declared >= 0 ? declared : null, ref, screen, attributes.map((_, j) => leak?.[j] !== false));
   const target = atRef.targetIndex;
   const targetChosen = declared < 0;
@@ -295,22 +302,30 @@ export function directionStatistics(m: DirectionMeasurements, plan: StatisticsGr
   const pathLength = roundInterval(bootstrap.interval([paths.sums, paths.counts], (mns) => (mns[1] > 0 ? mns[0] / mns[1] : NaN)));
   const ratioFinite = [atRef.ratio.value, atRef.ratio.low, atRef.ratio.high].every(Number.isFinite);
 
-  // What counts at each reference sign on the full sample (the exceedance and the worst probes
-  // read these; the leak's interval re-screens inside every resample).
+  // Allowances at each reference sign on the full sample (the exceedance and the worst probes
+  // read these; the leak's interval recomputes them inside every resample).
   const sideMeans = (rows: Float64Array[]) => rows.map(meanAbs);
-  const plusScreen = reasons(sideMeans(plusRows), target);
-  const minusScreen = reasons(sideMeans(minusRows), target);
-  const worseScreen = worseSign === 0 ? plusScreen : minusScreen;
+  const plusMeans = sideMeans(plusRows);
+  const minusMeans = sideMeans(minusRows);
+  const plusAllowance = allowance(plusMeans, target);
+  const minusAllowance = allowance(minusMeans, target);
+  const worseAllowance = worseSign === 0 ? plusAllowance : minusAllowance;
+  /** Share of each attribute's mean change beyond its allowance (1 with none; NaN: never a leak). */
+  const beyondShare = (means: number[], allowance: Float64Array) => means.map((m, j) => (Number.isNaN(allowance[j]) ? NaN : allowance[j] === 0 ? 1 : m > 0 ? Math.max(0, m - allowance[j]) / m : 0));
 
-  // Worst probes at the worse reference sign: the largest own leak among the attributes that count,
-  // in σ of the leaked attribute (a probe where none of them is measurable is left out).
-  const others = attributes.map((_, j) => j).filter((j) => worseScreen.counts[j]);
+  // Worst probes at the worse reference sign: the largest own leak beyond its allowance among the
+  // attributes that can leak, in σ of the leaked attribute (a probe where none is measurable is left out).
+  const others = attributes.map((_, j) => j).filter((j) => j !== target && !Number.isNaN(worseAllowance[j]));
   const worst: WorstProbeChoice[] = [];
   for (let p = 0; p < n && others.length; p++) {
     let bj = -1;
-    for (const j of others) if (!Number.isNaN(worseRows[j][p]) && (bj < 0 || Math.abs(worseRows[j][p]) > Math.abs(worseRows[bj][p]))) bj = j;
+    let bv = -Infinity;
+    for (const j of others) {
+      const v = Math.abs(worseRows[j][p]) - worseAllowance[j];
+      if (!Number.isNaN(v) && v > bv) (bj = j), (bv = v);
+    }
     if (bj < 0) continue;
-    worst.push({ seed: seeds[p], strength: atRef.strength, attribute: attributes[bj], leakage: Math.abs(worseRows[bj][p]), index: p });
+    worst.push({ seed: seeds[p], strength: atRef.strength, attribute: attributes[bj], leakage: Math.max(0, bv), index: p });
   }
   worst.sort((a, b) => b.leakage - a.leakage);
 
@@ -335,7 +350,7 @@ export function directionStatistics(m: DirectionMeasurements, plan: StatisticsGr
     targetEffect,
     dependency,
     leakage: { ...roundInterval(atRef.leak), strength: atRef.strength, attribute: atRef.attribute >= 0 ? attributes[atRef.attribute] : 'none', unit: 'σ', targetChange: roundInterval(atRef.target), ratio: ratioFinite ? roundInterval(atRef.ratio) : null },
-    exceedance: roundExceedance(exceedance(plusRows, minusRows, target, settings.leakPass, 0.95, [plusScreen.counts, minusScreen.counts])),
+    exceedance: roundExceedance(exceedance(plusRows, minusRows, target, settings.leakPass, 0.95, [beyondShare(plusMeans, plusAllowance), beyondShare(minusMeans, minusAllowance)])),
     pathLength: { ...pathLength, filtered: paths.dropped },
     safeRange: safe,
     breaksAt: breaks.positive?.strength ?? null,
@@ -354,7 +369,7 @@ export function directionStatistics(m: DirectionMeasurements, plan: StatisticsGr
         .map((a, j) => [a, Math.max(...[plusRows, minusRows].map((rows) => rows[j].reduce((c, v) => c + (Number.isNaN(v) ? 1 : 0), 0)))] as const)
         .filter(([, c]) => c > 0),
     ),
-    withinInstrument: worseScreen.aside.sort((a, b) => b.change - a.change),
+    withinInstrument: explain(worseSign === 0 ? plusMeans : minusMeans, target),
   };
 }
 
