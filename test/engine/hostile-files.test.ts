@@ -9,7 +9,7 @@ import { existsSync, mkdirSync, readFileSync, readdirSync, statSync, symlinkSync
 import { join } from 'node:path';
 import { spawnSync } from 'node:child_process';
 import { EngineHost } from '../../app/engine/host.ts';
-import { request, type Method, type Params } from '../../app/protocol/messages.ts';
+import { callHost } from '../helpers/host.ts';
 import { encodeNpy } from '../../app/core/npy.ts';
 import { STALE_TEMP_AGE_MS } from '../../app/core/atomic-write.ts';
 import { cardGenerator, tempDir } from '../helpers/models.ts';
@@ -17,14 +17,7 @@ import { cardGenerator, tempDir } from '../helpers/models.ts';
 const root = join(import.meta.dirname, '..', '..');
 const cli = (...args: string[]) => spawnSync(process.execPath, [join(root, 'app', 'cli', 'bin.js'), ...args], { encoding: 'utf8', timeout: 60_000 });
 
-async function call<M extends Method>(host: EngineHost, method: M, params: Params<M>): Promise<any> {
-  const id = Math.floor(Math.random() * 1e9);
-  let got: any;
-  host.receive(request(id, method, params), { post: (m: any) => { if (m.type === 'response' && m.id === id) got = m; } });
-  while (!got) await new Promise((r) => setTimeout(r, 5));
-  if (!got.ok) throw Object.assign(new Error(got.error.message), { code: got.error.code });
-  return got.result;
-}
+const call = callHost;
 
 /** A direction set for the 4-d test generator: .npy plus a sidecar naming its directions. */
 function directionFiles(dir: string, base: string, names: string[], source: string = '{"method":"hand"}'): string {

@@ -11,7 +11,7 @@ import { join } from 'node:path';
 import { spawnSync } from 'node:child_process';
 import { generateKeyPairSync } from 'node:crypto';
 import { EngineHost } from '../../app/engine/host.ts';
-import { request, type Method, type Params } from '../../app/protocol/messages.ts';
+import { callHost } from '../helpers/host.ts';
 import { readPack, writePack, type PackManifest } from '../../app/core/pack.ts';
 import { tempDir } from '../helpers/models.ts';
 
@@ -25,14 +25,7 @@ let packFile: string;
 let signedFile: string;
 const keys = { private: '', public: '', otherPublic: '' };
 
-async function call<M extends Method>(host: EngineHost, method: M, params: Params<M>): Promise<any> {
-  const id = Math.floor(Math.random() * 1e9);
-  let got: any;
-  host.receive(request(id, method, params), { post: (m: any) => { if (m.type === 'response' && m.id === id) got = m; } });
-  while (!got) await new Promise((r) => setTimeout(r, 10));
-  if (!got.ok) throw new Error(got.error.message);
-  return got.result;
-}
+const call = callHost;
 
 before(async () => {
   dir = tempDir();

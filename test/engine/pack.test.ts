@@ -9,7 +9,7 @@ import { join } from 'node:path';
 import { spawnSync } from 'node:child_process';
 import fc from 'fast-check';
 import { EngineHost } from '../../app/engine/host.ts';
-import { request, type Method, type Params } from '../../app/protocol/messages.ts';
+import { callHost } from '../helpers/host.ts';
 import { PackError, readPack, sha256 } from '../../app/core/pack.ts';
 import { decodeNpy } from '../../app/core/npy.ts';
 import { PlumblineError } from '../../app/core/errors.ts';
@@ -22,14 +22,7 @@ let project: string;
 let packFile: string;
 let packBytes: Uint8Array;
 
-async function call<M extends Method>(host: EngineHost, method: M, params: Params<M>): Promise<any> {
-  const id = Math.floor(Math.random() * 1e9);
-  let got: any;
-  host.receive(request(id, method, params), { post: (m: any) => { if (m.type === 'response' && m.id === id) got = m; } });
-  while (!got) await new Promise((r) => setTimeout(r, 10));
-  if (!got.ok) throw new Error(got.error.message);
-  return got.result;
-}
+const call = callHost;
 
 before(async () => {
   project = join(tempDir(), 'tidebound');
