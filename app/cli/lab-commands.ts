@@ -79,14 +79,17 @@ const sgn = (v: number) => (v > 0 ? `+${v}` : `${v}`);
 const pc = (v: number) => `${(v * 100).toFixed(1)}%`;
 
 export function auditTable(report: AuditReport): string {
+  // A direction with no measure for its target was judged on nothing: its leak columns stay empty
+  // rather than show numbers read against whichever measure moved most.
+  const judged = (d: AuditReport['directions'][number], text: string) => (d.verdict === 'no-measure' ? '—' : text);
   const rows = report.directions.map((d) => [
     d.name,
     d.target + (d.targetChosen ? '*' : ''),
     d.verdict.toUpperCase(),
-    `${f2(d.leakage.value)} [${f2(d.leakage.low)}–${f2(d.leakage.high)}]`,
-    d.leakage.attribute,
-    `${f2(d.targetEffect.value)} σ`,
-    `${d.exceedance.count}/${d.exceedance.probes} [${pc(d.exceedance.low)}–${pc(d.exceedance.high)}]`,
+    judged(d, `${f2(d.leakage.value)} [${f2(d.leakage.low)}–${f2(d.leakage.high)}]`),
+    judged(d, d.leakage.attribute),
+    judged(d, `${f2(d.targetEffect.value)} σ`),
+    judged(d, `${d.exceedance.count}/${d.exceedance.probes} [${pc(d.exceedance.low)}–${pc(d.exceedance.high)}]`),
     d.nullBaseline ? `${Math.round(d.nullBaseline.targetEffect)}/${Math.round(d.nullBaseline.leakage)}/${Math.round(d.nullBaseline.pathLength)}` : '—',
     `${d.pathLength.value.toPrecision(3)}`,
     `${sgn(d.safeRange[0])}…${sgn(d.safeRange[1])}`,

@@ -159,7 +159,8 @@ export function directionReport(
     name,
     // A target with no measure keeps its declared name (the verdict says it has no measure).
     target: judged.verdict === 'no-measure' && extra.declaredTarget ? extra.declaredTarget : stats.target,
-    targetChosen: stats.targetChosen,
+    // A no-measure direction named its target; it was only not measured.
+    targetChosen: judged.verdict === 'no-measure' ? false : stats.targetChosen,
     verdict: judged.verdict,
     reason: judged.reason,
     decidedBy: judged.decidedBy ?? '',
