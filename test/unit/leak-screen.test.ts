@@ -17,7 +17,7 @@ import { test } from 'node:test';
 import assert from 'node:assert/strict';
 import { Random } from '../../app/core/random.ts';
 import { ProbeBootstrap } from '../../app/core/stats.ts';
-import { directionStatistics, type DirectionMeasurements, type InstrumentAllowance, type StatisticsGrid } from '../../app/core/audit/statistics.ts';
+import { combinationAllowance, combinationStatistics, directionStatistics, type DirectionMeasurements, type InstrumentAllowance, type StatisticsGrid } from '../../app/core/audit/statistics.ts';
 import { runPythonJson, scipySkip } from '../helpers/python.ts';
 
 const ATTRIBUTES = ['size', 'hue', 'backdrop'];
@@ -114,4 +114,22 @@ print(json.dumps([[float(foldnorm(abs(m) / s, scale=s).mean()) for m, s in side]
   const rate = covered / repetitions;
   process.stdout.write(`# leak beyond the instrument: truth ${truth.toFixed(4)} σ, covered in ${covered} of ${repetitions}\n`);
   assert.ok(rate >= 0.9 && rate <= 0.98, `coverage ${rate}`);
+});
+
+test('a pair counts only the non-additivity beyond what the instrument shows by itself', () => {
+  const n = 40;
+  // hue's three measured changes carry its noise: √3 × 2 × 0.05 = 0.173 σ of non-additivity is allowed.
+  const allowance = combinationAllowance(ATTRIBUTES, INSTRUMENT, [1.5, 0, 0], [1.0, 0, 0]);
+  assert.ok(Math.abs(allowance[1] - 2 * Math.sqrt(3) * 0.05) < 1e-12);
+  // backdrop: the size operation's cross-talk 0.1 × (1.5 + 1.0) σ of size moved, × 1.5.
+  assert.ok(Math.abs(allowance[2] - 1.5 * 0.1 * 2.5) < 1e-12);
+  const within = combinationStatistics({ attributeChange: [constant(n, 0), constant(n, 0.1), constant(n, 0.3)], imageInteraction: constant(n, 0.01) }, ATTRIBUTES, 200, 1, allowance);
+  assert.equal(within.attribute, 'none');
+  assert.equal(within.attributeInteraction.value, 0);
+  // 0.6 σ of hue non-additivity is beyond it by 0.6 − 0.173.
+  const beyond = combinationStatistics({ attributeChange: [constant(n, 0), constant(n, 0.6), constant(n, 0.3)], imageInteraction: constant(n, 0.01) }, ATTRIBUTES, 200, 1, allowance);
+  assert.equal(beyond.attribute, 'hue');
+  assert.ok(Math.abs(beyond.attributeInteraction.value - (0.6 - 2 * Math.sqrt(3) * 0.05)) < 1e-5);
+  // Without an instrument the raw largest non-additivity is the statistic.
+  assert.equal(combinationStatistics({ attributeChange: [constant(n, 0), constant(n, 0.1), constant(n, 0.3)], imageInteraction: constant(n, 0.01) }, ATTRIBUTES, 200, 1).attribute, 'backdrop');
 });

@@ -388,22 +388,55 @@ export interface CombinationStatistics {
 /**
  * `seed` is the audit seed; pairs resample with seed + 1 so they do not reuse the directions'
  * resamples. The worst attribute is chosen inside each resample (the interval is that of the max).
+ * `allowance[j]` (NaN: never counted, e.g. a composite the user did not pick; absent: 0 for all)
+ * is the non-additivity the instrument shows by itself in attribute j; only what lies beyond it
+ * counts, max(0, mean − allowance), as for a direction's leak (leakScreen). When nothing moves
+ * beyond it, the worst attribute is 'none'.
  */
-export function combinationStatistics(m: PairMeasurements, attributes: string[], resamples: number, seed: number): CombinationStatistics {
+export function combinationStatistics(m: PairMeasurements, attributes: string[], resamples: number, seed: number, allowance?: ArrayLike<number>): CombinationStatistics {
   const probes = m.imageInteraction.length;
   const bootstrap = new ProbeBootstrap(probes, resamples, seed + 1);
-  let worstJ = 0;
+  const beyond = (mns: ArrayLike<number>) => {
+    let best = -1;
+    let value = 0;
+    for (let j = 0; j < mns.length; j++) {
+      const a = allowance ? allowance[j] : 0;
+      if (Number.isNaN(a) || Number.isNaN(mns[j])) continue;
+      const v = Math.max(0, mns[j] - a);
+      if (best < 0 || v > value) (best = j), (value = v);
+    }
+    return { best, value };
+  };
   // Probes where an attribute is not measurable (NaN) are left out of its mean.
-  const means = m.attributeChange.map((c) => {
-    const v = meanAbs(c);
-    return Number.isNaN(v) ? -Infinity : v;
-  });
-  means.forEach((v, j) => v > means[worstJ] && (worstJ = j));
+  const full = beyond(m.attributeChange.map(meanAbs));
+  const named = full.best >= 0 && !(allowance && full.value === 0);
   return {
-    attribute: attributes[worstJ],
-    attributeInteraction: roundInterval(bootstrap.interval(m.attributeChange, (mns) => Math.max(...Array.from(mns).filter((v) => !Number.isNaN(v))))),
+    attribute: named ? attributes[full.best] : 'none',
+    attributeInteraction: roundInterval(bootstrap.interval(m.attributeChange, (mns) => beyond(mns).value)),
     imageInteraction: roundInterval(bootstrap.interval([m.imageInteraction], (mns) => mns[0])),
   };
+}
+
+/**
+ * The non-additivity the instrument shows by itself in each attribute, for a pair whose members
+ * change the attributes by `changeA` and `changeB` (mean |Δ|/σ at +reference): the noise of three
+ * measured changes (Δ(a+b), Δa, Δb; √3 × the noise floor, times floorMultiple), plus the cross-talk
+ * the exact operations show into it for what the pair moves (crossTalkMultiple × the largest
+ * cross-talk × change over the attributes the operations own). NaN where `candidate` is false.
+ */
+export function combinationAllowance(attributes: string[], instrument: InstrumentAllowance | undefined, changeA: ArrayLike<number>, changeB: ArrayLike<number>, candidate?: boolean[]): Float64Array {
+  return Float64Array.from(attributes, (_, j) => {
+    if (candidate?.[j] === false) return NaN;
+    if (!instrument) return 0;
+    let allowance = instrument.floorMultiple * Math.sqrt(3) * instrument.floor[j];
+    for (let i = 0; i < attributes.length; i++) {
+      if (i === j) continue;
+      const x = instrument.crossTalk(attributes[i])[j];
+      const moved = (Number.isNaN(changeA[i]) ? 0 : changeA[i]) + (Number.isNaN(changeB[i]) ? 0 : changeB[i]);
+      if (x > 0) allowance = Math.max(allowance, instrument.crossTalkMultiple * x * moved);
+    }
+    return allowance;
+  });
 }
 
 /** Six significant digits: enough for any reading, small values keep their precision. */

@@ -4,7 +4,7 @@
 // can serve previews and cancel (cancel = stop pulling; native resources are released either way).
 import { planAudit, auditWorkUnits, type AuditDirection, type AuditProgress } from '../../core/audit/plan.ts';
 import type { AuditSettings } from '../../core/audit/settings.ts';
-import { directionStatistics, combinationStatistics, nullPercentiles, nullSummary, significant, type DirectionStatistics, type InstrumentAllowance, type NullSummary } from '../../core/audit/statistics.ts';
+import { directionStatistics, combinationAllowance, combinationStatistics, nullPercentiles, nullSummary, significant, type DirectionStatistics, type InstrumentAllowance, type NullSummary } from '../../core/audit/statistics.ts';
 import { judgeDirection, judgeCombination } from '../../core/audit/verdict.ts';
 import { assembleReport, combinationReport, directionReport, tooFewProbes, type AuditReport, type CombinationReport, type DirectionReport } from '../../core/audit/report.ts';
 import { ProbeBootstrap } from '../../core/stats.ts';
@@ -128,7 +128,14 @@ export async function* runAudit(gen: Generator, directions: AuditDirection[], ra
     for (const [ia, ib] of plan.pairs) {
       const [a, b] = [ia, ib].map((i) => ({ d: directions[i], scoresAtReference: runs[i].scoresAtReference }));
       const measured = yield* measurePair(context, a, b, tick);
-      const stats = combinationStatistics(measured, names, plan.settings.bootstrapResamples, plan.settings.seed);
+      const atReference = (i: number) => runs[i].measurements.change[plan.grid.indexOf(plan.reference)]!.map((c) => {
+        let sum = 0;
+        let count = 0;
+        for (const v of c) if (!Number.isNaN(v)) (sum += Math.abs(v)), count++;
+        return count ? sum / count : NaN;
+      });
+      const allowance = combinationAllowance(names, instrument, atReference(ia), atReference(ib), leakCandidates);
+      const stats = combinationStatistics(measured, names, plan.settings.bootstrapResamples, plan.settings.seed, allowance);
       combinations.push(combinationReport(a.d.name, b.d.name, stats, judgeCombination(stats)));
     }
     const groundTruth = plan.settings.groundTruthSamples > 0 && gen.attributeNames.length ? await groundTruthMetrics(gen, directions, plan.settings.groundTruthSamples, plan.settings.seed) : null;
