@@ -16,6 +16,40 @@ import { PROBE_LIMITS } from '../protocol/messages.ts';
 import { ScorerModel } from '../engine/scorer-model.ts';
 import { DefinedAttribute, loadProjectAttributes } from '../engine/defined-attributes.ts';
 import { defineFromTagsFile } from './define-commands.ts';
+import { existsSync, readFileSync } from 'node:fs';
+import { basename } from 'node:path';
+import { READ_LIMITS, readRegularFile } from '../core/path-policy.ts';
+import { decodeNpy } from '../core/npy.ts';
+import { referenceProbe } from '../engine/audit/probes.ts';
+import type { ReferenceProbe } from '../core/audit/plan.ts';
+
+/**
+ * `audit --pin-latents a.npy,b.npy`: one latent per file ([size], [1, size], [layers, size] or
+ * [1, layers, size], as `plumbline locate --out` and a project's references/<name>.npy hold it),
+ * named by its file name. When a locate report sits beside it with the same name (.json, as in a
+ * project's references folder), the image SHA-256 it was found from is taken from there.
+ */
+function readPinnedLatents(list: string, layout: { layers: number; size: number }): ReferenceProbe[] {
+  return list.split(',').filter(Boolean).map((f) => {
+    const file = resolve(f);
+    const a = decodeNpy(readRegularFile(file, 'latent', READ_LIMITS.npyBytes), file);
+    const values = a.shape.reduce((x, y) => x * y, 1);
+    if (a.shape[0] !== 1 && a.shape.length > 1 && a.shape[0] !== layout.layers) throw new PlumblineError('npy-shape', `${file}: --pin-latents takes one latent per file; this one has shape [${a.shape.join(', ')}]`, { file });
+    if (values !== layout.size && values !== layout.layers * layout.size) throw new PlumblineError('npy-shape', `${file}: a latent of shape [${a.shape.join(', ')}]; this generator needs ${layout.size} (W) or ${layout.layers} × ${layout.size} (W+) values`, { file });
+    if (!a.data.every(Number.isFinite)) throw new PlumblineError('npy-invalid', `${file}: the latent contains NaN or infinite values`, { file });
+    const sidecar = file.replace(/\.npy$/i, '.json');
+    let imageSha256: string | null = null;
+    if (sidecar !== file && existsSync(sidecar)) {
+      try {
+        const r = JSON.parse(readFileSync(sidecar, 'utf8'));
+        if (r?.format === 'plumbline.locate-report' && /^[0-9a-f]{64}$/.test(r?.image?.sha256)) imageSha256 = r.image.sha256;
+      } catch {
+        // Not a locate report: the latent is audited without an image hash.
+      }
+    }
+    return referenceProbe(basename(file).replace(/\.npy$/i, ''), a.data, imageSha256);
+  });
+}
 
 export interface CliContext {
   progressBar(total: number, label: string): { update(n: number, label?: string): void; stop(): void };
@@ -174,6 +208,7 @@ export function addLabCommands(program: Command, ctx: CliContext, number: (n: st
     .option('--only <names>', 'audit only these directions (comma-separated)')
     .option('--probes <n>', `random probe latents, ${PROBE_LIMITS.min}–${PROBE_LIMITS.max} (with the --pin seeds at least ${PROBE_LIMITS.minTotal} in all; 0 only with --pin)`, integer('--probes', PROBE_LIMITS.min, PROBE_LIMITS.max), 64)
     .option('--pin <seeds>', 'pinned probe seeds, e.g. 3,17,40-42')
+    .option('--pin-latents <files>', 'latent .npy files pinned as probes beside the seeds, comma-separated (e.g. found.npy from plumbline locate, or a project\'s references/<name>.npy)')
     .option('--psi <number>', 'truncation ψ of the probes', number('--psi', 0, 2), 0.7)
     .option('--seed <n>', 'seed of probes, σ samples and bootstrap', integer('--seed', 0, 0xffffffff), 1)
     .option('--strengths <grid>', 'strength grid in σ units: from:to:step or a list', '-3:3:0.5')
@@ -198,7 +233,8 @@ export function addLabCommands(program: Command, ctx: CliContext, number: (n: st
       if (o.pass >= o.fail) throw ctx.usage(`--pass (${o.pass}) must be below --fail (${o.fail})`);
       // The range stated in --help is the range accepted: checked here, before any work starts.
       const pinned = o.pin ? parseSeeds(o.pin) : [];
-      if (o.probes + pinned.length < PROBE_LIMITS.minTotal) throw ctx.usage(`--probes ${o.probes} with ${pinned.length} --pin seed(s) makes ${o.probes + pinned.length} probe(s); an audit needs at least ${PROBE_LIMITS.minTotal} in all (--probes ${PROBE_LIMITS.min}–${PROBE_LIMITS.max}, 0 only with --pin)`);
+      const latentFiles = o.pinLatents ? String(o.pinLatents).split(',').filter(Boolean).length : 0;
+      if (o.probes + pinned.length + latentFiles < PROBE_LIMITS.minTotal) throw ctx.usage(`--probes ${o.probes} with ${pinned.length} --pin seed(s) and ${latentFiles} --pin-latents file(s) makes ${o.probes + pinned.length + latentFiles} probe(s); an audit needs at least ${PROBE_LIMITS.minTotal} in all (--probes ${PROBE_LIMITS.min}–${PROBE_LIMITS.max}, 0 only with --pin or --pin-latents)`);
       const workspace = await openWorkspace(o.model, o.threads);
       const scorers: ScorerModel[] = [];
       try {
@@ -233,7 +269,7 @@ export function addLabCommands(program: Command, ctx: CliContext, number: (n: st
           bootstrapResamples: o.resamples,
           scorerCards: (o.scorer as string[]).map((c) => resolve(c)),
           featureScorer: o.featureScorer ? resolve(o.featureScorer) : null,
-        }, { scorers: scorers.filter((x) => x !== features), features, defined });
+        }, { scorers: scorers.filter((x) => x !== features), features, defined, references: o.pinLatents ? readPinnedLatents(String(o.pinLatents), workspace.requireGenerator().layout) : [] });
         const report = await runCliJob(ctx, workspace, 'auditing', 'audit cancelled; nothing was written', (job) => driveSteps(steps, job));
         if (!report) return;
         process.stdout.write(auditTable(report));
