@@ -1,0 +1,13 @@
+import { Generator } from '/work/wt/refs12/app/engine/generator.ts';
+import { demoCardPath } from '/work/wt/refs12/app/engine/workspace.ts';
+import { locate } from '/work/wt/refs12/app/engine/locate.ts';
+const gen = await Generator.open(demoCardPath(), { threads: 1 });
+const { width, height } = gen.imageSize();
+const rgba = gen.toRgba((await gen.renderSeeds([424242], gen.info.defaultPsi, [])).images, 0);
+const data = new Float32Array(width * height * 3);
+for (let p = 0; p < width * height; p++) for (let c = 0; c < 3; c++) data[p * 3 + c] = rgba.data[p * 4 + c] / 255;
+const t = performance.now();
+const job = locate(gen, { width, height, data }, { budget: 700 });
+let s; while (!(s = await job.next()).done);
+console.log('eval/s', s.value.evaluations / ((performance.now() - t) / 1000), 'batch', gen.batchSize);
+await gen.dispose();
