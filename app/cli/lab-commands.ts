@@ -16,38 +16,15 @@ import { PROBE_LIMITS } from '../protocol/messages.ts';
 import { ScorerModel } from '../engine/scorer-model.ts';
 import { DefinedAttribute, loadProjectAttributes } from '../engine/defined-attributes.ts';
 import { defineFromTagsFile } from './define-commands.ts';
-import { existsSync, readFileSync } from 'node:fs';
-import { basename } from 'node:path';
-import { READ_LIMITS, readRegularFile } from '../core/path-policy.ts';
-import { decodeNpy } from '../core/npy.ts';
+import { latentFileReference } from '../engine/references.ts';
 import { referenceProbe } from '../engine/audit/probes.ts';
 import type { ReferenceProbe } from '../core/audit/plan.ts';
 
-/**
- * `audit --pin-latents a.npy,b.npy`: one latent per file ([size], [1, size], [layers, size] or
- * [1, layers, size], as `plumbline locate --out` and a project's references/<name>.npy hold it),
- * named by its file name. When a locate report sits beside it with the same name (.json, as in a
- * project's references folder), the image SHA-256 it was found from is taken from there.
- */
+/** `audit --pin-latents a.npy,b.npy`: each file one latent, named by its file name (see latentFileReference). */
 function readPinnedLatents(list: string, layout: { layers: number; size: number }): ReferenceProbe[] {
   return list.split(',').filter(Boolean).map((f) => {
-    const file = resolve(f);
-    const a = decodeNpy(readRegularFile(file, 'latent', READ_LIMITS.npyBytes), file);
-    const values = a.shape.reduce((x, y) => x * y, 1);
-    if (a.shape[0] !== 1 && a.shape.length > 1 && a.shape[0] !== layout.layers) throw new PlumblineError('npy-shape', `${file}: --pin-latents takes one latent per file; this one has shape [${a.shape.join(', ')}]`, { file });
-    if (values !== layout.size && values !== layout.layers * layout.size) throw new PlumblineError('npy-shape', `${file}: a latent of shape [${a.shape.join(', ')}]; this generator needs ${layout.size} (W) or ${layout.layers} × ${layout.size} (W+) values`, { file });
-    if (!a.data.every(Number.isFinite)) throw new PlumblineError('npy-invalid', `${file}: the latent contains NaN or infinite values`, { file });
-    const sidecar = file.replace(/\.npy$/i, '.json');
-    let imageSha256: string | null = null;
-    if (sidecar !== file && existsSync(sidecar)) {
-      try {
-        const r = JSON.parse(readFileSync(sidecar, 'utf8'));
-        if (r?.format === 'plumbline.locate-report' && /^[0-9a-f]{64}$/.test(r?.image?.sha256)) imageSha256 = r.image.sha256;
-      } catch {
-        // Not a locate report: the latent is audited without an image hash.
-      }
-    }
-    return referenceProbe(basename(file).replace(/\.npy$/i, ''), a.data, imageSha256);
+    const r = latentFileReference(resolve(f), layout, '--pin-latents');
+    return referenceProbe(r.name, r.latent, r.imageSha256);
   });
 }
 

@@ -311,6 +311,8 @@ export const methods = {
   'variants.render': declare('job', z.object({
     name: z.string().regex(/^[A-Za-z0-9_.-]{1,80}$/, 'letters, digits, _ . - only'),
     seeds: z.array(seed).min(1).max(10_000),
+    /** Named references of the open project rendered beside the seeds (their latents as stored). */
+    references: z.array(z.string().regex(referenceName)).max(1000).optional(),
     psi,
     /** Strengths keyed by direction id. */
     settings: z.array(z.object({ label: variantLabelSchema, strengths: z.record(z.string(), strength) })).min(1).max(200),
