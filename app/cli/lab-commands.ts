@@ -16,6 +16,17 @@ import { PROBE_LIMITS } from '../protocol/messages.ts';
 import { ScorerModel } from '../engine/scorer-model.ts';
 import { DefinedAttribute, loadProjectAttributes } from '../engine/defined-attributes.ts';
 import { defineFromTagsFile } from './define-commands.ts';
+import { latentFileReference } from '../engine/references.ts';
+import { referenceProbe } from '../engine/audit/probes.ts';
+import type { ReferenceProbe } from '../core/audit/plan.ts';
+
+/** `audit --pin-latents a.npy,b.npy`: each file one latent, named by its file name (see latentFileReference). */
+function readPinnedLatents(list: string, layout: { layers: number; size: number }): ReferenceProbe[] {
+  return list.split(',').filter(Boolean).map((f) => {
+    const r = latentFileReference(resolve(f), layout, '--pin-latents');
+    return referenceProbe(r.name, r.latent, r.imageSha256);
+  });
+}
 
 export interface CliContext {
   progressBar(total: number, label: string): { update(n: number, label?: string): void; stop(): void };
@@ -177,6 +188,7 @@ export function addLabCommands(program: Command, ctx: CliContext, number: (n: st
     .option('--only <names>', 'audit only these directions (comma-separated)')
     .option('--probes <n>', `random probe latents, ${PROBE_LIMITS.min}–${PROBE_LIMITS.max} (with the --pin seeds at least ${PROBE_LIMITS.minTotal} in all; 0 only with --pin)`, integer('--probes', PROBE_LIMITS.min, PROBE_LIMITS.max), 64)
     .option('--pin <seeds>', 'pinned probe seeds, e.g. 3,17,40-42')
+    .option('--pin-latents <files>', 'latent .npy files pinned as probes beside the seeds, comma-separated (e.g. found.npy from plumbline locate, or a project\'s references/<name>.npy)')
     .option('--psi <number>', 'truncation ψ of the probes', number('--psi', 0, 2), 0.7)
     .option('--seed <n>', 'seed of probes, σ samples and bootstrap', integer('--seed', 0, 0xffffffff), 1)
     .option('--strengths <grid>', 'strength grid in σ units: from:to:step or a list', '-3:3:0.5')
@@ -201,7 +213,8 @@ export function addLabCommands(program: Command, ctx: CliContext, number: (n: st
       if (o.pass >= o.fail) throw ctx.usage(`--pass (${o.pass}) must be below --fail (${o.fail})`);
       // The range stated in --help is the range accepted: checked here, before any work starts.
       const pinned = o.pin ? parseSeeds(o.pin) : [];
-      if (o.probes + pinned.length < PROBE_LIMITS.minTotal) throw ctx.usage(`--probes ${o.probes} with ${pinned.length} --pin seed(s) makes ${o.probes + pinned.length} probe(s); an audit needs at least ${PROBE_LIMITS.minTotal} in all (--probes ${PROBE_LIMITS.min}–${PROBE_LIMITS.max}, 0 only with --pin)`);
+      const latentFiles = o.pinLatents ? String(o.pinLatents).split(',').filter(Boolean).length : 0;
+      if (o.probes + pinned.length + latentFiles < PROBE_LIMITS.minTotal) throw ctx.usage(`--probes ${o.probes} with ${pinned.length} --pin seed(s) and ${latentFiles} --pin-latents file(s) makes ${o.probes + pinned.length + latentFiles} probe(s); an audit needs at least ${PROBE_LIMITS.minTotal} in all (--probes ${PROBE_LIMITS.min}–${PROBE_LIMITS.max}, 0 only with --pin or --pin-latents)`);
       const workspace = await openWorkspace(o.model, o.threads);
       const scorers: ScorerModel[] = [];
       try {
@@ -236,7 +249,7 @@ export function addLabCommands(program: Command, ctx: CliContext, number: (n: st
           bootstrapResamples: o.resamples,
           scorerCards: (o.scorer as string[]).map((c) => resolve(c)),
           featureScorer: o.featureScorer ? resolve(o.featureScorer) : null,
-        }, { scorers: scorers.filter((x) => x !== features), features, defined });
+        }, { scorers: scorers.filter((x) => x !== features), features, defined, references: o.pinLatents ? readPinnedLatents(String(o.pinLatents), workspace.requireGenerator().layout) : [] });
         const report = await runCliJob(ctx, workspace, 'auditing', 'audit cancelled; nothing was written', (job) => driveSteps(steps, job));
         if (!report) return;
         process.stdout.write(auditTable(report));

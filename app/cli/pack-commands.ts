@@ -1,6 +1,6 @@
 // `plumbline pack`, `verify`, `apply` and `import`.
 import type { Command } from 'commander';
-import { join, resolve } from 'node:path';
+import { dirname, join, resolve } from 'node:path';
 import { createHash, createPrivateKey, createPublicKey, type KeyObject } from 'node:crypto';
 import { READ_LIMITS, chosenOutputFile, readRegularFile, readTextFile } from '../core/path-policy.ts';
 import { DIRECTION_NAME_RULE, isDirectionName } from '../protocol/names.ts';
@@ -16,7 +16,7 @@ import { buildPack, renderStrip, verifyPack, type VerifyResult } from '../engine
 import { Project } from '../engine/project.ts';
 import { parseSeeds } from './seeds.ts';
 import { runCliJob } from './jobs.ts';
-import { parseRecipe, renderVariants, type VariantDirection } from '../engine/variants.ts';
+import { parseRecipe, renderVariants, resolveRecipeReferences, type VariantDirection } from '../engine/variants.ts';
 import { driveSteps } from '../engine/handlers/context.ts';
 import { checkUse, useViolations } from '../core/signoff-rules.ts';
 import { loadDirections, openWorkspace, type CliContext } from './lab-commands.ts';
@@ -204,6 +204,7 @@ export function addPackCommands(program: Command, ctx: CliContext): void {
     .option('--force', 'allow strengths outside a pack’s safe range (needs --reason; recorded in the manifest)')
     .option('--reason <text>', 'why --force is needed; recorded in the manifest')
     .option('--trust <key.pem>', 'with --pack: require a signature by this Ed25519 public key (PEM); repeatable', collect, [] as string[])
+    .option('--project <dir>', "the project whose named references the recipe's references name (.npy entries need none)")
     .requiredOption('-o, --out <dir>', 'output folder; rerun the same command to resume')
     .action(async (o) => withPackErrors(async () => {
       if (!o.directions === !o.pack) throw ctx.usage('give exactly one of --directions or --pack');
@@ -215,7 +216,8 @@ export function addPackCommands(program: Command, ctx: CliContext): void {
         let dirs: VariantDirection[];
         if (o.pack) dirs = (await verifyPack(readFile(o.pack), resolve(o.pack), gen, { trust: trusted(o.trust) })).directions.map((d) => ({ ...d, status: 'approved' as const }));
         else dirs = loadDirections(workspace, o.directions);
-        const steps = renderVariants(gen, recipe, dirs, resolve(o.out), { force: o.force ? { reason: o.reason ?? '' } : null });
+        const references = resolveRecipeReferences(recipe, dirname(recipeFile), o.project ? resolve(o.project) : null, gen);
+        const steps = renderVariants(gen, recipe, dirs, resolve(o.out), { force: o.force ? { reason: o.reason ?? '' } : null, references });
         const done = await runCliJob(ctx, workspace, 'variants', 'stopped; run the same command again to resume', (job) => driveSteps(steps, job));
         if (done) process.stdout.write(`${recipe.name}: ${done.rendered} rendered${done.replaced ? ` (${done.replaced} replaced: their recipe entry changed)` : ''}, ${done.reused} kept from an earlier run; manifest.json and contact-sheet.png in ${resolve(o.out)}\n`);
       } finally {

@@ -217,6 +217,8 @@ export async function* locate(gen: Generator, reference: FloatImage, options: Lo
     if (s.length !== size && s.length !== per) throw new PlumblineError('latent-size-mismatch', `the start code has ${s.length} values; this generator needs ${size} (W) or ${per} (W+)`);
     const rows = s.length === size ? broadcast(prior.toSearch(s)) : Array.from({ length: layers }, (_, l) => prior.toSearch(s.subarray(l * size, (l + 1) * size)));
     await evaluate([rows]);
+    // Reported on its own, so a caller sees where the search started (the encoder's match).
+    yield progress('starts');
   } else {
     const starts = Math.min(options.starts ?? DEFAULT_STARTS, Math.floor(budget / 4));
     const random = new Random(seed, 0x10ca7e);

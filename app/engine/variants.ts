@@ -1,9 +1,10 @@
-// Variant sets: a named recipe (base seeds × direction settings at one truncation) rendered as
+// Variant sets: a named recipe (base seeds and references × direction settings at one truncation) rendered as
 // a resumable batch job into a folder of PNGs, a manifest that reproduces every image bit for
 // bit, and a labelled contact sheet. Resuming keeps an image only when the recipe entry that
 // made it is unchanged: each image carries a key hashing everything that determines its pixels.
 import { existsSync, readFileSync } from 'node:fs';
-import { join } from 'node:path';
+import { isAbsolute, join, resolve as resolvePath } from 'node:path';
+import { latentFileReference, projectLatentReference, REFERENCE_NAME, type LatentReference } from './references.ts';
 import { createHash } from 'node:crypto';
 import { z } from 'zod';
 import { decode } from 'fast-png';
@@ -22,11 +23,18 @@ export const recipeSchema = z.object({
   format: z.literal('plumbline.variant-recipe'),
   version: z.literal(1),
   name: z.string().regex(/^[A-Za-z0-9_.-]{1,80}$/),
-  seeds: z.array(z.number().int().min(0).max(0xffffffff)).min(1).max(10_000),
+  seeds: z.array(z.number().int().min(0).max(0xffffffff)).max(10_000).default([]),
+  /**
+   * Latents beside the seeds: a named reference of the project (found by locate and pinned), or a
+   * latent .npy file (path relative to the recipe). Used as stored; ψ applies only to seeds.
+   */
+  references: z.array(z.string().min(1).max(1000)).max(1000).default([]),
   psi: z.number().min(0).max(2).default(0.7),
   settings: z.array(z.object({ label: variantLabelSchema, strengths: z.record(z.string(), z.number().min(-20).max(20)) })).min(1).max(1000),
-});
+}).refine((r) => r.seeds.length + r.references.length > 0, { message: 'a recipe needs at least one seed or reference', path: ['seeds'] });
 export type Recipe = z.infer<typeof recipeSchema>;
+/** A recipe as callers build it (references optional). */
+export type RecipeInput = Omit<Recipe, 'references'> & { references?: string[] };
 
 export interface VariantDirection {
   name: string;
@@ -38,7 +46,34 @@ export interface VariantDirection {
   status?: ReviewStatus | null;
 }
 
+/**
+ * The recipe's references as latents: a name ending in .npy is a file (relative to the recipe's
+ * folder), any other a reference of the project (which must be open or given).
+ */
+export function resolveRecipeReferences(recipe: RecipeInput, recipeDir: string | null, projectDir: string | null, gen: { layout: { layers: number; size: number }; info: { name: string; fingerprint: string } }): LatentReference[] {
+  const { layout } = gen;
+  const out = (recipe.references ?? []).map((entry) => {
+    if (/\.npy$/i.test(entry)) {
+      const file = isAbsolute(entry) || !recipeDir ? resolvePath(entry) : resolvePath(recipeDir, entry);
+      return latentFileReference(file, layout, 'a recipe reference');
+    }
+    if (!REFERENCE_NAME.test(entry) || entry.startsWith('.')) throw new PlumblineError('bad-request', `recipe reference '${entry}' is neither a .npy file nor a reference name`);
+    if (!projectDir) throw new PlumblineError('bad-request', `recipe reference '${entry}' names a project reference: open the project (or pass --project <dir>)`);
+    const r = projectLatentReference(projectDir, entry, gen.info);
+    if (r.latent.length !== layout.size && r.latent.length !== layout.layers * layout.size) throw new PlumblineError('npy-shape', `reference '${entry}' holds ${r.latent.length} values; this generator needs ${layout.size} or ${layout.layers * layout.size}`);
+    return r;
+  });
+  const seen = new Set<string>();
+  for (const r of out) {
+    if (seen.has(r.name)) throw new PlumblineError('bad-request', `recipe reference '${r.name}' appears twice (image files are named by it)`);
+    seen.add(r.name);
+  }
+  return out;
+}
+
 export interface VariantOptions {
+  /** The recipe's references resolved (resolveRecipeReferences), in recipe order. */
+  references?: LatentReference[];
   /** Force what the use rules refuse, with a written reason (recorded in the manifest). */
   force?: Override | null;
   /** A decision the caller already took with the rule module (the engine host does, with project sign-offs). */
@@ -55,11 +90,13 @@ export function parseRecipe(text: string, file: string): Recipe {
  * What determines one image's pixels: generator, seed, ψ and every direction used with its
  * vector hash, σ and strength. Two runs that agree on this render the same bytes.
  */
-export function imageKey(fingerprint: string, seed: number, psi: number, strengths: Record<string, number>, byName: Map<string, VariantDirection>): string {
+export function imageKey(fingerprint: string, seed: number | { latentSha256: string }, psi: number, strengths: Record<string, number>, byName: Map<string, VariantDirection>): string {
   const used = Object.keys(strengths).sort().map((name) => {
     const d = byName.get(name)!;
     return [name, strengths[name], hashOf(d), d.sigma];
   });
+  // A reference's pixels depend on its latent, not on ψ.
+  if (typeof seed !== 'number') return createHash('sha256').update(JSON.stringify({ v: 1, fingerprint, latent: seed.latentSha256, used })).digest('hex');
   return createHash('sha256').update(JSON.stringify({ v: 1, fingerprint, seed, psi, used })).digest('hex');
 }
 
@@ -74,7 +111,7 @@ const previousSchema = z.object({
  * its file matches its hash and its key matches this recipe's entry; otherwise it is rendered
  * again and counted as replaced.
  */
-export async function* renderVariants(gen: Generator, recipe: Recipe, directions: VariantDirection[], outFolder: string, options: VariantOptions = {}): AsyncGenerator<{ done: number; total: number; label: string }, { manifest: object; rendered: number; reused: number; replaced: number }, void> {
+export async function* renderVariants(gen: Generator, recipe: RecipeInput, directions: VariantDirection[], outFolder: string, options: VariantOptions = {}): AsyncGenerator<{ done: number; total: number; label: string }, { manifest: object; rendered: number; reused: number; replaced: number }, void> {
   const out = chosenOutputFolder(outFolder, 'the variant-set folder');
   const byName = new Map(directions.map((d) => [d.name, d]));
   for (const s of recipe.settings)
@@ -86,10 +123,25 @@ export async function* renderVariants(gen: Generator, recipe: Recipe, directions
   const previous = existsSync(manifestFile) ? parseJsonFile(previousSchema, readTextFile(manifestFile, 'variant-set manifest'), manifestFile, 'not a variant-set manifest (choose another folder)', 'would-overwrite') : null;
   if (previous?.generator && previous.generator.fingerprint !== gen.info.fingerprint) throw new PlumblineError('bad-request', `${manifestFile}: this folder holds variants of another generator; choose another --out`);
   const known = new Map(previous?.images.map((i) => [i.file, i]) ?? []);
-  const per = gen.layout.layers * gen.layout.size;
-  const base = await gen.codesForSeeds(recipe.seeds, recipe.psi);
-  const jobs = recipe.settings.flatMap((s) => recipe.seeds.map((seed, i) => ({ s, seed, i, file: `${s.label}/seed-${String(seed).padStart(6, '0')}.png`, key: imageKey(gen.info.fingerprint, seed, recipe.psi, s.strengths, byName) })));
-  const images: { file: string; seed: number; setting: string; sha256: string; key: string }[] = [];
+  const { layers, size } = gen.layout;
+  const per = layers * size;
+  const refs = options.references ?? [];
+  if (refs.length !== (recipe.references ?? []).length) throw new PlumblineError('bad-request', `the recipe names ${(recipe.references ?? []).length} reference(s) but ${refs.length} were resolved`);
+  // Base codes: the seeds at ψ, then each reference as stored (a W code on every row).
+  const base = new Float32Array((recipe.seeds.length + refs.length) * per);
+  base.set(await gen.codesForSeeds(recipe.seeds, recipe.psi));
+  refs.forEach((r, k) => {
+    const at = (recipe.seeds.length + k) * per;
+    if (r.latent.length === per) base.set(r.latent, at);
+    else for (let l = 0; l < layers; l++) base.set(r.latent, at + l * size);
+  });
+  const columns: Column[] = [
+    ...recipe.seeds.map((seed, i) => ({ i, seed, reference: null, label: String(seed), stem: `seed-${String(seed).padStart(6, '0')}` })),
+    ...refs.map((r, k) => ({ i: recipe.seeds.length + k, seed: null, reference: r, label: r.name, stem: `reference-${r.name}` })),
+  ];
+  const onSheet = ((shown) => (i: number) => shown.has(i))(new Set(sheetColumns(columns).map((c) => c.i)));
+  const jobs = recipe.settings.flatMap((s) => columns.map((c) => ({ s, seed: c.seed, reference: c.reference?.name ?? null, i: c.i, file: `${s.label}/${c.stem}.png`, key: imageKey(gen.info.fingerprint, c.reference ?? c.seed!, recipe.psi, s.strengths, byName) })));
+  const images: { file: string; seed: number | null; reference: string | null; setting: string; sha256: string; key: string }[] = [];
   const thumbs = new Map<string, RgbaImage>();
   let rendered = 0;
   let reused = 0;
@@ -101,7 +153,7 @@ export async function* renderVariants(gen: Generator, recipe: Recipe, directions
       generator: { name: gen.info.name, fingerprint: gen.info.fingerprint },
       truncation: { psi: recipe.psi, centre: gen.card?.truncation.centre ? 'model card' : 'estimated' },
       seedConvention: 'plumbline latentForSeed (xoshiro128** via splitmix32, stream 0x5eed, polar Box–Muller)',
-      latents: recipe.seeds.map((seed) => ({ seed })),
+      latents: [...recipe.seeds.map((seed) => ({ seed })), ...refs.map((r) => ({ reference: r.name, latentSha256: r.latentSha256, imageSha256: r.imageSha256 }))],
       directions: directions.map((d) => ({ name: d.name, sha256: hashOf(d), sigma: d.sigma, layers: d.layers })),
       settings: recipe.settings,
       forced: decision.forced.length ? { reason: decision.reason, settings: decision.forced } : null,
@@ -116,8 +168,8 @@ export async function* renderVariants(gen: Generator, recipe: Recipe, directions
     const pending = chunk.filter((j) => !keep(j));
     for (const j of pending) if (existsSync(join(out, j.file))) replaced++;
     for (const j of chunk.filter((x) => !pending.includes(x))) {
-      images.push({ file: j.file, seed: j.seed, setting: j.s.label, sha256: known.get(j.file)!.sha256, key: j.key });
-      if (j.i < 8) {
+      images.push({ file: j.file, seed: j.seed, reference: j.reference, setting: j.s.label, sha256: known.get(j.file)!.sha256, key: j.key });
+      if (onSheet(j.i)) {
         const png = decode(readFileSync(join(out, j.file)));
         thumbs.set(j.file, { width: png.width, height: png.height, data: new Uint8ClampedArray(png.data) });
       }
@@ -133,11 +185,11 @@ export async function* renderVariants(gen: Generator, recipe: Recipe, directions
       const r = await gen.synthesize(codes, pending.length);
       pending.forEach((j, k) => {
         const img = gen.toRgba(r.images, k);
-        if (j.i < 8) thumbs.set(j.file, img);
+        if (onSheet(j.i)) thumbs.set(j.file, img);
         // Compression runs on zlib's threads while the next batch renders; writes follow.
         writes.push(encodePngAsync(img).then((png) => {
           writeFileAtomic(join(out, j.file), png, { durable: false });
-          images.push({ file: j.file, seed: j.seed, setting: j.s.label, sha256: sha(png), key: j.key });
+          images.push({ file: j.file, seed: j.seed, reference: j.reference, setting: j.s.label, sha256: sha(png), key: j.key });
           rendered++;
         }));
       });
@@ -150,15 +202,30 @@ export async function* renderVariants(gen: Generator, recipe: Recipe, directions
   await Promise.all(writes);
   images.sort((a, b) => a.file.localeCompare(b.file));
   writeManifest(true);
-  writeFileAtomic(join(out, 'contact-sheet.png'), encodePng(contactSheet(recipe, thumbs)));
+  writeFileAtomic(join(out, 'contact-sheet.png'), encodePng(contactSheet(recipe, sheetColumns(columns), thumbs)));
   return { manifest: JSON.parse(readFileSync(manifestFile, 'utf8')), rendered, reused, replaced };
 }
 
 const sha = (b: Uint8Array) => createHash('sha256').update(b).digest('hex');
 
-/** Rows: settings (labelled); columns: up to 8 seeds (labelled). */
-function contactSheet(recipe: Recipe, thumbs: Map<string, RgbaImage>): RgbaImage {
-  const seeds = recipe.seeds.slice(0, 8);
+/** A column of the set: a seed or a reference. */
+interface Column {
+  i: number;
+  seed: number | null;
+  reference: LatentReference | null;
+  label: string;
+  stem: string;
+}
+
+/** Columns on the contact sheet: up to SHEET_COLUMNS, the references kept beside the first seeds. */
+const SHEET_COLUMNS = 8;
+function sheetColumns(columns: Column[]): Column[] {
+  const refs = columns.filter((c) => c.reference).slice(0, SHEET_COLUMNS / 2);
+  return [...columns.filter((c) => !c.reference).slice(0, SHEET_COLUMNS - refs.length), ...refs];
+}
+
+/** Rows: settings (labelled); columns: up to 8 seeds and references (labelled). */
+function contactSheet(recipe: RecipeInput, seeds: Column[], thumbs: Map<string, RgbaImage>): RgbaImage {
   const cell = 96;
   const gap = 6;
   const labelW = 8 + Math.max(...recipe.settings.map((s) => s.label.length)) * 6 * 2;
@@ -168,12 +235,12 @@ function contactSheet(recipe: Recipe, thumbs: Map<string, RgbaImage>): RgbaImage
   const data = new Uint8ClampedArray(width * height * 4);
   for (let p = 0; p < width * height; p++) data.set([20, 24, 29, 255], p * 4);
   drawText(data, width, height, `${recipe.name}  psi ${recipe.psi}`, 6, 6, [230, 233, 236], 2);
-  seeds.forEach((seed, c) => drawText(data, width, height, String(seed), labelW + c * (cell + gap) + 2, header - GLYPH_HEIGHT - 2, [149, 161, 173]));
+  seeds.forEach((col, c) => drawText(data, width, height, col.label.slice(0, 15), labelW + c * (cell + gap) + 2, header - GLYPH_HEIGHT - 2, [149, 161, 173]));
   recipe.settings.forEach((s, r) => {
     const y = header + r * (cell + gap);
     drawText(data, width, height, s.label, 6, y + cell / 2 - GLYPH_HEIGHT, [79, 179, 161], 2);
-    seeds.forEach((seed, c) => {
-      const file = `${s.label}/seed-${String(seed).padStart(6, '0')}.png`;
+    seeds.forEach((col, c) => {
+      const file = `${s.label}/${col.stem}.png`;
       const img = thumbs.get(file);
       if (!img) return;
       const f = img.width / cell;

@@ -217,7 +217,7 @@ const uiStateSchema = z.object({
 export const lockHolderSchema = z.object({ pid: z.number().int(), host: z.string(), session: z.string(), at: z.string() });
 export type LockHolder = z.infer<typeof lockHolderSchema>;
 const candidateSchema = z.object({ direction: directionInfoSchema, strip: z.array(imageSchema), stripSeeds: z.array(seed), stripStrengths: z.array(z.number()) });
-const thumbnailSchema = z.object({ direction: z.string(), seed, strength: z.number(), attribute: z.string(), leakage: z.number(), before: bytes, after: bytes });
+const thumbnailSchema = z.object({ direction: z.string(), seed: seed.nullable(), reference: z.string().optional(), strength: z.number(), attribute: z.string(), leakage: z.number(), before: bytes, after: bytes });
 
 /**
  * Every method, declared once: its lane, its parameter schema and its result schema (for jobs,
@@ -256,6 +256,8 @@ export const methods = {
     directions: z.array(z.string().min(1)).min(1).max(64),
     probes: z.number().int().min(PROBE_LIMITS.min).max(PROBE_LIMITS.max).default(64),
     pinnedSeeds: z.array(seed).max(10_000).default([]),
+    /** Named references of the open project added to the probes after the seeds (their latents as stored, no truncation). */
+    references: z.array(z.string().regex(referenceName)).max(1000).optional(),
     psi: psi.default(0.7),
     seed: z.number().int().min(0).max(0xffffffff).default(1),
     referenceStrength: z.number().positive().max(10).default(2),
@@ -309,6 +311,8 @@ export const methods = {
   'variants.render': declare('job', z.object({
     name: z.string().regex(/^[A-Za-z0-9_.-]{1,80}$/, 'letters, digits, _ . - only'),
     seeds: z.array(seed).min(1).max(10_000),
+    /** Named references of the open project rendered beside the seeds (their latents as stored). */
+    references: z.array(z.string().regex(referenceName)).max(1000).optional(),
     psi,
     /** Strengths keyed by direction id. */
     settings: z.array(z.object({ label: variantLabelSchema, strengths: z.record(z.string(), strength) })).min(1).max(200),

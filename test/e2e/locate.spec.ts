@@ -87,5 +87,18 @@ test('drop an image, watch, cancel, run to the end, pin, move a slider on it', a
   await expect.poll(async () => Number(await canvas.getAttribute('data-paints')), { timeout: 20_000 }).toBeGreaterThan(before);
   await expect(page.getByTestId('current-reference')).toHaveText('hero_crest');
   await page.screenshot({ path: join(shots, 'locate-pinned-slider.png') });
+
+  // The Audit screen offers the project's references as a reference set beside the random probes:
+  // one random probe plus the reference make the two an audit needs, and the report names it.
+  await page.getByRole('button', { name: 'Audit', exact: true }).click();
+  const set = page.getByTestId('audit-references');
+  await expect(set).toContainText('Reference set');
+  const box = set.getByRole('checkbox', { name: /hero_crest/ });
+  await expect(box).not.toBeChecked();
+  await page.getByLabel('Probe count').fill('1');
+  await expect(page.getByTestId('probes-error')).toContainText('at least 2 probes in all');
+  await box.check();
+  await expect(page.getByTestId('probes-error')).toHaveCount(0);
+  await page.screenshot({ path: join(shots, 'locate-audit-reference-set.png') });
   expect(errors).toEqual([]);
 });

@@ -15,6 +15,21 @@ export interface AuditDirection {
   sigma: number;
 }
 
+/**
+ * A latent added to the probe set beside the seeds: a named reference found by `locate` (or a
+ * latent .npy file on the CLI). It is edited, scored and resampled exactly like a pinned seed;
+ * its code is used as stored (already in W or W+, so no truncation is applied to it).
+ */
+export interface ReferenceProbe {
+  name: string;
+  /** SHA-256 of the image it was found from (null when a bare .npy carries no locate report). */
+  imageSha256: string | null;
+  /** SHA-256 of the latent's float32 values, so the report names the exact code audited. */
+  latentSha256: string;
+  /** [size] (W, used on every row) or [layers · size]. */
+  latent: Float32Array;
+}
+
 export interface AuditProgress {
   done: number;
   total: number;
@@ -25,6 +40,10 @@ export interface AuditPlan {
   settings: AuditSettings;
   /** Pinned seeds first, then the seeded random probes. */
   seeds: number[];
+  /** Reference probes, after the seeds: probe index seeds.length + r is references[r]. */
+  references: ReferenceProbe[];
+  /** Every probe: seeds and references. */
+  probeCount: number;
   /** Seeds of the separate ψ = 1 sample that measures each attribute's spread σ. */
   sigmaSeeds: number[];
   /** Strengths in σ units, sorted, always containing 0 and ±reference. */
@@ -57,7 +76,7 @@ const MAX_PAIRED_DIRECTIONS = 12;
  * Validates and fixes everything an audit will do. `latentSize` and `latentLayers` describe the
  * generator's latent layout; `attributes` are the names the audit will score.
  */
-export function planAudit(rawSettings: Partial<AuditSettings>, directions: AuditDirection[], latent: { size: number; layers: number }, attributes: string[], hasFeatureModel: boolean): AuditPlan {
+export function planAudit(rawSettings: Partial<AuditSettings>, directions: AuditDirection[], latent: { size: number; layers: number }, attributes: string[], hasFeatureModel: boolean, references: ReferenceProbe[] = []): AuditPlan {
   const settings = auditSettingsSchema.parse(rawSettings);
   if (settings.pathLength.distance === 'features' && !hasFeatureModel) throw new PlumblineError('bad-request', "the 'features' path-length distance needs a scorer card with a features output (--feature-scorer)");
   if (directions.length === 0) throw new PlumblineError('bad-request', 'no directions to audit');
@@ -75,10 +94,18 @@ export function planAudit(rawSettings: Partial<AuditSettings>, directions: Audit
     }
   }
   const seeds = [...settings.pinnedSeeds, ...Array.from({ length: settings.probes }, (_, i) => PROBE_SEED_BASE + settings.seed * SEED_STRIDE + i)];
-  if (seeds.length === 0) throw new PlumblineError('bad-request', 'the probe set is empty: ask for --probes N or pin some seeds');
-  if (seeds.length < 2) throw new PlumblineError('bad-request', 'an audit needs at least 2 probes for any interval');
+  const names = new Set<string>();
+  for (const r of references) {
+    if (r.latent.length !== latent.size && r.latent.length !== per) throw new PlumblineError('latent-size-mismatch', `reference '${r.name}' has ${r.latent.length} values; this generator needs ${latent.size} (W) or ${per} (W+)`);
+    if (!r.latent.every(Number.isFinite)) throw new PlumblineError('npy-invalid', `reference '${r.name}' contains NaN or infinite values`);
+    if (names.has(r.name)) throw new PlumblineError('bad-request', `reference '${r.name}' is named twice in the probe set`);
+    names.add(r.name);
+  }
+  const probeCount = seeds.length + references.length;
+  if (probeCount === 0) throw new PlumblineError('bad-request', 'the probe set is empty: ask for --probes N, pin some seeds or add references');
+  if (probeCount < 2) throw new PlumblineError('bad-request', 'an audit needs at least 2 probes for any interval');
   const warnings: string[] = [];
-  if (seeds.length < MIN_USEFUL_PROBES) warnings.push(`only ${seeds.length} probes: intervals will be wide and the verdicts unreliable; use at least ${MIN_USEFUL_PROBES} (100 or more before sign-off)`);
+  if (probeCount < MIN_USEFUL_PROBES) warnings.push(`only ${probeCount} probes: intervals will be wide and the verdicts unreliable; use at least ${MIN_USEFUL_PROBES} (100 or more before sign-off)`);
 
   const grid = [...new Set([...settings.strengths, 0])].sort((a, b) => a - b);
   const reference = settings.referenceStrength;
@@ -87,6 +114,8 @@ export function planAudit(rawSettings: Partial<AuditSettings>, directions: Audit
   return {
     settings,
     seeds,
+    references,
+    probeCount,
     sigmaSeeds: Array.from({ length: settings.sigmaSamples }, (_, i) => SIGMA_SEED_BASE + settings.seed * SEED_STRIDE + i),
     grid,
     pathLengthGrid: grid.filter((t) => Number.isInteger(t)),
@@ -96,14 +125,14 @@ export function planAudit(rawSettings: Partial<AuditSettings>, directions: Audit
     // Squared feature distances are quadratic for small steps, like LPIPS: exponent 2.
     exponent: distance === 'features' ? 2 : DISTANCE_EXPONENT[distance],
     pairs: choosePairs(directions, settings.combinations),
-    pairProbes: Math.min(seeds.length, PAIR_PROBES),
+    pairProbes: Math.min(probeCount, PAIR_PROBES),
     warnings,
   };
 }
 
 /** Progress units of a whole audit: one per rendered batch (five per pair batch). */
 export function auditWorkUnits(plan: AuditPlan, directionCount: number, batchSize: number): number {
-  const batches = Math.ceil(plan.seeds.length / batchSize);
+  const batches = Math.ceil(plan.probeCount / batchSize);
   const sigmaBatches = Math.ceil(plan.sigmaSeeds.length / batchSize);
   return sigmaBatches + batches + directionCount * (plan.grid.length - 1 + plan.pathLengthGrid.length) * batches + plan.pairs.length * Math.ceil(plan.pairProbes / batchSize) * 5;
 }

@@ -14,7 +14,9 @@ import type { Consistency, RegionShares } from './change-map.ts';
 export type { Interval } from './statistics.ts';
 
 export interface WorstProbe {
-  seed: number;
+  /** The probe's seed; null for a reference probe, which `reference` names. */
+  seed: number | null;
+  reference?: string;
   strength: number;
   attribute: string;
   leakage: number;
@@ -125,7 +127,8 @@ export interface AuditReport {
   tool: string;
   generator: { name: string; fingerprint: string };
   settings: AuditSettings;
-  probes: { count: number; pinned: number[]; firstSeed: number; psi: number };
+  /** count includes the references, which follow the seeds (each with the image SHA-256 it was found from). */
+  probes: { count: number; pinned: number[]; firstSeed: number | null; psi: number; references: { name: string; imageSha256: string | null; latentSha256: string }[] };
   /** `accuracy`: a defined attribute's cross-validated accuracy in words (reported wherever it is used);
    * `judged`: false for a composite or descriptor that is reported but never a leak candidate. */
   attributes: { name: string; unit: string; source: string; sigma: number; judged?: boolean; accuracy?: string }[];
@@ -217,7 +220,7 @@ export function assembleReport(x: {
     tool: x.tool,
     generator: { name: x.generator.name, fingerprint: x.generator.fingerprint },
     settings,
-    probes: { count: plan.seeds.length, pinned: settings.pinnedSeeds, firstSeed: plan.seeds[settings.pinnedSeeds.length] ?? plan.seeds[0], psi: settings.psi },
+    probes: { count: plan.probeCount, pinned: settings.pinnedSeeds, firstSeed: plan.seeds[settings.pinnedSeeds.length] ?? plan.seeds[0] ?? null, psi: settings.psi, references: plan.references.map((r) => ({ name: r.name, imageSha256: r.imageSha256, latentSha256: r.latentSha256 })) },
     attributes: x.attributes.map((a) => ({ name: a.name, unit: a.unit, source: a.source, sigma: significant(a.sigma, 6), ...(a.judged === false ? { judged: false } : {}), ...(a.accuracy ? { accuracy: a.accuracy } : {}) })),
     warnings: [...plan.warnings, ...x.warnings],
     caution: AUDIT_CAUTION,

@@ -52,7 +52,7 @@ export interface DirectionRun {
 
 export async function* measureDirection(c: MeasureContext, d: AuditDirection, tick: Tick): AsyncGenerator<AuditProgress, DirectionRun, void> {
   const { gen, plan, probes, specs, sigma } = c;
-  const n = probes.seeds.length;
+  const n = probes.count;
   const K = specs.length;
   const batch = gen.batchSize;
   const { grid, pathLengthGrid, reference: ref, epsilon: eps, exponent } = plan;
@@ -104,7 +104,7 @@ export async function* measureDirection(c: MeasureContext, d: AuditDirection, ti
  */
 export async function* measureNullBaseline(c: MeasureContext, nulls: AuditDirection[], tick: Tick): AsyncGenerator<AuditProgress, DirectionMeasurements[], void> {
   const { gen, plan, probes, specs, sigma } = c;
-  const n = probes.seeds.length;
+  const n = probes.count;
   const K = specs.length;
   const batch = gen.batchSize;
   const { reference: ref, epsilon: eps, exponent } = plan;

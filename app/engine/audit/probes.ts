@@ -1,9 +1,11 @@
 // Audit step 1 (its rendering half), sampling: measures each attribute's spread σ over a separate
 // ψ = 1 sample (dropping attributes that never vary when the user did not name them), then maps
-// the plan's probe seeds to latent codes and scores each unedited probe once for the whole audit.
+// the plan's probe seeds (and reference latents, after them) to latent codes and scores each
+// unedited probe once for the whole audit.
+import { createHash } from 'node:crypto';
 import { PlumblineError } from '../../core/errors.ts';
 import { RunningMoments } from '../../core/stats.ts';
-import type { AuditDirection, AuditPlan, AuditProgress } from '../../core/audit/plan.ts';
+import type { AuditDirection, AuditPlan, AuditProgress, ReferenceProbe } from '../../core/audit/plan.ts';
 import { IMAGE_MEASURES, attributeChange, scoreBatch, type AttributeSpec } from '../attributes.ts';
 import type { Generator } from '../generator.ts';
 import type { RgbaImage } from '../../core/image.ts';
@@ -22,6 +24,8 @@ export interface AttributeSpread {
 
 export interface ProbeSet {
   seeds: number[];
+  /** Every probe: the seeds, then the plan's reference latents. */
+  count: number;
   /** Latent codes of the probes, [probe × layers × size]. */
   codes: Float32Array;
   /** Unedited scores, [probe × attribute] in spec order. */
@@ -79,12 +83,26 @@ export async function* measureAttributeSpread(gen: Generator, plan: AuditPlan, s
   return { specs: kept, sigma: keep.map((j) => sigma[j]), warnings: [...warnings, `${problem}; they were left out of this audit (more --sigma samples may reveal rare variation)`] };
 }
 
+/** A latent as a reference probe, named, with the SHA-256 of its float32 values (little-endian, as stored in .npy). */
+export function referenceProbe(name: string, latent: Float32Array, imageSha256: string | null): ReferenceProbe {
+  const latentSha256 = createHash('sha256').update(new Uint8Array(latent.buffer, latent.byteOffset, latent.byteLength)).digest('hex');
+  return { name, imageSha256, latentSha256, latent: Float32Array.from(latent) };
+}
+
 export async function* sampleProbes(gen: Generator, plan: AuditPlan, specs: AttributeSpec[], tick: Tick): AsyncGenerator<AuditProgress, ProbeSet, void> {
-  const n = plan.seeds.length;
+  const n = plan.probeCount;
   const K = specs.length;
   const batch = gen.batchSize;
-  const per = gen.layout.layers * gen.layout.size;
-  const codes = await gen.codesForSeeds(plan.seeds, plan.settings.psi);
+  const { layers, size } = gen.layout;
+  const per = layers * size;
+  const codes = new Float32Array(n * per);
+  codes.set(await gen.codesForSeeds(plan.seeds, plan.settings.psi));
+  // Reference latents as stored: a W code on every row, a W+ code row by row.
+  plan.references.forEach((r, i) => {
+    const at = (plan.seeds.length + i) * per;
+    if (r.latent.length === per) codes.set(r.latent, at);
+    else for (let l = 0; l < layers; l++) codes.set(r.latent, at + l * size);
+  });
   const baseScores = new Float64Array(n * K);
   const images: RgbaImage[] = [];
   const keep = Math.min(n, CALIBRATION_PROBES);
@@ -95,5 +113,5 @@ export async function* sampleProbes(gen: Generator, plan: AuditPlan, specs: Attr
     for (let i = 0; i < m && images.length < keep; i++) images.push(gen.toRgba(out.images, i));
     yield tick('rendering probes');
   }
-  return { seeds: plan.seeds, codes, baseScores, images };
+  return { seeds: plan.seeds, count: n, codes, baseScores, images };
 }

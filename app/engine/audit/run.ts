@@ -2,7 +2,7 @@
 // and score each direction and pair (measure.ts), statistics, verdict and report
 // (app/core/audit/) — as an async generator yielding progress between batches, so the scheduler
 // can serve previews and cancel (cancel = stop pulling; native resources are released either way).
-import { planAudit, auditWorkUnits, type AuditDirection, type AuditProgress } from '../../core/audit/plan.ts';
+import { planAudit, auditWorkUnits, type AuditDirection, type AuditProgress, type ReferenceProbe } from '../../core/audit/plan.ts';
 import type { AuditSettings } from '../../core/audit/settings.ts';
 import { directionStatistics, combinationAllowance, combinationStatistics, nullPercentiles, nullSummary, significant, type DirectionStatistics, type InstrumentAllowance, type NullSummary } from '../../core/audit/statistics.ts';
 import { judgeDirection, judgeCombination } from '../../core/audit/verdict.ts';
@@ -43,6 +43,12 @@ function countNoSubject(specs: AttributeSpec[], baseScores: Float64Array): { pro
 }
 export type { AuditReport } from '../../core/audit/report.ts';
 
+/** The worst probes rendered, a reference probe named by its reference instead of a seed. */
+async function renderedWorst(c: MeasureContext, d: Direction, chosen: Parameters<typeof renderWorstProbes>[2]) {
+  const rendered = await renderWorstProbes(c, d, chosen);
+  return rendered.map((w, i) => (chosen[i].index >= c.plan.seeds.length ? { ...w, seed: null, reference: c.plan.references[chosen[i].index - c.plan.seeds.length].name } : w));
+}
+
 /** The SSIM window is 11 × 11: smaller images use the JS distance (which pads). */
 const SSIM_WINDOW = 11;
 
@@ -53,14 +59,16 @@ export interface AuditModels {
   features?: ScorerModel;
   /** Attributes the lead defined from tagged seeds. */
   defined?: DefinedAttribute[];
+  /** Reference latents added to the probe set after the seeds (the report's probes.references). */
+  references?: ReferenceProbe[];
 }
 
 export async function* runAudit(gen: Generator, directions: AuditDirection[], rawSettings: Partial<AuditSettings> = {}, models: AuditModels = {}): AsyncGenerator<AuditProgress, AuditReport, void> {
   const selection = rawSettings.attributes ?? 'default';
   const resolved = resolveAttributes(gen, selection, models.scorers ?? [], models.defined ?? []);
-  const plan = planAudit(rawSettings, directions, gen.layout, resolved.map((s) => s.name), !!models.features);
+  const plan = planAudit(rawSettings, directions, gen.layout, resolved.map((s) => s.name), !!models.features, models.references ?? []);
   let done = 0;
-  const probeBatches = Math.ceil(plan.seeds.length / gen.batchSize);
+  const probeBatches = Math.ceil(plan.probeCount / gen.batchSize);
   const total = auditWorkUnits(plan, directions.length, gen.batchSize) + layerRules(directions).length * plan.settings.nullDirections * probeBatches + Math.ceil(plan.settings.referencePathSamples / gen.batchSize);
   const tick = (label: string): AuditProgress => ({ done: ++done, total, label });
 
@@ -87,16 +95,18 @@ export async function* runAudit(gen: Generator, directions: AuditDirection[], ra
   const ssimModel = ssimSpace && Math.min(width, height) >= SSIM_WINDOW ? await SsimDistanceModel.create(height, width, gen.range, 1, ssimSpace) : null;
   try {
     const context: MeasureContext = { gen, plan, probes, specs, sigma, features: models.features, ssimModel };
-    const bootstrap = new ProbeBootstrap(plan.seeds.length, plan.settings.bootstrapResamples, plan.settings.seed);
+    const bootstrap = new ProbeBootstrap(plan.probeCount, plan.settings.bootstrapResamples, plan.settings.seed);
     const reports: DirectionReport[] = [];
     const runs: DirectionRun[] = [];
     const leakCandidates = specs.map((s) => s.leak);
+    // One entry per probe; a reference probe has no seed (NaN here, named by renderedWorst below).
+    const probeSeeds = [...plan.seeds, ...plan.references.map(() => NaN)];
     const measured: { d: AuditDirection; run: DirectionRun; stats: DirectionStatistics; unmeasuredTarget: string | null; summary: NullSummary }[] = [];
     for (const d of directions) {
       const run = yield* measureDirection(context, d, tick);
       runs.push(run);
       const unmeasuredTarget = d.target && !names.includes(d.target) ? d.target : null;
-      const stats = directionStatistics(run.measurements, plan, names, plan.seeds, unmeasuredTarget ? null : d.target, bootstrap, leakCandidates, instrument);
+      const stats = directionStatistics(run.measurements, plan, names, probeSeeds, unmeasuredTarget ? null : d.target, bootstrap, leakCandidates, instrument);
       measured.push({ d, run, stats, unmeasuredTarget, summary: nullSummary(run.measurements, plan) });
     }
     // Null baseline (METHODS §10): K random unit directions for each layer rule in use, with the
@@ -116,12 +126,12 @@ export async function* runAudit(gen: Generator, directions: AuditDirection[], ra
     }
     for (const { d, run, stats, unmeasuredTarget, summary } of measured) {
       const nullRow = K > 0 && !unmeasuredTarget ? nullPercentiles(summary, names.indexOf(stats.target), nulls.get(layerKey(d.layers))!, leakCandidates) : null;
-      const judged = judgeDirection(stats, { reference: plan.reference, settings: plan.settings, fewProbes: tooFewProbes(plan.seeds.length), pathLengthGrid: plan.pathLengthGrid, nulls: nullRow, unmeasuredTarget });
+      const judged = judgeDirection(stats, { reference: plan.reference, settings: plan.settings, fewProbes: tooFewProbes(plan.probeCount), pathLengthGrid: plan.pathLengthGrid, nulls: nullRow, unmeasuredTarget });
       const targetChange = run.measurements.change[plan.grid.indexOf(plan.reference)]![names.indexOf(stats.target)];
       const changeMap = run.changeMap && { png: encodePng(changeMapImage(run.changeMap.map, run.changeMap.width, run.changeMap.height)), width: run.changeMap.width, height: run.changeMap.height, probes: run.changeMap.probes, fullScale: CHANGE_MAP_FULL_SCALE, meanDeltaE: significant(run.changeMap.meanDeltaE), shares: { subject: significant(run.changeMap.shares.subject), edge: significant(run.changeMap.shares.edge), background: significant(run.changeMap.shares.background) } };
       const consistency = consistencyAcrossProbes(targetChange);
       const roundedConsistency = { ...consistency, median: significant(consistency.median), mean: significant(consistency.mean), coefficientOfVariation: significant(consistency.coefficientOfVariation), flipShare: significant(consistency.flipShare) };
-      reports.push(directionReport(d.name, stats, judged, plan, await renderWorstProbes(context, d, stats.worstProbes), nullRow, { changeMap, consistency: roundedConsistency, declaredTarget: d.target }));
+      reports.push(directionReport(d.name, stats, judged, plan, await renderedWorst(context, d, stats.worstProbes), nullRow, { changeMap, consistency: roundedConsistency, declaredTarget: d.target }));
     }
     const referencePathLength = plan.settings.referencePathSamples > 0 ? yield* publishedPathLength(context, plan.settings.referencePathSamples, tick) : null;
     const combinations: CombinationReport[] = [];

@@ -5,6 +5,9 @@ import { auditReportFile, auditReportWire } from '../../core/audit/report.ts';
 import { runAudit } from '../audit/run.ts';
 import { driveSteps, type AreaHandlers } from './context.ts';
 import { vectorHash } from '../project.ts';
+import { referenceCodes } from '../locate-job.ts';
+import { loadReference } from '../references.ts';
+import { referenceProbe } from '../audit/probes.ts';
 
 /** Progress is forwarded every this many batches (the audit runs hundreds), not every batch. */
 const AUDIT_PROGRESS_EVERY = 4;
@@ -19,9 +22,16 @@ export const auditHandlers: AreaHandlers<'audit.run'> = {
       return p.targets?.[id] ? { ...d, target: p.targets[id] } : d;
     });
     const defined = workspace.definedAttributes.pick(workspace.project?.dir ?? null, p.defined ?? [], gen.info);
+    // Named references of the open project join the probes (refused if found in another generator).
+    const projectDir = workspace.project?.dir ?? null;
+    const references = (p.references ?? []).map((name) => {
+      referenceCodes(projectDir, name, gen); // refuses a reference found in another generator, or of the wrong size
+      const stored = loadReference(projectDir!, name);
+      return referenceProbe(name, stored.latent, stored.report.image.sha256);
+    });
     const report = await driveSteps(runAudit(gen, directions, {
       probes: p.probes, pinnedSeeds: p.pinnedSeeds, psi: p.psi, seed: p.seed, referenceStrength: p.referenceStrength, leakPass: p.leakPass, leakFail: p.leakFail, nullDirections: p.nullDirections, combinations: p.combinations,
-    }, { defined }), ctx, AUDIT_PROGRESS_EVERY);
+    }, { defined, references }), ctx, AUDIT_PROGRESS_EVERY);
     // Kept as history with each direction's vector hash, so sign-off can tell which version passed.
     const project = workspace.project && !workspace.project.readOnly ? workspace.project : null;
     const savedAs = project ? project.saveAudit(auditReportFile(report), Object.fromEntries(directions.map((d) => [d.name, vectorHash(d.vector, d.layers)]))) : null;

@@ -50,7 +50,7 @@ export function probesProblem(value: unknown, pinned: number): string | null {
   if (!Number.isInteger(value)) return 'Probes must be a whole number.';
   if (value < PROBE_LIMITS.min) return `Probes cannot be negative (0–${PROBE_LIMITS.max.toLocaleString()}).`;
   if (value > PROBE_LIMITS.max) return `At most ${PROBE_LIMITS.max.toLocaleString()} probes.`;
-  if (value + pinned < PROBE_LIMITS.minTotal) return `An audit needs at least ${PROBE_LIMITS.minTotal} probes in all (random plus ${pinned} pinned).`;
+  if (value + pinned < PROBE_LIMITS.minTotal) return `An audit needs at least ${PROBE_LIMITS.minTotal} probes in all (random plus ${pinned} pinned seeds and references).`;
   return null;
 }
 
@@ -122,7 +122,7 @@ export class Lab {
   forceReason = $state('');
 
   /** A worst probe shown large (rendered at full size on request). */
-  enlarged = $state.raw<{ direction: string; seed: number; strength: number; attribute: string; leakage: number; before: string; after: string } | null>(null);
+  enlarged = $state.raw<{ direction: string; seed: number | null; reference?: string; strength: number; attribute: string; leakage: number; before: string; after: string } | null>(null);
   /** Repair before/after on the same probes, by repaired direction name. */
   repairImages = $state.raw<Record<string, { parent: string; strength: number; rows: { seed: number; before: string; original: string; repaired: string }[] }>>({});
   /** Attributes defined from tagged seeds (the project's, or this session's without a project). */
@@ -133,6 +133,8 @@ export class Lab {
   lastDefinition = $state.raw<{ attribute: DefinedAttributeInfo; refused: string | null } | null>(null);
   /** Defined attributes chosen for the next audit, by name. */
   auditDefined = $state<string[]>([]);
+  /** Named references of the open project added to the audit's probes (after the seeds). */
+  auditReferences = $state<string[]>([]);
   /** Target attribute per direction id for the next audit (absent: the direction's own target). */
   auditTargets = $state<Record<string, string>>({});
 
@@ -180,6 +182,7 @@ export class Lab {
       this.studio.onRecover = () => this.openProject(path, false).then(() => undefined);
       await this.refreshDirections(p.directions);
       this.defined = (await this.engine.request('attributes.list', {})).attributes;
+      this.auditReferences = [];
       if (p.ui) {
         this.studio.restoreUi(p.ui);
         if (p.ui.variants) this.#restoreVariants(p.ui.variants);
@@ -230,7 +233,7 @@ export class Lab {
   }
 
   get probesProblem(): string | null {
-    return probesProblem(this.probes, this.studio.pinned.length);
+    return probesProblem(this.probes, this.studio.pinned.length + this.auditReferences.length);
   }
 
   get componentsProblem(): string | null {
@@ -355,7 +358,7 @@ export class Lab {
       const pending = this.engine.request(
         'audit.run',
         {
-          directions: ids, probes: this.probes, pinnedSeeds: this.studio.pinned, psi: this.studio.psi, seed: 1, referenceStrength: 2, leakPass: 0.2, leakFail: 0.5, nullDirections: APP_NULL_DIRECTIONS, combinations: 'all',
+          directions: ids, probes: this.probes, pinnedSeeds: this.studio.pinned, references: this.auditReferences, psi: this.studio.psi, seed: 1, referenceStrength: 2, leakPass: 0.2, leakFail: 0.5, nullDirections: APP_NULL_DIRECTIONS, combinations: 'all',
           defined: this.auditDefined.filter((n) => this.defined.some((d) => d.name === n)),
           targets: Object.fromEntries(Object.entries(this.auditTargets).filter(([id, t]) => ids.includes(id) && t)),
         },
@@ -413,7 +416,7 @@ export class Lab {
   async loadRepairImages(parent: string, child: string): Promise<void> {
     const p = this.report?.directions.find((d) => d.name === parent);
     if (!p || !this.report) return;
-    const seeds = this.thumbnails.filter((t) => t.direction === parent).map((t) => t.seed).slice(0, 4);
+    const seeds = this.thumbnails.filter((t) => t.direction === parent).flatMap((t) => (t.seed === null ? [] : [t.seed])).slice(0, 4);
     if (!seeds.length) return;
     const strength = p.leakage.strength;
     const psi = this.report.probes.psi;
@@ -426,8 +429,14 @@ export class Lab {
 
   async enlarge(t: Thumb): Promise<void> {
     const psi = this.report?.probes.psi ?? this.studio.psi;
-    await this.#guard(`Rendering seed ${t.seed} at full size`, async () => {
-      const r = await this.engine.request('lab.probeImages', { direction: t.direction, seeds: [t.seed], strength: t.strength, psi });
+    const seed = t.seed;
+    if (seed === null) {
+      // A reference probe has no seed to re-render from here: its audit thumbnails are shown.
+      this.enlarged = { direction: t.direction, seed: null, reference: t.reference, strength: t.strength, attribute: t.attribute, leakage: t.leakage, before: this.thumbUrl(t.before), after: this.thumbUrl(t.after) };
+      return;
+    }
+    await this.#guard(`Rendering seed ${seed} at full size`, async () => {
+      const r = await this.engine.request('lab.probeImages', { direction: t.direction, seeds: [seed], strength: t.strength, psi });
       const img = r.images[0];
       this.enlarged = { direction: t.direction, seed: t.seed, strength: t.strength, attribute: t.attribute, leakage: t.leakage, before: this.thumbUrl(img.before), after: this.thumbUrl(img.after) };
     });
