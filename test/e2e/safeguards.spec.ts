@@ -271,6 +271,15 @@ test('screens at 1280 and 1600 px: workbench with the seed grid, discover, short
   await expect(browser).toContainText('Empty folder: a good place for a new project.');
   await shoot(page, 'safeguards-open-dialog');
   await page.getByRole('button', { name: 'Cancel' }).click();
+  // The variant output folder is chosen with the same browser, not typed.
+  await page.keyboard.press('Alt+5');
+  await page.getByRole('button', { name: 'Choose…' }).click();
+  const outBrowser = page.getByRole('group', { name: 'Folder browser' });
+  await page.getByLabel('Browse root').selectOption(browseRoot);
+  await outBrowser.getByRole('button', { name: '▸ new-season' }).click();
+  await page.getByRole('button', { name: 'Choose', exact: true }).click();
+  await expect(page.getByLabel('Output folder')).toHaveValue(join(browseRoot, 'new-season'));
+  await shoot(page, 'safeguards-variants-out');
   await page.keyboard.press('Alt+1');
   await page.keyboard.press('?');
   await expect(page.getByRole('dialog', { name: 'Keyboard shortcuts' })).toBeVisible();
