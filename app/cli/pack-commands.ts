@@ -2,9 +2,7 @@
 import type { Command } from 'commander';
 import { existsSync, readFileSync } from 'node:fs';
 import { join, resolve } from 'node:path';
-import { createHash } from 'node:crypto';
 import { writeFileAtomic } from '../core/atomic-write.ts';
-import { encodePng } from '../core/image.ts';
 import { applyEdits } from '../core/latent.ts';
 import { PackError, type PackFailure } from '../core/pack.ts';
 import { PlumblineError } from '../core/errors.ts';
@@ -16,6 +14,10 @@ import { parseSeeds } from './seeds.ts';
 import { driveJob } from './jobs.ts';
 import { parseRecipe, renderVariants, type VariantDirection } from '../engine/variants.ts';
 import { EngineHost } from '../engine/host.ts';
+import { sharedPngWriter } from '../engine/png-writer.ts';
+import { Farm } from '../engine/farm/coordinator.ts';
+import { renderVariantsOnFarm } from '../engine/farm/farm-variants.ts';
+import { farmPassword } from './farm-commands.ts';
 import type { CliContext } from './lab-commands.ts';
 
 /** One exit code per failure class, so pipelines can tell them apart (docs/preset-pack.md). */
@@ -120,18 +122,28 @@ export function addPackCommands(program: Command, ctx: CliContext): void {
         }
         if (outside.length) process.stderr.write(`warning: forced outside the safe range: ${outside.map(({ d, strength }) => `${d.name}=${strength}`).join(', ')}\n`);
         const psi = o.psi === undefined ? gen.info.defaultPsi : Number(o.psi);
-        const images = [];
-        for (let at = 0; at < seeds.length; at += gen.batchSize) {
-          const chunk = seeds.slice(at, at + gen.batchSize);
-          const codes = await gen.codesForSeeds(chunk, psi);
-          applyEdits(codes, gen.layout, sets.map(({ d, strength }) => ({ vector: d.vector, layers: d.layers, step: strength * d.sigma })));
-          const r = await gen.synthesize(codes, chunk.length);
-          for (let i = 0; i < chunk.length; i++) {
-            const png = encodePng(gen.toRgba(r.images, i));
-            const file = `seed-${String(chunk[i]).padStart(6, '0')}.png`;
-            writeFileAtomic(join(out, file), png);
-            images.push({ seed: chunk[i], file, sha256: createHash('sha256').update(png).digest('hex') });
+        const images: { seed: number; file: string; sha256: string }[] = [];
+        // Encoding and writing run on worker threads while the next batch renders.
+        const pool = sharedPngWriter();
+        const writes: Promise<void>[] = [];
+        try {
+          for (let at = 0; at < seeds.length; at += gen.batchSize) {
+            const chunk = seeds.slice(at, at + gen.batchSize);
+            const codes = await gen.codesForSeeds(chunk, psi);
+            applyEdits(codes, gen.layout, sets.map(({ d, strength }) => ({ vector: d.vector, layers: d.layers, step: strength * d.sigma })));
+            const r = await gen.synthesize(codes, chunk.length);
+            for (let i = 0; i < chunk.length; i++) {
+              const seed = chunk[i];
+              const slot = at + i;
+              const file = `seed-${String(seed).padStart(6, '0')}.png`;
+              writes.push(pool.write(gen.toRgba(r.images, i), join(out, file)).then((w) => void (images[slot] = { seed, file, sha256: w.sha256 })));
+            }
+            // At most about two batches in flight.
+            if (writes.length > 2 * gen.batchSize) await Promise.all(writes.splice(0, writes.length - gen.batchSize));
           }
+          await Promise.all(writes);
+        } finally {
+          await Promise.allSettled(writes);
         }
         writeFileAtomic(join(out, 'manifest.json'), JSON.stringify({
           format: 'plumbline.applied', version: 1, createdAt: new Date().toISOString(), pack: v.pack.manifest.project,
@@ -152,6 +164,8 @@ export function addPackCommands(program: Command, ctx: CliContext): void {
     .option('--pack <file>', 'a preset pack instead of --directions (its safe ranges are enforced)')
     .option('--force', 'allow strengths outside a pack’s safe range')
     .requiredOption('-o, --out <dir>', 'output folder; rerun the same command to resume')
+    .option('--farm <url>', 'render on a farm: redis://[user:password@]host:port (workers: plumbline worker)')
+    .option('--no-publish-model', 'on a farm, do not publish the generator files through Redis (workers read them from shared storage)')
     .action(async (o) => withPackErrors(async () => {
       if (!o.directions === !o.pack) throw ctx.usage('give exactly one of --directions or --pack');
       const recipeFile = resolve(o.recipe);
@@ -164,9 +178,16 @@ export function addPackCommands(program: Command, ctx: CliContext): void {
         let dirs: VariantDirection[];
         if (o.pack) dirs = (await verifyPack(readFile(o.pack), resolve(o.pack), gen)).directions;
         else dirs = host.openDirections(resolve(o.directions)).directions.map((d) => host.direction(d.id));
-        const job = renderVariants(gen, recipe, dirs, resolve(o.out), { force: o.force });
-        const done = await driveJob(job, ctx, 'variants', 'stopped; run the same command again to resume');
-        if (done) process.stdout.write(`${recipe.name}: ${done.rendered} rendered, ${done.reused} kept from an earlier run; manifest.json and contact-sheet.png in ${resolve(o.out)}\n`);
+        const farm = o.farm ? await Farm.connect(o.farm, farmPassword()) : null;
+        try {
+          const job = farm
+            ? renderVariantsOnFarm(farm, gen, recipe, dirs, resolve(o.out), { force: o.force, modelPath: resolve(o.model ?? demoCardPath()), publish: o.publishModel, isCancelled: ctx.isCancelled })
+            : renderVariants(gen, recipe, dirs, resolve(o.out), { force: o.force });
+          const done = await driveJob(job, ctx, 'variants', 'stopped; run the same command again to resume');
+          if (done) process.stdout.write(`${recipe.name}: ${done.rendered} rendered, ${done.reused} kept from an earlier run; manifest.json and contact-sheet.png in ${resolve(o.out)}\n`);
+        } finally {
+          await farm?.close();
+        }
       } finally {
         await host.dispose();
       }

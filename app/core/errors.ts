@@ -19,6 +19,8 @@ export const ERROR_CODES = {
   'bad-request': 'The request is invalid',
   'engine-stopped': 'The engine stopped',
   'cancelled': 'Cancelled',
+  'write-failed': 'A file could not be written',
+  'farm': 'The render farm refused or failed the work',
   'internal': 'Internal error',
 } as const;
 

@@ -7,12 +7,13 @@ import { createHash } from 'node:crypto';
 import { z } from 'zod';
 import { decode } from 'fast-png';
 import { writeFileAtomic } from '../core/atomic-write.ts';
-import { encodePng, encodePngAsync, type RgbaImage } from '../core/image.ts';
+import { encodePng, type RgbaImage } from '../core/image.ts';
 import { applyEdits } from '../core/latent.ts';
 import { PlumblineError } from '../core/errors.ts';
 import { parseJsonFile } from '../core/json-file.ts';
 import { drawText, GLYPH_HEIGHT } from '../core/label-font.ts';
 import type { Generator } from './generator.ts';
+import { sharedPngWriter } from './png-writer.ts';
 
 export const recipeSchema = z.object({
   format: z.literal('plumbline.variant-recipe'),
@@ -38,77 +39,158 @@ export function parseRecipe(text: string, file: string): Recipe {
   return parseJsonFile(recipeSchema, text, file, 'invalid variant recipe');
 }
 
-/** Renders a recipe; yields progress between batches. Existing images with matching hashes are kept (resume). */
-export async function* renderVariants(gen: Generator, recipe: Recipe, directions: VariantDirection[], out: string, options: { force?: boolean } = {}): AsyncGenerator<{ done: number; total: number; label: string }, { manifest: object; rendered: number; reused: number }, void> {
+/** One work unit of a variant set: one setting over a chunk of the recipe's seeds (indices into `seeds`). */
+export interface VariantUnit {
+  setting: number;
+  seeds: number[];
+}
+
+/** An image finished and written: what the manifest records, plus pixels for the contact sheet. */
+export interface VariantImage {
+  file: string;
+  seed: number;
+  setting: string;
+  sha256: string;
+  thumb?: RgbaImage;
+}
+
+/** Renders units and yields each unit's written images as they finish (in any order). */
+export type VariantUnitRunner = (units: VariantUnit[]) => AsyncGenerator<VariantImage[], void, void>;
+
+export const variantFile = (label: string, seed: number) => `${label}/seed-${String(seed).padStart(6, '0')}.png`;
+/** Contact sheets show the first eight seeds of each setting. */
+const SHEET_SEEDS = 8;
+
+/** Units in a fixed order: setting by setting, seeds in chunks of `perUnit` — the same on one machine and on a farm. */
+export function planVariantUnits(recipe: Recipe, perUnit: number): VariantUnit[] {
+  const units: VariantUnit[] = [];
+  recipe.settings.forEach((_, setting) => {
+    for (let at = 0; at < recipe.seeds.length; at += perUnit) units.push({ setting, seeds: recipe.seeds.slice(at, at + perUnit).map((_, k) => at + k) });
+  });
+  return units;
+}
+
+/** Refuses unknown directions, and strengths outside an audited safe range unless forced. */
+export function checkRecipe(recipe: Recipe, directions: VariantDirection[], force = false): void {
   const byName = new Map(directions.map((d) => [d.name, d]));
   for (const s of recipe.settings)
     for (const [name, strength] of Object.entries(s.strengths)) {
       const d = byName.get(name);
       if (!d) throw new PlumblineError('bad-request', `setting '${s.label}' uses unknown direction '${name}'; available: ${[...byName.keys()].join(', ')}`);
-      if (d.safeRange && !options.force && (strength < d.safeRange[0] || strength > d.safeRange[1])) throw new PlumblineError('bad-request', `setting '${s.label}': ${name}=${strength} is outside its audited safe range ${d.safeRange[0]}…${d.safeRange[1]} (use --force to render anyway)`);
+      if (d.safeRange && !force && (strength < d.safeRange[0] || strength > d.safeRange[1])) throw new PlumblineError('bad-request', `setting '${s.label}': ${name}=${strength} is outside its audited safe range ${d.safeRange[0]}…${d.safeRange[1]} (use --force to render anyway)`);
     }
+}
+
+/** The pixels of one unit: its seeds' codes, the setting's edits, one synthesis call. */
+export async function renderVariantUnit(gen: Generator, recipe: Recipe, directions: VariantDirection[], unit: VariantUnit): Promise<{ file: string; seed: number; image: RgbaImage }[]> {
+  const byName = new Map(directions.map((d) => [d.name, d]));
+  const setting = recipe.settings[unit.setting];
+  const seeds = unit.seeds.map((i) => recipe.seeds[i]);
+  const codes = await gen.codesForSeeds(seeds, recipe.psi);
+  applyEdits(codes, gen.layout, Object.entries(setting.strengths).map(([name, strength]) => {
+    const d = byName.get(name)!;
+    return { vector: d.vector, layers: d.layers, step: strength * d.sigma };
+  }));
+  const r = await gen.synthesize(codes, seeds.length);
+  return seeds.map((seed, k) => ({ file: variantFile(setting.label, seed), seed, image: gen.toRgba(r.images, k) }));
+}
+
+/** Renders a recipe on this machine; yields progress between batches. Existing images with matching hashes are kept (resume). */
+export function renderVariants(gen: Generator, recipe: Recipe, directions: VariantDirection[], out: string, options: { force?: boolean } = {}): AsyncGenerator<{ done: number; total: number; label: string }, { manifest: object; rendered: number; reused: number }, void> {
+  return runVariantSet({ name: gen.info.name, fingerprint: gen.info.fingerprint, centreFromCard: !!gen.card?.truncation.centre }, recipe, directions, out, gen.batchSize, localUnitRunner(gen, recipe, directions, out), options);
+}
+
+/** Renders units one batch at a time; PNG encoding and writing run on the pool's threads meanwhile. */
+export function localUnitRunner(gen: Generator, recipe: Recipe, directions: VariantDirection[], out: string): VariantUnitRunner {
+  return async function* (units) {
+    const pool = sharedPngWriter();
+    const inFlight: Promise<VariantImage[]>[] = [];
+    try {
+      for (const unit of units) {
+        const images = await renderVariantUnit(gen, recipe, directions, unit);
+        const label = recipe.settings[unit.setting].label;
+        inFlight.push(Promise.all(images.map(async ({ file, seed, image }) => {
+          const thumb = recipe.seeds.indexOf(seed) < SHEET_SEEDS ? { ...image, data: image.data.slice() } : undefined;
+          const w = await pool.write(image, join(out, file), { durable: false });
+          return { file, seed, setting: label, sha256: w.sha256, thumb };
+        })));
+        // Keep at most about two batches of images in flight.
+        while (inFlight.length > 2) yield await inFlight.shift()!;
+      }
+      while (inFlight.length) yield await inFlight.shift()!;
+    } finally {
+      // On cancel or error, writes already queued still settle (each file is whole or absent).
+      await Promise.allSettled(inFlight);
+    }
+  };
+}
+
+/**
+ * The variant-set job around any unit runner (this machine or a farm): resume by hash, interim
+ * and final manifests, and the contact sheet. `perUnit` seeds per unit.
+ */
+export async function* runVariantSet(
+  generator: { name: string; fingerprint: string; centreFromCard: boolean },
+  recipe: Recipe, directions: VariantDirection[], out: string, perUnit: number, runUnits: VariantUnitRunner, options: { force?: boolean } = {},
+): AsyncGenerator<{ done: number; total: number; label: string }, { manifest: object; rendered: number; reused: number }, void> {
+  checkRecipe(recipe, directions, options.force);
   const manifestFile = join(out, 'manifest.json');
   const previous = existsSync(manifestFile) ? (JSON.parse(readFileSync(manifestFile, 'utf8')) as { generator?: { fingerprint: string }; images?: { file: string; sha256: string }[] }) : null;
-  if (previous?.generator && previous.generator.fingerprint !== gen.info.fingerprint) throw new PlumblineError('bad-request', `${manifestFile}: this folder holds variants of another generator; choose another --out`);
+  if (previous?.generator && previous.generator.fingerprint !== generator.fingerprint) throw new PlumblineError('bad-request', `${manifestFile}: this folder holds variants of another generator; choose another --out`);
   const known = new Map((previous?.images ?? []).map((i) => [i.file, i.sha256]));
-  const per = gen.layout.layers * gen.layout.size;
-  const base = await gen.codesForSeeds(recipe.seeds, recipe.psi);
-  const jobs = recipe.settings.flatMap((s) => recipe.seeds.map((seed, i) => ({ s, seed, i, file: `${s.label}/seed-${String(seed).padStart(6, '0')}.png` })));
   const images: { file: string; seed: number; setting: string; sha256: string }[] = [];
   const thumbs = new Map<string, RgbaImage>();
+  const total = recipe.seeds.length * recipe.settings.length;
   let rendered = 0;
   let reused = 0;
-  const writes: Promise<void>[] = [];
   const writeManifest = (complete: boolean) =>
     writeFileAtomic(manifestFile, JSON.stringify({
       format: 'plumbline.variants', version: 1, recipe: recipe.name, complete, createdAt: new Date().toISOString(),
-      generator: { name: gen.info.name, fingerprint: gen.info.fingerprint },
-      truncation: { psi: recipe.psi, centre: gen.card?.truncation.centre ? 'model card' : 'estimated' },
+      generator: { name: generator.name, fingerprint: generator.fingerprint },
+      truncation: { psi: recipe.psi, centre: generator.centreFromCard ? 'model card' : 'estimated' },
       seedConvention: 'plumbline latentForSeed (xoshiro128** via splitmix32, stream 0x5eed, polar Box–Muller)',
       latents: recipe.seeds.map((seed) => ({ seed })),
       directions: directions.map((d) => ({ name: d.name, sha256: hashOf(d), sigma: d.sigma, layers: d.layers })),
       settings: recipe.settings,
       images,
-    }, null, 2) + '\n');
-  for (let at = 0; at < jobs.length; at += gen.batchSize) {
-    const chunk = jobs.slice(at, at + gen.batchSize);
-    const pending = chunk.filter((j) => !(known.has(j.file) && existsSync(join(out, j.file)) && sha(readFileSync(join(out, j.file))) === known.get(j.file)));
-    for (const j of chunk.filter((x) => !pending.includes(x))) {
-      images.push({ file: j.file, seed: j.seed, setting: j.s.label, sha256: known.get(j.file)! });
-      if (j.i < 8) {
-        const png = decode(readFileSync(join(out, j.file)));
-        thumbs.set(j.file, { width: png.width, height: png.height, data: new Uint8ClampedArray(png.data) });
+      // Interim manifests skip the fsync: a resumed run re-checks every image by hash anyway.
+    }, null, 2) + '\n', { durable: complete });
+  // Resume: images already on disk with their recorded hash are kept; units shrink to what is missing.
+  const units: VariantUnit[] = [];
+  for (const unit of planVariantUnits(recipe, perUnit)) {
+    const label = recipe.settings[unit.setting].label;
+    const missing = unit.seeds.filter((i) => {
+      const file = variantFile(label, recipe.seeds[i]);
+      const path = join(out, file);
+      if (!(known.has(file) && existsSync(path))) return true;
+      const bytes = readFileSync(path);
+      if (sha(bytes) !== known.get(file)) return true;
+      images.push({ file, seed: recipe.seeds[i], setting: label, sha256: known.get(file)! });
+      if (i < SHEET_SEEDS) {
+        const png = decode(bytes);
+        thumbs.set(file, { width: png.width, height: png.height, data: new Uint8ClampedArray(png.data) });
       }
       reused++;
-    }
-    if (pending.length) {
-      const codes = new Float32Array(pending.length * per);
-      pending.forEach((j, k) => {
-        const row = base.slice(j.i * per, (j.i + 1) * per);
-        applyEdits(row, gen.layout, Object.entries(j.s.strengths).map(([name, strength]) => {
-          const d = byName.get(name)!;
-          return { vector: d.vector, layers: d.layers, step: strength * d.sigma };
-        }));
-        codes.set(row, k * per);
-      });
-      const r = await gen.synthesize(codes, pending.length);
-      pending.forEach((j, k) => {
-        const img = gen.toRgba(r.images, k);
-        if (j.i < 8) thumbs.set(j.file, img);
-        // Compression runs on zlib's threads while the next batch renders; writes follow.
-        writes.push(encodePngAsync(img).then((png) => {
-          writeFileAtomic(join(out, j.file), png, { durable: false });
-          images.push({ file: j.file, seed: j.seed, setting: j.s.label, sha256: sha(png) });
-          rendered++;
-        }));
-      });
-    }
-    // Keep at most about two batches of images in flight.
-    if (writes.length > 2 * gen.batchSize) await Promise.all(writes.splice(0, writes.length - gen.batchSize));
-    writeManifest(false);
-    yield { done: Math.min(jobs.length, at + chunk.length), total: jobs.length, label: `rendering ${recipe.name}` };
+      return false;
+    });
+    if (missing.length) units.push({ setting: unit.setting, seeds: missing });
   }
-  await Promise.all(writes);
+  const runner = runUnits(units);
+  try {
+    for (;;) {
+      const step = await runner.next();
+      if (step.done) break;
+      for (const { thumb, ...image } of step.value) {
+        images.push(image);
+        if (thumb) thumbs.set(image.file, thumb);
+        rendered++;
+      }
+      writeManifest(false);
+      yield { done: rendered + reused, total, label: `rendering ${recipe.name}` };
+    }
+  } finally {
+    await runner.return();
+  }
   images.sort((a, b) => a.file.localeCompare(b.file));
   writeManifest(true);
   writeFileAtomic(join(out, 'contact-sheet.png'), encodePng(contactSheet(recipe, thumbs)));
@@ -134,8 +216,7 @@ function contactSheet(recipe: Recipe, thumbs: Map<string, RgbaImage>): RgbaImage
     const y = header + r * (cell + gap);
     drawText(data, width, height, s.label, 6, y + cell / 2 - GLYPH_HEIGHT, [79, 179, 161], 2);
     seeds.forEach((seed, c) => {
-      const file = `${s.label}/seed-${String(seed).padStart(6, '0')}.png`;
-      const img = thumbs.get(file);
+      const img = thumbs.get(variantFile(s.label, seed));
       if (!img) return;
       const f = img.width / cell;
       for (let yy = 0; yy < cell; yy++)
