@@ -12,6 +12,7 @@ import { demoCardPath } from '../engine/host.ts';
 import { parseSeeds } from './seeds.ts';
 import { addLabCommands } from './lab-commands.ts';
 import { addPackCommands } from './pack-commands.ts';
+import { addFarmCommands } from './farm-commands.ts';
 
 /** Bad command-line input found after parsing (commander prints its own parse errors). */
 class UsageError extends Error {}
@@ -132,6 +133,7 @@ export function buildProgram(): Command {
   const ctx = { progressBar, isCancelled: () => cancelled, usage: (m: string) => new UsageError(m) };
   addLabCommands(program, ctx, number, integer);
   addPackCommands(program, ctx);
+  addFarmCommands(program, ctx, integer);
   return program;
 }
 
