@@ -3,7 +3,7 @@
 import type { Command } from 'commander';
 import { resolve } from 'node:path';
 import { startFarmWorker } from '../engine/farm/worker.ts';
-import { Farm } from '../engine/farm/coordinator.ts';
+import { Farm, type RunProgress } from '../engine/farm/coordinator.ts';
 import { redact } from '../engine/farm/connection.ts';
 import type { CliContext } from './lab-commands.ts';
 
@@ -12,6 +12,11 @@ export const FARM_PASSWORD_ENV = 'PLUMBLINE_FARM_PASSWORD';
 
 export function farmPassword(): string | undefined {
   return process.env[FARM_PASSWORD_ENV] || undefined;
+}
+
+/** One line per worker that delivered units: units, images, images/s while rendering. */
+export function farmSummary(p: RunProgress): string {
+  return p.workers.map((w) => `farm run ${p.runId}: worker ${w.worker}: ${w.units} unit(s), ${w.images} image(s), ${w.imagesPerSecond.toFixed(1)} img/s\n`).join('');
 }
 
 function parsePathMap(v: string, prev: [string, string][], usage: CliContext['usage']): [string, string][] {

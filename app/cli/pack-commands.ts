@@ -15,9 +15,9 @@ import { driveJob } from './jobs.ts';
 import { parseRecipe, renderVariants, type VariantDirection } from '../engine/variants.ts';
 import { EngineHost } from '../engine/host.ts';
 import { sharedPngWriter } from '../engine/png-writer.ts';
-import { Farm } from '../engine/farm/coordinator.ts';
+import { Farm, type RunProgress } from '../engine/farm/coordinator.ts';
 import { renderVariantsOnFarm } from '../engine/farm/farm-variants.ts';
-import { farmPassword } from './farm-commands.ts';
+import { farmPassword, farmSummary } from './farm-commands.ts';
 import type { CliContext } from './lab-commands.ts';
 
 /** One exit code per failure class, so pipelines can tell them apart (docs/preset-pack.md). */
@@ -179,11 +179,13 @@ export function addPackCommands(program: Command, ctx: CliContext): void {
         if (o.pack) dirs = (await verifyPack(readFile(o.pack), resolve(o.pack), gen)).directions;
         else dirs = host.openDirections(resolve(o.directions)).directions.map((d) => host.direction(d.id));
         const farm = o.farm ? await Farm.connect(o.farm, farmPassword()) : null;
+        let progress: RunProgress | null = null;
         try {
           const job = farm
-            ? renderVariantsOnFarm(farm, gen, recipe, dirs, resolve(o.out), { force: o.force, modelPath: resolve(o.model ?? demoCardPath()), publish: o.publishModel, isCancelled: ctx.isCancelled })
+            ? renderVariantsOnFarm(farm, gen, recipe, dirs, resolve(o.out), { force: o.force, modelPath: resolve(o.model ?? demoCardPath()), publish: o.publishModel, isCancelled: ctx.isCancelled, onProgress: (p) => (progress = p) })
             : renderVariants(gen, recipe, dirs, resolve(o.out), { force: o.force });
           const done = await driveJob(job, ctx, 'variants', 'stopped; run the same command again to resume');
+          if (progress) process.stderr.write(farmSummary(progress));
           if (done) process.stdout.write(`${recipe.name}: ${done.rendered} rendered, ${done.reused} kept from an earlier run; manifest.json and contact-sheet.png in ${resolve(o.out)}\n`);
         } finally {
           await farm?.close();
