@@ -4,7 +4,8 @@ import { resolve } from 'node:path';
 import { writeFileAtomic } from '../core/atomic-write.ts';
 import { writeDirections } from '../core/direction-files.ts';
 import { PlumblineError } from '../core/errors.ts';
-import { runAudit, type AuditReport } from '../engine/audit.ts';
+import { runAudit, type AuditReport } from '../engine/audit/run.ts';
+import { auditReportFile } from '../core/audit/report.ts';
 import { EngineHost, demoCardPath } from '../engine/host.ts';
 import { discoverByTags, discoverPca, discoverSefa, fitBoundary, repairDirection, type LabDirection } from '../engine/lab.ts';
 import { parseSeeds } from './seeds.ts';
@@ -192,7 +193,7 @@ export function addLabCommands(program: Command, ctx: CliContext, number: (n: st
         if (!report) return;
         process.stdout.write(auditTable(report));
         if (o.json) {
-          writeFileAtomic(resolve(o.json), JSON.stringify(report, null, 2) + '\n');
+          writeFileAtomic(resolve(o.json), JSON.stringify(auditReportFile(report), null, 2) + '\n');
           process.stdout.write(`wrote ${resolve(o.json)}\n`);
         }
       } finally {

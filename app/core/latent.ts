@@ -18,6 +18,18 @@ export interface EditVector {
   step: number;
 }
 
+/** A direction as an edit needs it: its vector, its W+ rows and its spread σ over random samples. */
+export interface ScaledDirection {
+  vector: Float32Array;
+  layers: [number, number] | null;
+  sigma: number;
+}
+
+/** The one definition of a slider edit: `strength` σ units along d, i.e. a latent step of strength · σ_d. */
+export function directionEdit(d: ScaledDirection, strength: number): EditVector {
+  return { vector: d.vector, layers: d.layers, step: strength * d.sigma };
+}
+
 export function seedsToZ(seeds: number[], size: number): Float32Array {
   const out = new Float32Array(seeds.length * size);
   seeds.forEach((s, i) => out.set(latentForSeed(s, size), i * size));

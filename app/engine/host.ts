@@ -17,7 +17,8 @@ import {
 } from '../protocol/messages.ts';
 import { Generator } from './generator.ts';
 import { defaultThreads } from './sessions.ts';
-import { runAudit } from './audit.ts';
+import { runAudit } from './audit/run.ts';
+import { auditReportFile, auditReportWire } from '../core/audit/report.ts';
 import { discoverByTags, discoverPca, discoverSefa, fitBoundary, repairDirection, type LabDirection } from './lab.ts';
 import { Project, vectorHash } from './project.ts';
 import { buildPack, verifyPack } from './pack-ops.ts';
@@ -402,9 +403,8 @@ export class EngineHost {
       const step = await job.next();
       if (step.done) {
         const report = step.value;
-        const savedAs = this.#project ? this.#project.saveAudit(report) : null;
-        const thumbnails = report.directions.flatMap((d) => d.worstProbes.map((w) => ({ direction: d.name, seed: w.seed, strength: w.strength, attribute: w.attribute, leakage: w.leakage, before: fromDataUri(w.before), after: fromDataUri(w.after) })));
-        const wire = { ...report, directions: report.directions.map((d) => ({ ...d, worstProbes: d.worstProbes.map(({ before: _b, after: _a, ...rest }) => rest) })) };
+        const savedAs = this.#project ? this.#project.saveAudit(auditReportFile(report)) : null;
+        const { report: wire, thumbnails } = auditReportWire(report);
         return { cancelled: false, report: wire as never, thumbnails, savedAs };
       }
       // Report progress about twice a second's worth of batches, not every batch.
@@ -505,10 +505,6 @@ export class EngineHost {
 function shrink(img: RgbaImage, max: number): { width: number; height: number; rgba: Uint8Array } {
   const small = downsampleImage(img, Math.ceil(Math.max(img.width, img.height) / max));
   return { width: small.width, height: small.height, rgba: new Uint8Array(small.data.buffer) };
-}
-
-function fromDataUri(uri: string): Uint8Array {
-  return new Uint8Array(Buffer.from(uri.slice(uri.indexOf(',') + 1), 'base64'));
 }
 
 function ok(id: number, result: unknown): ResponseMessage {

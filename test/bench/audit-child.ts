@@ -4,7 +4,7 @@ import { readFileSync } from 'node:fs';
 import { join } from 'node:path';
 import * as ort from 'onnxruntime-node';
 import { EngineHost, demoCardPath } from '../../app/engine/host.ts';
-import { runAudit } from '../../app/engine/audit.ts';
+import { runAudit } from '../../app/engine/audit/run.ts';
 
 const [probes, count, step, distance] = [Number(process.argv[2]), Number(process.argv[3]), Number(process.argv[4]), process.argv[5] ?? 'ssim'];
 const host = new EngineHost({ threads: Number(process.env.PLUMBLINE_THREADS) || 1 });

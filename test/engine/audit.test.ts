@@ -6,7 +6,7 @@ import { readFileSync } from 'node:fs';
 import { join } from 'node:path';
 import { spawnSync } from 'node:child_process';
 import { EngineHost, demoCardPath } from '../../app/engine/host.ts';
-import { runAudit, type AuditDirection, type AuditReport } from '../../app/engine/audit.ts';
+import { runAudit, type AuditDirection, type AuditReport } from '../../app/engine/audit/run.ts';
 import { fitBoundaries, repairDirection, discoverSefa, groundTruthMetrics } from '../../app/engine/lab.ts';
 import { Generator } from '../../app/engine/generator.ts';
 import { decodeModel, initializerValues } from '../../app/core/onnx/inspect.ts';

@@ -6,7 +6,7 @@ import { writeFileSync } from 'node:fs';
 import { join } from 'node:path';
 import { ScorerModel } from '../../app/engine/scorer-model.ts';
 import { EngineHost, demoCardPath } from '../../app/engine/host.ts';
-import { runAudit, type AuditReport } from '../../app/engine/audit.ts';
+import { runAudit, type AuditReport } from '../../app/engine/audit/run.ts';
 import { scorerModel, tempDir } from '../helpers/models.ts';
 
 const solid = (w: number, h: number, rgb: [number, number, number]) => {
