@@ -11,6 +11,9 @@ import { discoverByTags, discoverPca, discoverSefa, fitBoundary, repairDirection
 import { parseSeeds } from './seeds.ts';
 import { driveJob } from './jobs.ts';
 import { ScorerModel } from '../engine/scorer-model.ts';
+import { Farm, type RunProgress } from '../engine/farm/coordinator.ts';
+import { farmAuditMeasurer } from '../engine/farm/audit-units.ts';
+import { farmPassword, farmSummary } from './farm-commands.ts';
 
 export interface CliContext {
   progressBar(total: number, label: string): { update(n: number, label?: string): void; stop(): void };
@@ -160,19 +163,27 @@ export function addLabCommands(program: Command, ctx: CliContext, number: (n: st
     .option('--resamples <n>', 'bootstrap resamples', integer('--resamples', 200, 100_000), 1000)
     .option('--json <file>', 'write the full report as JSON')
     .option('--threads <n>', 'inference threads', integer('--threads', 1, 256))
+    .option('--farm <url>', 'render and score on a farm: redis://[user:password@]host:port (workers: plumbline worker)')
+    .option('--no-publish-model', 'on a farm, do not publish the generator files through Redis (workers read them from shared storage)')
     .action(async (o) => {
+      if (o.farm && (o.scorer.length || o.featureScorer)) throw ctx.usage('--farm audits built-in attributes only; leave out --scorer and --feature-scorer, or audit on this machine');
       if (!['ssim', 'ciede2000', 'l2', 'features'].includes(o.distance)) throw ctx.usage(`--distance must be ssim, ciede2000, l2 or features; got '${o.distance}'`);
       if (o.distance === 'features' && !o.featureScorer) throw ctx.usage("--distance features needs --feature-scorer <card>");
       if (!['all', 'none'].includes(o.combinations)) throw ctx.usage(`--combinations must be all or none; got '${o.combinations}'`);
       if (o.pass >= o.fail) throw ctx.usage(`--pass (${o.pass}) must be below --fail (${o.fail})`);
       const host = await openHost(o.model, o.threads);
       const scorers: ScorerModel[] = [];
+      let farm: Farm | null = null;
+      let progress: RunProgress | null = null;
       try {
         for (const c of o.scorer as string[]) scorers.push(await ScorerModel.open(c, { threads: o.threads }));
         const features = o.featureScorer ? await ScorerModel.open(o.featureScorer, { threads: o.threads }) : undefined;
         if (features) scorers.push(features);
         const dirs = loadDirections(host, o.directions, o.only ? String(o.only).split(',') : undefined);
         const attributes = ['default', 'card', 'image', 'all'].includes(o.attributes) ? o.attributes : String(o.attributes).split(',');
+        const gen = host.generator!;
+        farm = o.farm ? await Farm.connect(o.farm, farmPassword()) : null;
+        const measure = farm ? farmAuditMeasurer(farm, attributes, { fingerprint: gen.info.fingerprint, files: gen.info.files, modelPath: resolve(o.model ?? demoCardPath()), publish: o.publishModel, isCancelled: ctx.isCancelled, onProgress: (p) => (progress = p) }) : undefined;
         const job = runAudit(host.generator!, dirs.map((d) => ({ name: d.name, target: d.target, layers: d.layers, vector: d.vector, sigma: d.sigma })), {
           probes: o.probes,
           pinnedSeeds: o.pin ? parseSeeds(o.pin) : [],
@@ -188,8 +199,9 @@ export function addLabCommands(program: Command, ctx: CliContext, number: (n: st
           bootstrapResamples: o.resamples,
           scorerCards: (o.scorer as string[]).map((c) => resolve(c)),
           featureScorer: o.featureScorer ? resolve(o.featureScorer) : null,
-        }, { scorers: scorers.filter((x) => x !== features), features });
+        }, { scorers: scorers.filter((x) => x !== features), features, measure });
         const report = await driveJob(job, ctx, 'auditing', 'audit cancelled; nothing was written');
+        if (progress) process.stderr.write(farmSummary(progress));
         if (!report) return;
         process.stdout.write(auditTable(report));
         if (o.json) {
@@ -197,6 +209,7 @@ export function addLabCommands(program: Command, ctx: CliContext, number: (n: st
           process.stdout.write(`wrote ${resolve(o.json)}\n`);
         }
       } finally {
+        await farm?.close();
         for (const sc of scorers) await sc.dispose();
         await host.dispose();
       }

@@ -28,7 +28,14 @@ export interface AuditModels {
   scorers?: ScorerModel[];
   /** Feature model for the 'features' path-length distance. */
   features?: ScorerModel;
+  /**
+   * Renders and scores all directions elsewhere (a farm, app/engine/farm/farm-audit.ts) and
+   * returns one run per direction, in order; by default each is measured here, in turn.
+   */
+  measure?: DirectionsMeasurer;
 }
+
+export type DirectionsMeasurer = (context: MeasureContext, directions: AuditDirection[], tick: (label: string) => AuditProgress) => AsyncGenerator<AuditProgress, DirectionRun[], void>;
 
 export async function* runAudit(gen: Generator, directions: AuditDirection[], rawSettings: Partial<AuditSettings> = {}, models: AuditModels = {}): AsyncGenerator<AuditProgress, AuditReport, void> {
   const selection = rawSettings.attributes ?? 'default';
@@ -49,8 +56,9 @@ export async function* runAudit(gen: Generator, directions: AuditDirection[], ra
     const bootstrap = new ProbeBootstrap(plan.seeds.length, plan.settings.bootstrapResamples, plan.settings.seed);
     const reports: DirectionReport[] = [];
     const runs: DirectionRun[] = [];
-    for (const d of directions) {
-      const run = yield* measureDirection(context, d, tick);
+    const measured = models.measure ? yield* models.measure(context, directions, tick) : null;
+    for (const [k, d] of directions.entries()) {
+      const run = measured ? measured[k] : yield* measureDirection(context, d, tick);
       runs.push(run);
       const stats = directionStatistics(run.measurements, plan, names, plan.seeds, d.target, bootstrap);
       const judged = judgeDirection(stats, { reference: plan.reference, settings: plan.settings, fewProbes: tooFewProbes(plan.seeds.length), pathLengthGrid: plan.pathLengthGrid });

@@ -13,6 +13,7 @@ import { encodePng } from '../../core/image.ts';
 import { PlumblineError } from '../../core/errors.ts';
 import { recipeSchema, renderVariantUnit } from '../variants.ts';
 import { fetchModel } from './model-store.ts';
+import { auditUnit, isAuditUnit } from './audit-units.ts';
 import { keys, variantUnitDataSchema, type ModelRef, type VariantUnitResult } from './protocol.ts';
 import { parseFarmUrl, redisOptions } from './connection.ts';
 
@@ -87,6 +88,7 @@ async function variantUnit(job: SandboxedJob): Promise<VariantUnitResult> {
 
 export default async function processUnit(job: SandboxedJob): Promise<unknown> {
   try {
+    if (isAuditUnit(job.data)) return await auditUnit(job, settings.name, (data) => generatorFor(data.model, data.runId), checkCancelled);
     return await variantUnit(job);
   } catch (err) {
     if (err instanceof UnrecoverableError) throw err;
