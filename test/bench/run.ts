@@ -199,6 +199,65 @@ async function variantRow(label: string, card: string, seeds: number[], settings
   rows.push([`${label}: variant set (render + PNG + write + manifest), batch ${batch}, ${THREADS} thread${THREADS > 1 ? 's' : ''}`, `${rate.toFixed(1)} img/s`, `${bare.toFixed(1)} img/s bare, same batch (${limit})`, `${(rate / bare).toFixed(3)}× (target ≥ 0.9)`]);
 }
 
+/**
+ * The farm on the realistic generator, 1 thread per worker: one worker through Redis, two workers
+ * through Redis, and one engine on this machine with two threads, all on the same variant set
+ * (same batch, same units); and the queue's overhead per unit against the same set rendered by one
+ * engine with one thread. Workers are warmed with a small run first (generator loaded), as a
+ * standing farm would be.
+ */
+async function farmRows(card: string) {
+  const { startRedis } = await import('../helpers/redis.ts');
+  const { startWorker } = await import('../helpers/farm.ts');
+  const { Farm } = await import('../../app/engine/farm/coordinator.ts');
+  const { renderVariantsOnFarm } = await import('../../app/engine/farm/farm-variants.ts');
+  const batch = 8;
+  const seeds = Array.from({ length: 16 }, (_, i) => 200 + i);
+  const units = 4;
+  const images = seeds.length * 2;
+  const redis = await startRedis();
+  const workers: Awaited<ReturnType<typeof startWorker>>[] = [];
+  const gen = await Generator.open(card, { threads: 1 });
+  gen.batchSize = batch;
+  const v = { name: 'bench', vector: new Float32Array(gen.layout.size).fill(1 / Math.sqrt(gen.layout.size)), layers: null, sigma: 1 };
+  const recipe = (name: string, list: number[]) => ({ format: 'plumbline.variant-recipe' as const, version: 1 as const, name, seeds: list, psi: 0.7, settings: [{ label: 'a', strengths: { bench: -1 } }, { label: 'b', strengths: { bench: 1 } }] });
+  const timed = async (job: AsyncGenerator<unknown, unknown, void>) => {
+    const t = performance.now();
+    for (;;) if ((await job.next()).done) break;
+    return (performance.now() - t) / 1000;
+  };
+  const farm = await Farm.connect(redis.url);
+  const out = () => mkdtempSync(join(tmpdir(), 'plumbline-farm-bench-'));
+  const onFarm = async (name: string, list: number[]) => timed(renderVariantsOnFarm(farm, gen, recipe(name, list), [v], out(), { modelPath: card }));
+  try {
+    workers.push(await startWorker(redis.url, 'one'));
+    await onFarm('warm1', seeds.slice(0, batch));
+    const one = await onFarm('one', seeds);
+    workers.push(await startWorker(redis.url, 'two'));
+    // Warm the second worker too: two units, one for each.
+    await onFarm('warm2', seeds);
+    const two = await onFarm('two', seeds);
+    for (const w of workers) await w.stop();
+    await gen.renderSeeds(seeds.slice(0, batch), 0.7, []);
+    const here1 = await timed(renderVariants(gen, recipe('here1', seeds), [v], out()));
+    const gen2 = await Generator.open(card, { threads: 2 });
+    gen2.batchSize = batch;
+    await gen2.renderSeeds(seeds.slice(0, batch), 0.7, []);
+    const here2 = await timed(renderVariants(gen2, recipe('here2', seeds), [v], out()));
+    await gen2.dispose();
+    const rate = (sec: number) => `${(images / sec).toFixed(2)} img/s`;
+    rows.push([`farm, realistic 256², ${images} images in ${units} units of ${batch}: two workers via Redis vs one worker via Redis (1 thread each)`, rate(two), rate(one), `${(one / two).toFixed(3)}× (2 cores: approaches 2)`]);
+    rows.push([`farm: two workers via Redis (1 thread each) vs one engine here with 2 threads, same set and batch`, rate(two), rate(here2), `${(here2 / two).toFixed(3)}×`]);
+    const overhead = (one - here1) / units;
+    rows.push([`farm: queue overhead per unit (one worker via Redis − one engine here, 1 thread)`, `${(overhead * 1000).toFixed(0)} ms per unit`, `unit ≈ ${(here1 / units).toFixed(2)} s`, `${((100 * overhead) / (here1 / units)).toFixed(1)}% (target ≤ 5% for units ≥ 2 s)`]);
+  } finally {
+    for (const w of workers) await w.kill();
+    await farm.close();
+    await gen.dispose();
+    await redis.stop();
+  }
+}
+
 /** Pack build and verify for 50 directions of 512 dimensions (archive work only: no preview rendering). */
 async function packRow() {
   const rng = new Random(5);
@@ -268,12 +327,13 @@ async function auditRows(limit: string) {
 
 const demoLimit = want('variants') || want('audit') ? (await bestBare(demoCardPath(), [1, 4, 8, 16, 32, 64], 256, 3)).text : '';
 const demo = want('throughput') || want('preview') ? await throughput('demo 128²', demoCardPath(), 16, 256, 15) : null;
-if (want('throughput') || want('variants')) {
+if (want('throughput') || want('variants') || want('farm')) {
   const dir = mkdtempSync(join(tmpdir(), 'plumbline-bench-'));
   try {
     const large = authorLarge(dir);
     const label = `realistic 256², ${(large.parameters / 1e6).toFixed(1)} M params`;
     if (want('throughput')) await throughput(label, large.card, 4, 8, 3);
+    if (want('farm')) await farmRows(large.card);
     if (want('variants')) await variantRow('realistic 256²', large.card, Array.from({ length: 8 }, (_, i) => i + 1), 2, 4, (await bestBare(large.card, [1, 2, 4, 8], 8, 2)).text);
   } finally {
     rmSync(dir, { recursive: true, force: true });

@@ -72,11 +72,14 @@ export class Farm {
 
   static async connect(url: string, password?: string): Promise<Farm> {
     const farm = new Farm(parseFarmUrl(url, password));
+    // ioredis reports refusals (wrong password, unknown user) as error events; keep the latest for the message.
+    let refusal: Error | null = null;
+    farm.redis.on('error', (err: Error) => (refusal = err));
     try {
       await withTimeout(farm.redis.connect().then(() => farm.redis.ping()), 10_000, `no answer from the farm's Redis at ${describe(farm.address)} within 10 s`);
     } catch (err) {
       farm.redis.disconnect();
-      const m = (err as Error).message;
+      const m = ((refusal as Error | null) ?? (err as Error)).message;
       throw new PlumblineError('farm', /NOAUTH|WRONGPASS|AUTH/i.test(m) ? `the farm's Redis at ${describe(farm.address)} refused the password or user: ${m}` : `cannot reach the farm's Redis at ${describe(farm.address)}: ${m}`);
     }
     return farm;
@@ -138,6 +141,9 @@ export class Farm {
     await saveRecord();
     const flow = new FlowProducer({ connection: this.#connection });
     const units = new Queue(UNIT_QUEUE, { connection: this.#connection });
+    // Connection errors while Redis restarts are handled by the polling below (silence limit, lost run).
+    flow.on('error', () => {});
+    units.on('error', () => {});
     // The parent job runs here once every unit has completed: it collects the units' values.
     const parentWorker = new Worker(runQueueName(runId), async (job: Job) => ({ units: Object.keys(await job.getChildrenValues()).length }), { connection: { ...this.#connection, maxRetriesPerRequest: null } });
     parentWorker.on('error', () => {});
@@ -177,8 +183,10 @@ export class Farm {
         let states: { id: string; job: Job | undefined; state: string }[];
         try {
           states = await withTimeout(Promise.all([...byId.keys()].filter((id) => !finished.has(id)).map(async (id) => {
-            const job = await Job.fromId(units, id);
-            return { id, job, state: job ? await job.getState() : 'missing' };
+            // State first, then the job: a job read before its completion would lack its result.
+            const state = await units.getJobState(id);
+            const job = state === 'unknown' ? undefined : await Job.fromId(units, id);
+            return { id, job, state: job ? state : 'missing' };
           })), 5_000, 'Redis did not answer');
           const alive = await this.redis.exists(keys.run(runId));
           lastContact = Date.now();
@@ -266,9 +274,9 @@ async function waitForParent(queueName: string, id: string, connection: ReturnTy
   try {
     const until = Date.now() + REDIS_SILENCE_LIMIT_MS;
     for (;;) {
-      const job = await Job.fromId(queue, id);
+      const state = await queue.getJobState(id);
+      const job = state === 'unknown' ? undefined : await Job.fromId(queue, id);
       if (!job) throw new PlumblineError('farm', `the run's parent job ${id} is gone from Redis`);
-      const state = await job.getState();
       if (state === 'completed') return (job.returnvalue as { units: number }).units;
       if (state === 'failed') throw new PlumblineError('farm', `the run's parent job failed: ${job.failedReason}`);
       if (Date.now() > until) throw new PlumblineError('farm', `the run's parent job did not complete within ${REDIS_SILENCE_LIMIT_MS / 1000} s of its last unit (state ${state})`);
