@@ -18,7 +18,7 @@ import { decodeNpy, encodeNpy } from '../../app/core/npy.ts';
 import { Random } from '../../app/core/random.ts';
 
 const root = join(import.meta.dirname, '..', '..');
-/** `npm run bench -- variants audit`: only those sections (throughput, variants, pack, preview, cold, audit, farm). */
+/** `npm run bench -- variants audit`: only those sections (throughput, variants, farm, pack, preview, cold, audit, audit-scaling). */
 const only = process.argv.slice(2);
 const want = (section: string) => only.length === 0 || only.includes(section);
 const THREADS = Number(process.env.PLUMBLINE_THREADS) || 1;
@@ -301,6 +301,10 @@ async function auditRows(limit: string) {
     // The bare side runs in the audit's own process at its batch size and thread count.
     rows.push([`audit throughput, 64 probes × 2 directions × 9 strengths, path length ${distance}, batch ${r.bare.batch}, ${THREADS} thread${THREADS > 1 ? 's' : ''}`, `${rate.toFixed(0)} img/s (${r.images} rendered + scored)`, `${r.bare.rate.toFixed(0)} img/s bare, same batch and process (${limit})`, `${(rate / r.bare.rate).toFixed(3)}× (target ≥ 0.9)`]);
   }
+}
+
+/** Audit memory at growing probe counts and time linearity (section 'audit-scaling'). */
+async function auditScalingRows() {
   const mem: [number, number][] = [];
   for (const probes of [64, 256, 1024]) mem.push([probes, (await auditChild(probes, 2, 1)).maxRssMb]);
   const lo = Math.min(...mem.map((m) => m[1]));
@@ -344,6 +348,7 @@ if (want('pack')) await packRow();
 if (want('preview')) await previewLatency(demo!.single);
 if (want('cold')) await coldStart();
 if (want('audit')) await auditRows(demoLimit);
+if (want('audit-scaling')) await auditScalingRows();
 
 const widths = [0, 1, 2, 3].map((k) => Math.max(...rows.map((r) => r[k].length), ['measure', 'plumbline', 'reference', 'ratio'][k].length));
 const line = (r: string[]) => r.map((c, k) => c.padEnd(widths[k])).join(' │ ');
