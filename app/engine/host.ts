@@ -23,6 +23,10 @@ import { discoverByTags, discoverPca, discoverSefa, fitBoundary, repairDirection
 import { Project, vectorHash } from './project.ts';
 import { buildPack, verifyPack } from './pack-ops.ts';
 import { renderVariants } from './variants.ts';
+import { FarmSession, modelLocation } from './farm/session.ts';
+import { renderVariantsOnFarm } from './farm/farm-variants.ts';
+import { farmAuditMeasurer } from './farm/audit-units.ts';
+import type { WorkerProgress } from './farm/coordinator.ts';
 import { PackError } from '../core/pack.ts';
 import { writeFileAtomic } from '../core/atomic-write.ts';
 import { downsampleImage, type RgbaImage } from '../core/image.ts';
@@ -58,7 +62,7 @@ interface Job {
   steps: AsyncGenerator<{ done: number; total: number; label: string }, unknown, void>;
 }
 
-type Progress = { done: number; total: number; label: string };
+type Progress = { done: number; total: number; label: string; workers?: WorkerProgress[] };
 
 export interface HostOptions {
   threads?: number;
@@ -75,6 +79,8 @@ export class EngineHost {
   #pumping = false;
   #project: Project | null = null;
   #running: Job | null = null;
+  /** The render farm audits and variant sets go to while connected (farm.connect). */
+  readonly #farm = new FarmSession();
   readonly threads: number;
 
   constructor(options: HostOptions = {}) {
@@ -180,6 +186,14 @@ export class EngineHost {
 
   async #handleControl(req: RequestMessage): Promise<unknown> {
     switch (req.method as Method) {
+      case 'farm.connect': {
+        const { url, password } = req.params as Params<'farm.connect'>;
+        return this.#farm.connect(url, password);
+      }
+      case 'farm.disconnect':
+        return this.#farm.disconnect();
+      case 'farm.status':
+        return this.#farm.status();
       case 'engine.hello':
         return { protocol: PROTOCOL_VERSION, engine: ENGINE_VERSION, threads: this.threads, model: this.#generator?.info ?? null } satisfies Result<'engine.hello'>;
       case 'model.openDemo':
@@ -391,9 +405,14 @@ export class EngineHost {
   async *#auditJob(p: Params<'audit.run'>): AsyncGenerator<Progress, Result<'audit.run'>, void> {
     const gen = this.#requireGenerator();
     const dirs = p.directions.map((id) => this.direction(id));
+    // On a farm: render and score there; per-worker figures ride on the progress events.
+    const farm = this.#farm.farm;
+    let workers: WorkerProgress[] | undefined;
+    const running = this.#running;
+    const measure = farm ? farmAuditMeasurer(farm, 'default', { fingerprint: gen.info.fingerprint, files: gen.info.files, ...modelLocation(gen), isCancelled: () => !!running?.cancelled, onProgress: (r) => (workers = r.workers) }) : undefined;
     const job = runAudit(gen, dirs.map((d) => ({ name: d.name, target: d.target, layers: d.layers, vector: d.vector, sigma: d.sigma })), {
       probes: p.probes, pinnedSeeds: p.pinnedSeeds, psi: p.psi, seed: p.seed, referenceStrength: p.referenceStrength, leakPass: p.leakPass, leakFail: p.leakFail, combinations: p.combinations,
-    });
+    }, { measure });
     let last = 0;
     for (;;) {
       if (this.#running?.cancelled) {
@@ -408,9 +427,9 @@ export class EngineHost {
         return { cancelled: false, report: wire as never, thumbnails, savedAs };
       }
       // Report progress about twice a second's worth of batches, not every batch.
-      if (step.value.done - last >= 4 || step.value.done === step.value.total) {
+      if (step.value.done - last >= 4 || step.value.done === step.value.total || workers) {
         last = step.value.done;
-        yield step.value;
+        yield { ...step.value, workers };
       } else await this.#checkpoint();
     }
   }
@@ -420,7 +439,12 @@ export class EngineHost {
     const used = [...new Set(p.settings.flatMap((s) => Object.keys(s.strengths)))].map((id) => this.direction(id));
     const recipe = { format: 'plumbline.variant-recipe' as const, version: 1 as const, name: p.name, seeds: p.seeds, psi: p.psi, settings: p.settings.map((s) => ({ label: s.label, strengths: Object.fromEntries(Object.entries(s.strengths).map(([id, v]) => [this.direction(id).name, v])) })) };
     const out = resolve(p.out);
-    const job = renderVariants(gen, recipe, used, out);
+    const farm = this.#farm.farm;
+    let workers: WorkerProgress[] | undefined;
+    const running = this.#running;
+    const job = farm
+      ? renderVariantsOnFarm(farm, gen, recipe, used, out, { ...modelLocation(gen), isCancelled: () => !!running?.cancelled, onProgress: (r) => (workers = r.workers) })
+      : renderVariants(gen, recipe, used, out);
     for (;;) {
       if (this.#running?.cancelled) {
         await job.return(undefined as never);
@@ -428,7 +452,7 @@ export class EngineHost {
       }
       const step = await job.next();
       if (step.done) return { cancelled: false, out, rendered: step.value.rendered, reused: step.value.reused, contactSheet: new Uint8Array(readFileSync(join(out, 'contact-sheet.png'))) };
-      yield step.value;
+      yield { ...step.value, workers };
     }
   }
 
@@ -496,6 +520,7 @@ export class EngineHost {
   }
 
   async dispose(): Promise<void> {
+    await this.#farm.disconnect();
     await this.#generator?.dispose();
     this.#generator = null;
   }

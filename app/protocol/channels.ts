@@ -6,6 +6,8 @@ export const DESKTOP_CHANNELS = {
   recentAdd: 'plumbline:recent-add',
   settingGet: 'plumbline:setting-get',
   settingSet: 'plumbline:setting-set',
+  secretGet: 'plumbline:secret-get',
+  secretSet: 'plumbline:secret-set',
   menu: 'plumbline:menu',
   enginePort: 'plumbline:engine-port',
   engineStopped: 'plumbline:engine-stopped',

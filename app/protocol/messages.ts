@@ -22,8 +22,24 @@ export const editSchema = z.object({ direction: z.string().min(1), strength });
 export type Edit = z.infer<typeof editSchema>;
 
 /** Request parameters by method. Adding a method here is the only way to add a channel. */
+/** A render farm as the engine sees it (the password never comes back). */
+const farmWorkerSchema = z.object({ name: z.string(), host: z.string(), threads: z.number().int(), fingerprint: z.string().nullable(), imagesPerSecond: z.number().nullable(), units: z.number().int(), busy: z.string().nullable(), since: z.string() });
+const farmStatusSchema = z.object({
+  connected: z.boolean(),
+  /** The farm's address with any password replaced by ***. */
+  url: z.string().nullable(),
+  workers: z.array(farmWorkerSchema),
+  runs: z.array(z.object({ runId: z.string(), kind: z.enum(['variants', 'audit']), label: z.string(), units: z.number().int(), state: z.enum(['running', 'done', 'failed', 'cancelled']), startedAt: z.string(), message: z.string().optional() })),
+});
+/** Per-worker figures of a farm job, on its progress events. */
+export const farmProgressSchema = z.array(z.object({ worker: z.string(), units: z.number().int(), images: z.number().int(), seconds: z.number(), imagesPerSecond: z.number(), busy: z.string().nullable() }));
+
 export const requestSchemas = {
   'engine.hello': z.object({}),
+  /** Audits and variant sets go to this farm until 'farm.disconnect'; the engine keeps the password in memory only. */
+  'farm.connect': z.object({ url: z.string().min(1).max(2048), password: z.string().max(1024).optional() }),
+  'farm.disconnect': z.object({}),
+  'farm.status': z.object({}),
   'model.openDemo': z.object({}),
   'model.open': z.object({ path: z.string().min(1), mappingPath: z.string().min(1).optional() }),
   'directions.open': z.object({ path: z.string().min(1) }),
@@ -179,6 +195,9 @@ export const resultSchemas = {
     z.object({ cancelled: z.literal(false), images: z.array(z.object({ seed, image: imageSchema })) }),
   ]),
   'job.cancel': z.object({ cancelled: z.boolean() }),
+  'farm.connect': farmStatusSchema,
+  'farm.disconnect': farmStatusSchema,
+  'farm.status': farmStatusSchema,
   'directions.list': z.object({ directions: z.array(directionInfoSchema) }),
   'lab.discover': z.union([
     z.object({ cancelled: z.literal(true) }),
@@ -215,7 +234,7 @@ export const responseSchema = z.discriminatedUnion('ok', [
 export type ResponseMessage = z.infer<typeof responseSchema>;
 
 export const eventSchemas = {
-  'job.progress': z.object({ jobId: z.number().int(), requestId: z.number().int(), done: z.number().int(), total: z.number().int(), label: z.string() }),
+  'job.progress': z.object({ jobId: z.number().int(), requestId: z.number().int(), done: z.number().int(), total: z.number().int(), label: z.string(), workers: farmProgressSchema.optional() }),
   'engine.ready': z.object({ engine: z.string(), restarted: z.boolean() }),
   'engine.stopped': z.object({ reason: z.string(), code: z.number().nullable(), restarting: z.boolean() }),
   'model.changed': z.object({ model: modelInfoSchema }),

@@ -1,7 +1,8 @@
 // State and intents of the lab screens: project, discovery, audit, repair and sign-off. Works
 // through the same engine client as the workbench (Studio) and keeps Studio's direction list
 // in step with the engine's.
-import type { AuditWire, DirectionInfo, Params, Result, WireImage } from '../../../app/protocol/messages.ts';
+import type { AuditWire, DirectionInfo, EventData, Params, Result, WireImage } from '../../../app/protocol/messages.ts';
+import { desktop } from './bridge.ts';
 import { EngineRequestError } from './engine.ts';
 import type { Studio } from './studio.svelte.ts';
 
@@ -9,6 +10,8 @@ export type View = 'workbench' | 'discover' | 'audit' | 'signoff' | 'variants';
 type ProjectInfo = Result<'project.open'>;
 type Candidate = Extract<Result<'lab.discover'>, { cancelled: false }>['candidates'][number];
 type Thumb = Extract<Result<'audit.run'>, { cancelled: false }>['thumbnails'][number];
+/** A job's progress; `workers` on a farm: per-worker units, images and images/s. */
+export type JobProgress = { done: number; total: number; label: string; workers?: EventData<'job.progress'>['workers'] };
 export type Status = 'draft' | 'in-review' | 'approved' | 'rejected';
 
 const LAST_PROJECT_KEY = 'plumbline.lastProject';
@@ -41,7 +44,7 @@ export class Lab {
 
   auditSelection = $state<string[]>([]);
   probes = $state(64);
-  auditProgress = $state<{ done: number; total: number; label: string } | null>(null);
+  auditProgress = $state<JobProgress | null>(null);
   report = $state.raw<AuditWire | null>(null);
   previousReport = $state.raw<AuditWire | null>(null);
   thumbnails = $state.raw<Thumb[]>([]);
@@ -52,10 +55,15 @@ export class Lab {
   variantSeeds = $state('0-7');
   variantOut = $state('');
   variantSettings = $state<{ label: string; strengths: Record<string, number> }[]>([{ label: 'base', strengths: {} }]);
-  variantProgress = $state<{ done: number; total: number; label: string } | null>(null);
+  variantProgress = $state<JobProgress | null>(null);
   contactSheet = $state<string | null>(null);
   variantSummary = $state<string | null>(null);
   #variantRequest = 0;
+
+  /** The render farm (Redis address); the password stays in memory here, or in the OS keychain on the desktop. */
+  farmUrl = $state('');
+  farmPassword = $state('');
+  farm = $state.raw<Result<'farm.status'> | null>(null);
 
   repairAgainst = $state<string[]>([]);
   holdOthers = $state(true);
@@ -146,7 +154,7 @@ export class Lab {
       const pending = this.engine.request(
         'audit.run',
         { directions: ids, probes: this.probes, pinnedSeeds: this.studio.pinned, psi: this.studio.psi, seed: 1, referenceStrength: 2, leakPass: 0.15, leakFail: 0.35, combinations: 'all' },
-        (done, total, label) => (this.auditProgress = { done, total, label }),
+        (done, total, label, workers) => (this.auditProgress = { done, total, label, workers }),
       );
       this.#auditRequest = this.engine.lastRequestId;
       const r = await pending;
@@ -204,6 +212,36 @@ export class Lab {
     this.variantSettings = this.variantSettings.filter((s) => s.label !== label);
   }
 
+  /** Connects the engine to a farm: audits and variant sets then render there. */
+  async connectFarm(): Promise<void> {
+    await this.#guard('Connecting to the farm', async () => {
+      this.farm = await this.engine.request('farm.connect', { url: this.farmUrl.trim(), password: this.farmPassword || undefined });
+      const d = desktop();
+      if (d?.setSecret) {
+        await d.setSetting('farmUrl', this.farmUrl.trim());
+        if (this.farmPassword) await d.setSecret('farmPassword', this.farmPassword);
+      }
+    });
+  }
+
+  async disconnectFarm(): Promise<void> {
+    await this.#guard('Leaving the farm', async () => {
+      this.farm = await this.engine.request('farm.disconnect', {});
+    });
+  }
+
+  async refreshFarm(): Promise<void> {
+    this.farm = await this.engine.request('farm.status', {});
+  }
+
+  /** The desktop app remembers the farm address and (sealed by the OS keychain) its password. */
+  async restoreFarmSetting(): Promise<void> {
+    const d = desktop();
+    if (!d?.getSecret) return;
+    this.farmUrl = String((await d.getSetting('farmUrl')) ?? '');
+    this.farmPassword = (await d.getSecret('farmPassword')) ?? '';
+  }
+
   async renderVariants(): Promise<void> {
     let seeds: number[];
     try {
@@ -214,7 +252,7 @@ export class Lab {
     }
     this.variantProgress = { done: 0, total: 1, label: 'starting' };
     await this.#guard('Rendering the variant set', async () => {
-      const pending = this.engine.request('variants.render', { name: this.variantName, seeds, psi: this.studio.psi, settings: this.variantSettings, out: this.variantOut }, (done, total, label) => (this.variantProgress = { done, total, label }));
+      const pending = this.engine.request('variants.render', { name: this.variantName, seeds, psi: this.studio.psi, settings: this.variantSettings, out: this.variantOut }, (done, total, label, workers) => (this.variantProgress = { done, total, label, workers }));
       this.#variantRequest = this.engine.lastRequestId;
       const r = await pending;
       if (r.cancelled) {
