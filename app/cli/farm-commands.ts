@@ -45,7 +45,7 @@ export function addFarmCommands(program: Command, ctx: CliContext, integer: (nam
       // Stop on Ctrl+C or SIGTERM: the unit in hand finishes, nothing new is taken.
       await new Promise<void>((done) => {
         const poll = setInterval(() => {
-          if (ctx.isCancelled()) {
+          if (ctx.interrupt.aborted) {
             clearInterval(poll);
             done();
           }

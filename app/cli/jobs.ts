@@ -1,23 +1,39 @@
-// Runs an engine job (an async generator yielding progress) from the command line: a progress
-// bar on a TTY, and Ctrl+C stops it between batches with exit code 130.
+// Runs engine work from the command line through the same handler context the engine gives its
+// jobs: progress goes to a progress bar on a TTY, and Ctrl+C aborts the same AbortSignal a
+// job.cancel would, so the work stops at its next checkpoint (exit code 130).
+import type { HandlerContext } from '../engine/handlers/context.ts';
+import type { Workspace } from '../engine/workspace.ts';
 import type { CliContext } from './lab-commands.ts';
 
-export async function driveJob<T>(job: AsyncGenerator<{ done: number; total: number }, T, void>, ctx: CliContext, label: string, cancelledMessage: string): Promise<T | null> {
+const nextTurn = () => new Promise<void>((r) => setImmediate(r));
+
+/** Runs `work` with a CLI handler context; null when Ctrl+C cancelled it (after saying so). */
+export async function runCliJob<T>(ctx: CliContext, workspace: Workspace, label: string, cancelledMessage: string, work: (job: HandlerContext) => Promise<T>): Promise<T | null> {
   let bar: ReturnType<CliContext['progressBar']> | null = null;
+  const signal = ctx.interrupt;
+  const job: HandlerContext = {
+    workspace,
+    signal,
+    progress: (p) => {
+      bar ??= ctx.progressBar(p.total, label);
+      bar.update(p.done);
+    },
+    checkpoint: async () => {
+      signal.throwIfAborted();
+      await nextTurn();
+      signal.throwIfAborted();
+    },
+    // One job per command: nothing else to cancel.
+    jobs: { cancel: () => false, cancelAll: () => {} },
+  };
   try {
-    for (;;) {
-      if (ctx.isCancelled()) {
-        await job.return(undefined as never);
-        process.stderr.write(`${cancelledMessage}\n`);
-        process.exitCode = 130;
-        return null;
-      }
-      const step = await job.next();
-      if (step.done) return step.value;
-      bar ??= ctx.progressBar(step.value.total, label);
-      bar.update(step.value.done);
-    }
+    return await work(job);
+  } catch (err) {
+    if (!signal.aborted) throw err;
+    process.stderr.write(`${cancelledMessage}\n`);
+    process.exitCode = 130;
+    return null;
   } finally {
-    bar?.stop();
+    (bar as ReturnType<CliContext['progressBar']> | null)?.stop();
   }
 }

@@ -6,10 +6,12 @@ import { writeDirections } from '../core/direction-files.ts';
 import { PlumblineError } from '../core/errors.ts';
 import { runAudit, type AuditReport } from '../engine/audit/run.ts';
 import { auditReportFile } from '../core/audit/report.ts';
-import { EngineHost, demoCardPath } from '../engine/host.ts';
-import { discoverByTags, discoverPca, discoverSefa, fitBoundary, repairDirection, type LabDirection } from '../engine/lab.ts';
+import { Workspace, demoCardPath } from '../engine/workspace.ts';
+import { discover } from '../engine/lab.ts';
+import { driveSteps } from '../engine/handlers/context.ts';
+import { repairInWorkspace } from '../engine/handlers/repair.ts';
 import { parseSeeds } from './seeds.ts';
-import { driveJob } from './jobs.ts';
+import { runCliJob } from './jobs.ts';
 import { ScorerModel } from '../engine/scorer-model.ts';
 import { Farm, type RunProgress } from '../engine/farm/coordinator.ts';
 import { farmAuditMeasurer } from '../engine/farm/audit-units.ts';
@@ -17,7 +19,8 @@ import { farmPassword, farmSummary } from './farm-commands.ts';
 
 export interface CliContext {
   progressBar(total: number, label: string): { update(n: number, label?: string): void; stop(): void };
-  isCancelled(): boolean;
+  /** Aborted by Ctrl+C. */
+  interrupt: AbortSignal;
   usage(message: string): Error;
 }
 
@@ -46,15 +49,22 @@ function parseGrid(text: string, usage: CliContext['usage']): number[] {
   return list;
 }
 
-async function openHost(model: string | undefined, threads: number | undefined): Promise<EngineHost> {
-  const host = new EngineHost({ threads });
-  await host.openModel(resolve(model ?? demoCardPath()));
-  return host;
+/** A workspace with the generator open (the bundled demo unless --model names one). */
+export async function openWorkspace(model: string | undefined, threads: number | undefined): Promise<Workspace> {
+  const workspace = new Workspace({ threads });
+  try {
+    await workspace.openModel(resolve(model ?? demoCardPath()));
+  } catch (err) {
+    await workspace.dispose();
+    throw err;
+  }
+  return workspace;
 }
 
-function loadDirections(host: EngineHost, file: string, only?: string[]) {
-  const info = host.openDirections(resolve(file));
-  const all = info.directions.map((d) => host.direction(d.id));
+/** Loads a directions file into the workspace; `only` picks directions by name. */
+export function loadDirections(workspace: Workspace, file: string, only?: string[]) {
+  const info = workspace.openDirections(resolve(file));
+  const all = info.directions.map((d) => workspace.direction(d.id));
   if (!only?.length) return all;
   return only.map((name) => {
     const d = all.find((x) => x.name === name);
@@ -116,28 +126,31 @@ export function addLabCommands(program: Command, ctx: CliContext, number: (n: st
     .option('--name <name>', 'name for a boundary or means direction')
     .option('--threads <n>', 'inference threads', integer('--threads', 1, 256))
     .action(async (o) => {
-      const host = await openHost(o.model, o.threads);
+      if (!['pca', 'sefa', 'boundary', 'means'].includes(o.method)) throw ctx.usage(`--method must be one of pca, sefa, boundary, means; got '${o.method}'`);
+      if (o.method === 'boundary' && !o.attribute) throw ctx.usage('--method boundary needs --attribute <name>');
+      if (o.method === 'means' && (!o.positive || !o.negative)) throw ctx.usage('--method means needs --positive <seeds> and --negative <seeds>');
+      const workspace = await openWorkspace(o.model, o.threads);
       try {
-        const gen = host.generator!;
-        const layers = parseLayers(o.layers, ctx.usage);
-        let found: LabDirection[];
-        if (o.method === 'pca') found = await discoverPca(gen, { samples: o.samples, components: o.components, seed: o.seed, layers });
-        else if (o.method === 'sefa') found = discoverSefa(gen, { components: o.components, layers });
-        else if (o.method === 'boundary') {
-          if (!o.attribute) throw ctx.usage('--method boundary needs --attribute <name>');
-          const b = await fitBoundary(gen, o.attribute, { samples: o.samples, seed: o.seed });
-          found = [{ ...b, name: o.name ?? b.name }];
-        } else if (o.method === 'means') {
-          if (!o.positive || !o.negative) throw ctx.usage('--method means needs --positive <seeds> and --negative <seeds>');
-          found = [await discoverByTags(gen, parseSeeds(o.positive), parseSeeds(o.negative), o.name ?? 'tagged')];
-        } else throw ctx.usage(`--method must be one of pca, sefa, boundary, means; got '${o.method}'`);
+        const gen = workspace.requireGenerator();
+        const found = await runCliJob(ctx, workspace, 'discovering', 'discovery cancelled; nothing was written', (job) => discover(gen, {
+          method: o.method,
+          components: o.components,
+          samples: o.samples,
+          seed: o.seed,
+          layers: parseLayers(o.layers, ctx.usage),
+          attribute: o.attribute,
+          positive: o.positive ? parseSeeds(o.positive) : [],
+          negative: o.negative ? parseSeeds(o.negative) : [],
+          name: o.name,
+        }, job.checkpoint));
+        if (!found) return;
         const files = writeDirections(resolve(o.out), found, gen.layout.space);
         const w = Math.max(9, ...found.map((d) => d.name.length));
         process.stdout.write(`${'direction'.padEnd(w)}  σ (latent units)  notes\n`);
         for (const d of found) process.stdout.write(`${d.name.padEnd(w)}  ${d.sigma.toFixed(4).padStart(16)}  ${d.notes}\n`);
         process.stdout.write(`wrote ${found.length} direction(s) to ${files.npy} and ${files.json}\n`);
       } finally {
-        await host.dispose();
+        await workspace.dispose();
       }
     });
 
@@ -171,7 +184,7 @@ export function addLabCommands(program: Command, ctx: CliContext, number: (n: st
       if (o.distance === 'features' && !o.featureScorer) throw ctx.usage("--distance features needs --feature-scorer <card>");
       if (!['all', 'none'].includes(o.combinations)) throw ctx.usage(`--combinations must be all or none; got '${o.combinations}'`);
       if (o.pass >= o.fail) throw ctx.usage(`--pass (${o.pass}) must be below --fail (${o.fail})`);
-      const host = await openHost(o.model, o.threads);
+      const workspace = await openWorkspace(o.model, o.threads);
       const scorers: ScorerModel[] = [];
       let farm: Farm | null = null;
       let progress: RunProgress | null = null;
@@ -179,12 +192,12 @@ export function addLabCommands(program: Command, ctx: CliContext, number: (n: st
         for (const c of o.scorer as string[]) scorers.push(await ScorerModel.open(c, { threads: o.threads }));
         const features = o.featureScorer ? await ScorerModel.open(o.featureScorer, { threads: o.threads }) : undefined;
         if (features) scorers.push(features);
-        const dirs = loadDirections(host, o.directions, o.only ? String(o.only).split(',') : undefined);
+        const dirs = loadDirections(workspace, o.directions, o.only ? String(o.only).split(',') : undefined);
         const attributes = ['default', 'card', 'image', 'all'].includes(o.attributes) ? o.attributes : String(o.attributes).split(',');
-        const gen = host.generator!;
+        const gen = workspace.requireGenerator();
         farm = o.farm ? await Farm.connect(o.farm, farmPassword()) : null;
-        const measure = farm ? farmAuditMeasurer(farm, attributes, { fingerprint: gen.info.fingerprint, files: gen.info.files, modelPath: resolve(o.model ?? demoCardPath()), publish: o.publishModel, isCancelled: ctx.isCancelled, onProgress: (p) => (progress = p) }) : undefined;
-        const job = runAudit(host.generator!, dirs.map((d) => ({ name: d.name, target: d.target, layers: d.layers, vector: d.vector, sigma: d.sigma })), {
+        const measure = farm ? farmAuditMeasurer(farm, attributes, { fingerprint: gen.info.fingerprint, files: gen.info.files, modelPath: resolve(o.model ?? demoCardPath()), publish: o.publishModel, isCancelled: () => ctx.interrupt.aborted, onProgress: (p) => (progress = p) }) : undefined;
+        const steps = runAudit(gen, dirs, {
           probes: o.probes,
           pinnedSeeds: o.pin ? parseSeeds(o.pin) : [],
           psi: o.psi,
@@ -200,7 +213,7 @@ export function addLabCommands(program: Command, ctx: CliContext, number: (n: st
           scorerCards: (o.scorer as string[]).map((c) => resolve(c)),
           featureScorer: o.featureScorer ? resolve(o.featureScorer) : null,
         }, { scorers: scorers.filter((x) => x !== features), features, measure });
-        const report = await driveJob(job, ctx, 'auditing', 'audit cancelled; nothing was written');
+        const report = await runCliJob(ctx, workspace, 'auditing', 'audit cancelled; nothing was written', (job) => driveSteps(steps, job));
         if (progress) process.stderr.write(farmSummary(progress));
         if (!report) return;
         process.stdout.write(auditTable(report));
@@ -211,7 +224,7 @@ export function addLabCommands(program: Command, ctx: CliContext, number: (n: st
       } finally {
         await farm?.close();
         for (const sc of scorers) await sc.dispose();
-        await host.dispose();
+        await workspace.dispose();
       }
     });
 
@@ -229,14 +242,16 @@ export function addLabCommands(program: Command, ctx: CliContext, number: (n: st
     .requiredOption('-o, --out <file.npy>', 'where to write the repaired direction')
     .option('--threads <n>', 'inference threads', integer('--threads', 1, 256))
     .action(async (o) => {
-      const host = await openHost(o.model, o.threads);
+      const workspace = await openWorkspace(o.model, o.threads);
       try {
-        const [d] = loadDirections(host, o.directions, [o.direction]);
-        const against = String(o.against).split(',').filter(Boolean);
-        const gen = host.generator!;
-        const names = gen.card?.attributes.map((a) => a.name) ?? [];
-        const hold = o.hold === 'others' ? names.filter((n) => !against.includes(n) && n !== d.target) : o.hold ? String(o.hold).split(',') : [];
-        const repaired = await repairDirection(gen, d, against, { samples: o.samples, seed: o.seed, hold, layers: o.layers ? parseLayers(o.layers, ctx.usage) : undefined });
+        const [d] = loadDirections(workspace, o.directions, [o.direction]);
+        const gen = workspace.requireGenerator();
+        const hold = o.hold === 'others' ? 'others' : o.hold ? String(o.hold).split(',') : [];
+        const result = await runCliJob(ctx, workspace, 'repairing', 'repair cancelled; nothing was written', (job) => repairInWorkspace(workspace, {
+          direction: d.id, against: String(o.against).split(',').filter(Boolean), hold, samples: o.samples, seed: o.seed, layers: o.layers ? parseLayers(o.layers, ctx.usage) : undefined,
+        }, job.checkpoint));
+        if (!result) return;
+        const repaired = { ...result.entry, boundaries: result.boundaries };
         const files = writeDirections(resolve(o.out), [repaired], gen.layout.space);
         let cos = 0;
         for (let i = 0; i < d.vector.length; i++) cos += d.vector[i] * repaired.vector[i];
@@ -244,7 +259,7 @@ export function addLabCommands(program: Command, ctx: CliContext, number: (n: st
         for (const b of repaired.boundaries) process.stdout.write(`  boundary ${b.attribute.padEnd(14)} ${b.role.padEnd(8)} held-out accuracy ${(b.accuracy * 100).toFixed(1)}%\n`);
         process.stdout.write(`  angle to the original: ${((Math.acos(Math.min(1, cos)) * 180) / Math.PI).toFixed(1)}°\nwrote ${files.npy} and ${files.json}; audit it with: plumbline audit -d ${files.npy}\n`);
       } finally {
-        await host.dispose();
+        await workspace.dispose();
       }
     });
 }

@@ -4,11 +4,12 @@ import { Command, CommanderError, InvalidArgumentError } from 'commander';
 import { createHash } from 'node:crypto';
 import { join, resolve } from 'node:path';
 import cliProgress from 'cli-progress';
-import { PlumblineError } from '../core/errors.ts';
+import { ERROR_CATALOGUE, PlumblineError } from '../core/errors.ts';
+import { PLUMBLINE_VERSION, TOOL_STAMP } from '../protocol/version.ts';
 import { writeFileAtomic } from '../core/atomic-write.ts';
 import { encodePng } from '../core/image.ts';
 import { Generator } from '../engine/generator.ts';
-import { demoCardPath } from '../engine/host.ts';
+import { demoCardPath } from '../engine/workspace.ts';
 import { parseSeeds } from './seeds.ts';
 import { addLabCommands } from './lab-commands.ts';
 import { addPackCommands } from './pack-commands.ts';
@@ -18,12 +19,12 @@ import { addFarmCommands } from './farm-commands.ts';
 class UsageError extends Error {}
 
 export const EXIT = { ok: 0, failure: 1, invalidInput: 2, cancelled: 130 } as const;
-const INPUT_ERRORS = new Set(['not-onnx', 'onnx-truncated', 'no-latent-input', 'bad-image-output', 'card-invalid', 'file-missing', 'npy-invalid', 'npy-shape', 'directions-invalid', 'latent-size-mismatch', 'bad-request', 'output-out-of-range', 'output-not-finite']);
 
-let cancelled = false;
+/** Ctrl+C aborts this signal; running work stops at its next checkpoint. */
+const interrupt = new AbortController();
 process.on('SIGINT', () => {
-  if (cancelled) process.exit(EXIT.cancelled);
-  cancelled = true;
+  if (interrupt.signal.aborted) process.exit(EXIT.cancelled);
+  interrupt.abort(new Error('interrupted (Ctrl+C)'));
   process.stderr.write('\ncancelling after the current batch… (Ctrl+C again to stop now)\n');
 });
 
@@ -53,7 +54,7 @@ function progressBar(total: number, label: string) {
 export function buildProgram(): Command {
   const program = new Command('plumbline')
     .description('Audit, repair and ship latent edit directions of ONNX image generators, on CPU.')
-    .version('0.1.0')
+    .version(PLUMBLINE_VERSION)
     .showHelpAfterError('(run with --help for usage)')
     .exitOverride();
 
@@ -83,7 +84,7 @@ export function buildProgram(): Command {
         for (const a of gen.info.assumptions) process.stderr.write(`assumed: ${a}\n`);
         const bar = progressBar(seeds.length, 'sampling');
         const images: { seed: number; file: string; sha256: string }[] = [];
-        for (let at = 0; at < seeds.length && !cancelled; at += gen.batchSize) {
+        for (let at = 0; at < seeds.length && !interrupt.signal.aborted; at += gen.batchSize) {
           const chunk = seeds.slice(at, at + gen.batchSize);
           const r = await gen.renderSeeds(chunk, psi, []);
           chunk.forEach((seed, i) => {
@@ -99,7 +100,7 @@ export function buildProgram(): Command {
           format: 'plumbline.samples',
           version: 1,
           createdAt: new Date().toISOString(),
-          tool: 'plumbline 0.1.0',
+          tool: TOOL_STAMP,
           generator: { name: gen.info.name, fingerprint: gen.info.fingerprint, files: gen.info.files, space: gen.info.space, latentSize: gen.info.latentSize, layers: gen.info.layers },
           truncation: { psi, centre: gen.card?.truncation.centre ? 'model card' : gen.info.hasMapping ? 'estimated from mapping samples' : 'origin (Z space)' },
           seedConvention: 'plumbline latentForSeed: xoshiro128** via splitmix32, stream 0x5eed, polar Box–Muller',
@@ -107,11 +108,11 @@ export function buildProgram(): Command {
           images,
           modelCard: gen.card,
           assumptions: gen.info.assumptions,
-          complete: !cancelled,
+          complete: !interrupt.signal.aborted,
         };
         writeFileAtomic(join(out, 'manifest.json'), JSON.stringify(manifest, null, 2) + '\n');
         process.stdout.write(`wrote ${images.length} image(s) and manifest.json to ${out}\n`);
-        if (cancelled) process.exitCode = EXIT.cancelled;
+        if (interrupt.signal.aborted) process.exitCode = EXIT.cancelled;
       } finally {
         await gen.dispose();
       }
@@ -130,7 +131,7 @@ export function buildProgram(): Command {
         await gen.dispose();
       }
     });
-  const ctx = { progressBar, isCancelled: () => cancelled, usage: (m: string) => new UsageError(m) };
+  const ctx = { progressBar, interrupt: interrupt.signal, usage: (m: string) => new UsageError(m) };
   addLabCommands(program, ctx, number, integer);
   addPackCommands(program, ctx);
   addFarmCommands(program, ctx, integer);
@@ -153,7 +154,7 @@ export async function main(argv: string[]): Promise<number> {
     }
     if (err instanceof PlumblineError) {
       process.stderr.write(`plumbline: error: ${err.message}\n`);
-      return INPUT_ERRORS.has(err.code) ? EXIT.invalidInput : EXIT.failure;
+      return ERROR_CATALOGUE[err.code].input ? EXIT.invalidInput : EXIT.failure;
     }
     process.stderr.write(`plumbline: unexpected error: ${(err as Error).stack ?? err}\n`);
     return EXIT.failure;

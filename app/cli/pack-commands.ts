@@ -3,22 +3,22 @@ import type { Command } from 'commander';
 import { existsSync, readFileSync } from 'node:fs';
 import { join, resolve } from 'node:path';
 import { writeFileAtomic } from '../core/atomic-write.ts';
-import { applyEdits } from '../core/latent.ts';
+import { applyEdits, directionEdit } from '../core/latent.ts';
 import { PackError, type PackFailure } from '../core/pack.ts';
-import { PlumblineError } from '../core/errors.ts';
+import { ERROR_CATALOGUE, PlumblineError } from '../core/errors.ts';
 import { Generator } from '../engine/generator.ts';
-import { demoCardPath } from '../engine/host.ts';
-import { buildPack, renderStrip, verifyPack } from '../engine/pack-ops.ts';
+import { demoCardPath } from '../engine/workspace.ts';
+import { buildPack, renderStrip, verifyPack, type VerifyResult } from '../engine/pack-ops.ts';
 import { Project } from '../engine/project.ts';
 import { parseSeeds } from './seeds.ts';
-import { driveJob } from './jobs.ts';
+import { runCliJob } from './jobs.ts';
 import { parseRecipe, renderVariants, type VariantDirection } from '../engine/variants.ts';
-import { EngineHost } from '../engine/host.ts';
+import { driveSteps } from '../engine/handlers/context.ts';
+import { loadDirections, openWorkspace, type CliContext } from './lab-commands.ts';
 import { sharedPngWriter } from '../engine/png-writer.ts';
 import { Farm, type RunProgress } from '../engine/farm/coordinator.ts';
 import { renderVariantsOnFarm } from '../engine/farm/farm-variants.ts';
 import { farmPassword, farmSummary } from './farm-commands.ts';
-import type { CliContext } from './lab-commands.ts';
 
 /** One exit code per failure class, so pipelines can tell them apart (docs/preset-pack.md). */
 export const PACK_EXIT: Record<PackFailure, number> = { archive: 3, hostile: 4, hash: 5, version: 6, generator: 7, range: 8, missing: 9 };
@@ -29,12 +29,23 @@ function readFile(path: string): Uint8Array {
   return new Uint8Array(readFileSync(f));
 }
 
+/** Opens the generator (the demo unless --model), verifies the pack against it, runs `use`, and releases the generator. */
+async function withVerifiedPack(o: { pack: string; model?: string }, use: (v: VerifyResult, gen: Generator) => Promise<void>): Promise<void> {
+  const bytes = readFile(o.pack);
+  const gen = await Generator.open(resolve(o.model ?? demoCardPath()));
+  try {
+    await use(await verifyPack(bytes, resolve(o.pack), gen), gen);
+  } finally {
+    await gen.dispose();
+  }
+}
+
 async function withPackErrors(run: () => Promise<void>): Promise<void> {
   try {
     await run();
   } catch (err) {
     if (err instanceof PackError) {
-      process.stderr.write(`plumbline: ${err.failure === 'generator' ? 'wrong generator' : err.failure === 'hash' ? 'tampered or corrupted pack' : err.failure === 'version' ? 'unsupported pack version' : err.failure === 'hostile' ? 'unsafe pack refused' : err.failure === 'range' ? 'invalid direction in pack' : err.failure === 'missing' ? 'incomplete pack' : 'unreadable pack'}: ${err.message}\n`);
+      process.stderr.write(`plumbline: ${ERROR_CATALOGUE[err.code].title}: ${err.message}\n`);
       process.exitCode = PACK_EXIT[err.failure];
       return;
     }
@@ -67,17 +78,10 @@ export function addPackCommands(program: Command, ctx: CliContext): void {
     .description('check a pack: archive safety, hashes, format version, generator fingerprint and ranges')
     .requiredOption('--pack <file>', 'the pack')
     .option('-m, --model <file>', 'the generator production will use; default: the bundled demo')
-    .action(async (o) => withPackErrors(async () => {
-      const bytes = readFile(o.pack);
-      const gen = await Generator.open(resolve(o.model ?? demoCardPath()));
-      try {
-        const r = await verifyPack(bytes, resolve(o.pack), gen);
-        process.stdout.write(`ok: ${r.directions.length} direction(s), ${r.pack.manifest.entries.length} entries with matching SHA-256, format ${r.pack.manifest.version}, generator ${gen.info.name} (${gen.info.fingerprint.slice(0, 16)}…)\n`);
-        for (const d of r.directions) process.stdout.write(`  ${d.name.padEnd(24)} safe ${d.safeRange[0]}…${d.safeRange[1]} σ\n`);
-      } finally {
-        await gen.dispose();
-      }
-    }));
+    .action(async (o) => withPackErrors(() => withVerifiedPack(o, async (r, gen) => {
+      process.stdout.write(`ok: ${r.directions.length} direction(s), ${r.pack.manifest.entries.length} entries with matching SHA-256, format ${r.pack.manifest.version}, generator ${gen.info.name} (${gen.info.fingerprint.slice(0, 16)}…)\n`);
+      for (const d of r.directions) process.stdout.write(`  ${d.name.padEnd(24)} safe ${d.safeRange[0]}…${d.safeRange[1]} σ\n`);
+    })));
 
   program
     .command('apply')
@@ -90,70 +94,63 @@ export function addPackCommands(program: Command, ctx: CliContext): void {
     .option('--preview <name>', "re-render a direction's pack preview exactly, for comparison")
     .option('--force', 'allow strengths outside the audited safe range (says so in the manifest)')
     .requiredOption('-o, --out <dir>', 'output folder')
-    .action(async (o) => withPackErrors(async () => {
-      const bytes = readFile(o.pack);
-      const gen = await Generator.open(resolve(o.model ?? demoCardPath()));
-      try {
-        const v = await verifyPack(bytes, resolve(o.pack), gen);
-        const out = resolve(o.out);
-        if (o.preview) {
-          const d = v.directions.find((x) => x.name === o.preview);
-          const spec = v.pack.manifest.directions.find((x) => x.name === o.preview)?.previewSpec;
-          if (!d || !spec) throw ctx.usage(`--preview: no direction '${o.preview}' with a preview in the pack`);
-          const png = await renderStrip(gen, d, spec);
-          writeFileAtomic(join(out, `${d.name}-preview.png`), png);
-          const same = Buffer.from(png).equals(Buffer.from(v.pack.files.get(v.pack.manifest.directions.find((x) => x.name === o.preview)!.preview!)!));
-          process.stdout.write(`${same ? 'identical to' : 'DIFFERS from'} the pack's preview: ${join(out, `${d.name}-preview.png`)}\n`);
-          if (!same) process.exitCode = 1;
-          return;
-        }
-        if (!o.seeds) throw ctx.usage('apply needs --seeds (or --preview <name>)');
-        const seeds = parseSeeds(o.seeds);
-        const sets = (o.set as string[]).map((s) => {
-          const m = /^([A-Za-z0-9_.-]+)=(-?\d+(?:\.\d+)?)$/.exec(s);
-          if (!m) throw ctx.usage(`--set '${s}' must look like name=strength, e.g. crest_size=1.5`);
-          const d = v.directions.find((x) => x.name === m[1]);
-          if (!d) throw ctx.usage(`--set: the pack has no direction '${m[1]}'; it holds ${v.directions.map((x) => x.name).join(', ')}`);
-          return { d, strength: Number(m[2]) };
-        });
-        const outside = sets.filter(({ d, strength }) => strength < d.safeRange[0] || strength > d.safeRange[1]);
-        if (outside.length && !o.force) {
-          throw ctx.usage(`refusing strengths outside the audited safe range: ${outside.map(({ d, strength }) => `${d.name}=${strength} (safe ${d.safeRange[0]}…${d.safeRange[1]})`).join(', ')}; pass --force to render anyway (recorded in the manifest)`);
-        }
-        if (outside.length) process.stderr.write(`warning: forced outside the safe range: ${outside.map(({ d, strength }) => `${d.name}=${strength}`).join(', ')}\n`);
-        const psi = o.psi === undefined ? gen.info.defaultPsi : Number(o.psi);
-        const images: { seed: number; file: string; sha256: string }[] = [];
-        // Encoding and writing run on worker threads while the next batch renders.
-        const pool = sharedPngWriter();
-        const writes: Promise<void>[] = [];
-        try {
-          for (let at = 0; at < seeds.length; at += gen.batchSize) {
-            const chunk = seeds.slice(at, at + gen.batchSize);
-            const codes = await gen.codesForSeeds(chunk, psi);
-            applyEdits(codes, gen.layout, sets.map(({ d, strength }) => ({ vector: d.vector, layers: d.layers, step: strength * d.sigma })));
-            const r = await gen.synthesize(codes, chunk.length);
-            for (let i = 0; i < chunk.length; i++) {
-              const seed = chunk[i];
-              const slot = at + i;
-              const file = `seed-${String(seed).padStart(6, '0')}.png`;
-              writes.push(pool.write(gen.toRgba(r.images, i), join(out, file)).then((w) => void (images[slot] = { seed, file, sha256: w.sha256 })));
-            }
-            // At most about two batches in flight.
-            if (writes.length > 2 * gen.batchSize) await Promise.all(writes.splice(0, writes.length - gen.batchSize));
-          }
-          await Promise.all(writes);
-        } finally {
-          await Promise.allSettled(writes);
-        }
-        writeFileAtomic(join(out, 'manifest.json'), JSON.stringify({
-          format: 'plumbline.applied', version: 1, createdAt: new Date().toISOString(), pack: v.pack.manifest.project,
-          generator: v.pack.manifest.generator, psi, settings: sets.map(({ d, strength }) => ({ direction: d.name, strength, safeRange: d.safeRange, forced: strength < d.safeRange[0] || strength > d.safeRange[1] })), images,
-        }, null, 2) + '\n');
-        process.stdout.write(`wrote ${images.length} image(s) and manifest.json to ${out}\n`);
-      } finally {
-        await gen.dispose();
+    .action(async (o) => withPackErrors(() => withVerifiedPack(o, async (v, gen) => {
+      const out = resolve(o.out);
+      if (o.preview) {
+        const d = v.directions.find((x) => x.name === o.preview);
+        const spec = v.pack.manifest.directions.find((x) => x.name === o.preview)?.previewSpec;
+        if (!d || !spec) throw ctx.usage(`--preview: no direction '${o.preview}' with a preview in the pack`);
+        const png = await renderStrip(gen, d, spec);
+        writeFileAtomic(join(out, `${d.name}-preview.png`), png);
+        const same = Buffer.from(png).equals(Buffer.from(v.pack.files.get(v.pack.manifest.directions.find((x) => x.name === o.preview)!.preview!)!));
+        process.stdout.write(`${same ? 'identical to' : 'DIFFERS from'} the pack's preview: ${join(out, `${d.name}-preview.png`)}\n`);
+        if (!same) process.exitCode = 1;
+        return;
       }
-    }));
+      if (!o.seeds) throw ctx.usage('apply needs --seeds (or --preview <name>)');
+      const seeds = parseSeeds(o.seeds);
+      const sets = (o.set as string[]).map((s) => {
+        const m = /^([A-Za-z0-9_.-]+)=(-?\d+(?:\.\d+)?)$/.exec(s);
+        if (!m) throw ctx.usage(`--set '${s}' must look like name=strength, e.g. crest_size=1.5`);
+        const d = v.directions.find((x) => x.name === m[1]);
+        if (!d) throw ctx.usage(`--set: the pack has no direction '${m[1]}'; it holds ${v.directions.map((x) => x.name).join(', ')}`);
+        return { d, strength: Number(m[2]) };
+      });
+      const outside = sets.filter(({ d, strength }) => strength < d.safeRange[0] || strength > d.safeRange[1]);
+      if (outside.length && !o.force) {
+        throw ctx.usage(`refusing strengths outside the audited safe range: ${outside.map(({ d, strength }) => `${d.name}=${strength} (safe ${d.safeRange[0]}…${d.safeRange[1]})`).join(', ')}; pass --force to render anyway (recorded in the manifest)`);
+      }
+      if (outside.length) process.stderr.write(`warning: forced outside the safe range: ${outside.map(({ d, strength }) => `${d.name}=${strength}`).join(', ')}\n`);
+      const psi = o.psi === undefined ? gen.info.defaultPsi : Number(o.psi);
+      const images: { seed: number; file: string; sha256: string }[] = [];
+      // Encoding and writing run on worker threads while the next batch renders.
+      const pool = sharedPngWriter();
+      const writes: Promise<void>[] = [];
+      try {
+        for (let at = 0; at < seeds.length; at += gen.batchSize) {
+          const chunk = seeds.slice(at, at + gen.batchSize);
+          const codes = await gen.codesForSeeds(chunk, psi);
+          applyEdits(codes, gen.layout, sets.map(({ d, strength }) => directionEdit(d, strength)));
+          const r = await gen.synthesize(codes, chunk.length);
+          for (let i = 0; i < chunk.length; i++) {
+            const seed = chunk[i];
+            const slot = at + i;
+            const file = `seed-${String(seed).padStart(6, '0')}.png`;
+            writes.push(pool.write(gen.toRgba(r.images, i), join(out, file)).then((w) => void (images[slot] = { seed, file, sha256: w.sha256 })));
+          }
+          // At most about two batches in flight.
+          if (writes.length > 2 * gen.batchSize) await Promise.all(writes.splice(0, writes.length - gen.batchSize));
+        }
+        await Promise.all(writes);
+      } finally {
+        await Promise.allSettled(writes);
+      }
+      writeFileAtomic(join(out, 'manifest.json'), JSON.stringify({
+        format: 'plumbline.applied', version: 1, createdAt: new Date().toISOString(), pack: v.pack.manifest.project,
+        generator: v.pack.manifest.generator, psi, settings: sets.map(({ d, strength }) => ({ direction: d.name, strength, safeRange: d.safeRange, forced: strength < d.safeRange[0] || strength > d.safeRange[1] })), images,
+      }, null, 2) + '\n');
+      process.stdout.write(`wrote ${images.length} image(s) and manifest.json to ${out}\n`);
+    })));
 
   program
     .command('variants')
@@ -171,27 +168,26 @@ export function addPackCommands(program: Command, ctx: CliContext): void {
       const recipeFile = resolve(o.recipe);
       if (!existsSync(recipeFile)) throw new PlumblineError('file-missing', `${recipeFile}: recipe not found`, { file: recipeFile });
       const recipe = parseRecipe(readFileSync(recipeFile, 'utf8'), recipeFile);
-      const host = new EngineHost({});
-      await host.openModel(resolve(o.model ?? demoCardPath()));
+      const workspace = await openWorkspace(o.model, undefined);
       try {
-        const gen = host.generator!;
+        const gen = workspace.requireGenerator();
         let dirs: VariantDirection[];
         if (o.pack) dirs = (await verifyPack(readFile(o.pack), resolve(o.pack), gen)).directions;
-        else dirs = host.openDirections(resolve(o.directions)).directions.map((d) => host.direction(d.id));
+        else dirs = loadDirections(workspace, o.directions);
         const farm = o.farm ? await Farm.connect(o.farm, farmPassword()) : null;
         let progress: RunProgress | null = null;
         try {
-          const job = farm
-            ? renderVariantsOnFarm(farm, gen, recipe, dirs, resolve(o.out), { force: o.force, modelPath: resolve(o.model ?? demoCardPath()), publish: o.publishModel, isCancelled: ctx.isCancelled, onProgress: (p) => (progress = p) })
+          const steps = farm
+            ? renderVariantsOnFarm(farm, gen, recipe, dirs, resolve(o.out), { force: o.force, modelPath: resolve(o.model ?? demoCardPath()), publish: o.publishModel, isCancelled: () => ctx.interrupt.aborted, onProgress: (p) => (progress = p) })
             : renderVariants(gen, recipe, dirs, resolve(o.out), { force: o.force });
-          const done = await driveJob(job, ctx, 'variants', 'stopped; run the same command again to resume');
+          const done = await runCliJob(ctx, workspace, 'variants', 'stopped; run the same command again to resume', (job) => driveSteps(steps, job));
           if (progress) process.stderr.write(farmSummary(progress));
           if (done) process.stdout.write(`${recipe.name}: ${done.rendered} rendered, ${done.reused} kept from an earlier run; manifest.json and contact-sheet.png in ${resolve(o.out)}\n`);
         } finally {
           await farm?.close();
         }
       } finally {
-        await host.dispose();
+        await workspace.dispose();
       }
     }));
 
@@ -201,19 +197,12 @@ export function addPackCommands(program: Command, ctx: CliContext): void {
     .requiredOption('--pack <file>', 'the pack')
     .requiredOption('--project <dir>', 'project folder (created if missing)')
     .option('-m, --model <file>', 'the generator; default: the bundled demo')
-    .action(async (o) => withPackErrors(async () => {
-      const bytes = readFile(o.pack);
-      const gen = await Generator.open(resolve(o.model ?? demoCardPath()));
-      try {
-        const v = await verifyPack(bytes, resolve(o.pack), gen);
-        const project = Project.open(o.project, true, { name: gen.info.name, fingerprint: gen.info.fingerprint });
-        for (const d of v.directions) {
-          // Names were checked against ^[A-Za-z0-9_.-]+$, so files land inside the project's directions/ only.
-          project.saveDirection({ ...d, source: { ...d.source, importedFrom: v.pack.manifest.project } }, gen.layout.space);
-          process.stdout.write(`imported ${d.name}\n`);
-        }
-      } finally {
-        await gen.dispose();
+    .action(async (o) => withPackErrors(() => withVerifiedPack(o, async (v, gen) => {
+      const project = Project.open(o.project, true, { name: gen.info.name, fingerprint: gen.info.fingerprint });
+      for (const d of v.directions) {
+        // Names were checked against ^[A-Za-z0-9_.-]+$, so files land inside the project's directions/ only.
+        project.saveDirection({ ...d, source: { ...d.source, importedFrom: v.pack.manifest.project } }, gen.layout.space);
+        process.stdout.write(`imported ${d.name}\n`);
       }
-    }));
+    })));
 }

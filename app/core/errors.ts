@@ -1,36 +1,11 @@
-// One catalogue of error codes. Errors cross process boundaries as plain data
-// ({ code, message, file? }); the message says what was expected and what arrived.
+// PlumblineError, the error every layer throws on purpose, and toErrorData, the one place that
+// maps any thrown value to the protocol's error data. The codes themselves live in the protocol's
+// catalogue (app/protocol/errors.ts) so the web shell, the desktop shell and the renderer see them.
+import { ProtocolError } from '../protocol/messages.ts';
+import type { ErrorCode, ErrorData } from '../protocol/errors.ts';
+import { OutputValueError } from './image.ts';
 
-export const ERROR_CODES = {
-  'not-onnx': 'The file is not an ONNX model',
-  'onnx-truncated': 'The ONNX file ends early',
-  'no-latent-input': 'The generator has no float latent input',
-  'bad-image-output': 'The generator image output has the wrong shape',
-  'output-out-of-range': 'Generator output is far outside its declared range',
-  'output-not-finite': 'Generator output contains NaN or Inf',
-  'latent-size-mismatch': 'Latent sizes disagree',
-  'card-invalid': 'The model card is invalid',
-  'file-missing': 'A file could not be read',
-  'npy-invalid': 'The .npy file is invalid',
-  'npy-shape': 'Array shape mismatch',
-  'directions-invalid': 'The directions metadata is invalid',
-  'protocol': 'A message broke the protocol',
-  'no-model': 'No generator is loaded',
-  'bad-request': 'The request is invalid',
-  'engine-stopped': 'The engine stopped',
-  'cancelled': 'Cancelled',
-  'write-failed': 'A file could not be written',
-  'farm': 'The render farm refused or failed the work',
-  'internal': 'Internal error',
-} as const;
-
-export type ErrorCode = keyof typeof ERROR_CODES;
-
-export interface ErrorData {
-  code: ErrorCode;
-  message: string;
-  file?: string;
-}
+export { ERROR_CATALOGUE, type ErrorCode, type ErrorData } from '../protocol/errors.ts';
 
 export class PlumblineError extends Error {
   readonly code: ErrorCode;
@@ -46,8 +21,14 @@ export class PlumblineError extends Error {
   }
 }
 
+/**
+ * Every error class, mapped once: PlumblineError and its subclasses (PackError) carry their code;
+ * a protocol violation is 'protocol'; a generator value outside its range is 'output-out-of-range' (or 'output-not-finite');
+ * anything else is a bug and reaches the user as 'internal' with its message.
+ */
 export function toErrorData(err: unknown): ErrorData {
   if (err instanceof PlumblineError) return err.toData();
-  const message = err instanceof Error ? err.message : String(err);
-  return { code: 'internal', message };
+  if (err instanceof ProtocolError) return { code: 'protocol', message: err.message };
+  if (err instanceof OutputValueError) return { code: err.finite ? 'output-out-of-range' : 'output-not-finite', message: err.message };
+  return { code: 'internal', message: err instanceof Error ? err.message : String(err) };
 }

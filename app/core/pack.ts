@@ -10,6 +10,7 @@ import { createHash } from 'node:crypto';
 import yauzl from 'yauzl';
 import yazl from 'yazl';
 import { z } from 'zod';
+import { PlumblineError, type ErrorCode } from './errors.ts';
 
 export const PACK_FORMAT = 'plumbline.pack';
 export const PACK_VERSION = 1;
@@ -18,9 +19,21 @@ export const PACK_LIMITS = { entries: 2000, entryBytes: 64 * 1024 * 1024, totalB
 
 export type PackFailure = 'archive' | 'hostile' | 'hash' | 'version' | 'generator' | 'range' | 'missing';
 
-export class PackError extends Error {
-  constructor(readonly failure: PackFailure, message: string) {
-    super(message);
+/** Each failure class has its own code in the protocol's catalogue, so the app can tell them apart too. */
+const PACK_ERROR_CODES: Record<PackFailure, ErrorCode> = {
+  archive: 'pack-unreadable',
+  hostile: 'pack-unsafe',
+  hash: 'pack-tampered',
+  version: 'pack-version',
+  generator: 'pack-wrong-generator',
+  range: 'pack-invalid-direction',
+  missing: 'pack-incomplete',
+};
+
+export class PackError extends PlumblineError {
+  constructor(readonly failure: PackFailure, message: string, extra: { file?: string } = {}) {
+    super(PACK_ERROR_CODES[failure], message, extra);
+    this.name = 'PackError';
   }
 }
 

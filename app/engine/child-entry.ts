@@ -1,6 +1,7 @@
 // Engine host entry for a Node child process (web shell), talking over the IPC channel with
 // the V8 ("advanced") serialization so binary buffers cross without base64.
-import { EngineHost, ENGINE_VERSION } from './host.ts';
+import { EngineHost } from './host.ts';
+import { ENGINE_NAME } from '../protocol/version.ts';
 import { event, type Message } from '../protocol/messages.ts';
 
 if (!process.send) {
@@ -12,4 +13,4 @@ const host = new EngineHost({ threads });
 const port = { post: (m: Message) => process.send!(m) };
 process.on('message', (m) => host.receive(m, port));
 process.on('disconnect', () => process.exit(0));
-port.post(event('engine.ready', { engine: ENGINE_VERSION, restarted: false }));
+port.post(event('engine.ready', { engine: ENGINE_NAME, restarted: false }));

@@ -8,7 +8,7 @@ import * as ort from 'onnxruntime-node';
 import { PlumblineError } from '../core/errors.ts';
 import { parseModelCard, type ModelCard } from '../core/model-card.ts';
 import { decodeModel, summarizeModel, type OnnxSummary, type TensorInterface } from '../core/onnx/inspect.ts';
-import { applyEdits, broadcastLayers, seedsToZ, truncate, type EditVector } from '../core/latent.ts';
+import { applyEdits, broadcastLayers, directionSigma, seedsToZ, truncate, type EditVector } from '../core/latent.ts';
 import { OutputValueError, tensorToRgba, type RgbaImage } from '../core/image.ts';
 import type { ModelInfo } from '../protocol/messages.ts';
 import { createSession, type SessionOptions } from './sessions.ts';
@@ -191,6 +191,16 @@ export class Generator {
   #shape: number[] | null = null;
   #checkedBatches = 0;
   #seedCache = new Map<number, Float32Array>();
+
+  /**
+   * One strength unit of a direction: the std of the latent projection onto it over this
+   * generator's random samples (core's directionSigma). A direction that does not move the samples
+   * at all gets σ = 1 so its slider still does something visible rather than nothing.
+   */
+  sigmaOf(vector: Float32Array, layers: [number, number] | null): number {
+    const sigma = directionSigma(this.centredSamples, this.layout.size, vector, this.layout.layers, layers);
+    return sigma > 0 ? sigma : 1;
+  }
 
   imageSize(): { width: number; height: number } {
     if (!this.#shape) throw new Error('no image rendered yet');

@@ -5,7 +5,6 @@ import { PlumblineError } from '../core/errors.ts';
 import { differenceOfMeans, linearBoundary, pcaDirections, projectOff, sefaDirections } from '../core/discovery/methods.ts';
 import { decodeModel } from '../core/onnx/inspect.ts';
 import { latentWeights } from '../core/onnx/trace.ts';
-import { directionSigma } from '../core/latent.ts';
 import { dci, mig } from '../core/metrics.ts';
 import { resolveAttributes, scoreBatch } from './attributes.ts';
 import type { Generator } from './generator.ts';
@@ -53,10 +52,6 @@ export async function sampleCodes(gen: Generator, count: number, seed: number, p
   return { seeds, codes };
 }
 
-function sigmaOf(gen: Generator, vector: Float32Array, layers: [number, number] | null): number {
-  const s = directionSigma(gen.centredSamples, gen.layout.size, vector, gen.layout.layers, layers);
-  return s > 0 ? s : 1;
-}
 
 export async function discoverPca(gen: Generator, options: { samples?: number; components?: number; seed?: number; layers?: [number, number] | null }): Promise<LabDirection[]> {
   const samples = options.samples ?? 4000;
@@ -69,7 +64,7 @@ export async function discoverPca(gen: Generator, options: { samples?: number; c
     target: null,
     layers,
     vector: d.vector,
-    sigma: sigmaOf(gen, d.vector, layers),
+    sigma: gen.sigmaOf(d.vector, layers),
     notes: `principal component ${i} of W: ${(explained[i] * 100).toFixed(1)}% of the variance`,
     source: provenance(gen, 'pca', { components: options.components ?? 8, layers }, samples, seed),
   }));
@@ -89,7 +84,7 @@ export function discoverSefa(gen: Generator, options: { components?: number; lay
     target: null,
     layers,
     vector: d.vector,
-    sigma: sigmaOf(gen, d.vector, layers),
+    sigma: gen.sigmaOf(d.vector, layers),
     notes: `closed-form factorization eigenvector ${i} (eigenvalue ${d.score.toFixed(3)}) of ${weights.map((w) => w.name).join(', ')}`,
     source: provenance(gen, 'sefa', { components: options.components ?? 8, layers, weights: weights.map((w) => ({ name: w.name, layer: w.layer })) }, null, null),
   }));
@@ -126,7 +121,7 @@ export async function fitBoundaries(gen: Generator, attributes: string[], option
       target: spec.name,
       layers: null,
       vector: r.vector,
-      sigma: sigmaOf(gen, r.vector, null),
+      sigma: gen.sigmaOf(r.vector, null),
       notes: `linear SVM boundary for ${spec.name}: ${r.perSide} samples per side, held-out accuracy ${(r.accuracy * 100).toFixed(1)}%`,
       source: provenance(gen, 'boundary', { attribute: spec.name, fraction, perSide: r.perSide, heldOutAccuracy: r.accuracy, whitened: true }, samples, seed),
       accuracy: r.accuracy,
@@ -152,7 +147,7 @@ export async function discoverByTags(gen: Generator, positiveSeeds: number[], ne
     target: null,
     layers: null,
     vector,
-    sigma: sigmaOf(gen, vector, null),
+    sigma: gen.sigmaOf(vector, null),
     notes: `difference of means of ${positiveSeeds.length} tagged-with and ${negativeSeeds.length} tagged-without seeds`,
     source: provenance(gen, 'difference-of-means', { positive: positiveSeeds, negative: negativeSeeds, psi }, positiveSeeds.length + negativeSeeds.length, null),
   };
@@ -166,12 +161,14 @@ export async function repairDirection(
   gen: Generator,
   direction: { name: string; target: string | null; layers: [number, number] | null; vector: Float32Array },
   against: string[],
-  options: BoundaryOptions & { layers?: [number, number] | null; hold?: string[] } = {},
+  options: BoundaryOptions & { layers?: [number, number] | null; hold?: 'others' | string[] } = {},
 ): Promise<LabDirection & { boundaries: { attribute: string; accuracy: number; role: 'removed' | 'held' }[] }> {
   if (against.length === 0) throw new PlumblineError('bad-request', 'repair needs at least one attribute to project off');
   if (direction.vector.length !== gen.layout.size) throw new PlumblineError('latent-size-mismatch', `repair works on single-row directions of size ${gen.layout.size}; '${direction.name}' has ${direction.vector.length} values`);
   if (direction.target && against.includes(direction.target)) throw new PlumblineError('bad-request', `'${direction.name}' targets ${direction.target}; projecting it off its own target would remove the edit`);
-  const hold = (options.hold ?? []).filter((h) => !against.includes(h) && h !== direction.target);
+  // 'others': every attribute the generator declares except those removed and the target.
+  const asked = options.hold === 'others' ? gen.attributeNames : (options.hold ?? []);
+  const hold = asked.filter((h) => !against.includes(h) && h !== direction.target);
   const fitted = await fitBoundaries(gen, [...against, ...hold], options);
   const vector = projectOff(direction.vector, fitted.slice(0, against.length).map((b) => b.vector), fitted.slice(against.length).map((b) => b.vector));
   const layers = options.layers === undefined ? direction.layers : options.layers;
@@ -181,11 +178,42 @@ export async function repairDirection(
     target: direction.target,
     layers,
     vector,
-    sigma: sigmaOf(gen, vector, layers),
+    sigma: gen.sigmaOf(vector, layers),
     notes: `${direction.name} projected off the boundaries of ${against.join(', ')}${hold.length ? `, holding ${hold.join(', ')}` : ''}`,
     source: provenance(gen, 'repair', { against, hold, boundaries, layers }, options.samples ?? 4000, options.seed ?? 1, direction.name),
     boundaries,
   };
+}
+
+/** A discovery as the app and the CLI ask for it (the protocol's lab.discover parameters without the strips). */
+export interface DiscoveryRequest {
+  method: 'pca' | 'sefa' | 'boundary' | 'means';
+  components: number;
+  samples: number;
+  seed: number;
+  layers: [number, number] | null;
+  /** The attribute a boundary separates. */
+  attribute?: string;
+  /** Seeds tagged as having / lacking the attribute (difference of means). */
+  positive: number[];
+  negative: number[];
+  /** Name for the direction when the method finds exactly one. */
+  name?: string;
+}
+
+/** The one place a discovery method is chosen; `checkpoint` is awaited between batches. */
+export async function discover(gen: Generator, r: DiscoveryRequest, checkpoint?: () => Promise<void>): Promise<LabDirection[]> {
+  let found: LabDirection[];
+  if (r.method === 'pca') found = await discoverPca(gen, { samples: r.samples, components: r.components, seed: r.seed, layers: r.layers });
+  else if (r.method === 'sefa') found = discoverSefa(gen, { components: r.components, layers: r.layers });
+  else if (r.method === 'boundary') {
+    if (!r.attribute) throw new PlumblineError('bad-request', 'a boundary needs an attribute');
+    found = [await fitBoundary(gen, r.attribute, { samples: r.samples, seed: r.seed, checkpoint })];
+  } else {
+    if (r.positive.length === 0 || r.negative.length === 0) throw new PlumblineError('bad-request', 'difference of means needs seeds tagged as having and as lacking the attribute');
+    found = [await discoverByTags(gen, r.positive, r.negative, r.name ?? 'tagged')];
+  }
+  return found.map((f) => (r.name && found.length === 1 ? { ...f, name: r.name } : f));
 }
 
 /**

@@ -2,40 +2,24 @@
 import { existsSync, readFileSync, readdirSync } from 'node:fs';
 import { join, resolve } from 'node:path';
 import { encodePng, tileImages } from '../core/image.ts';
-import { applyEdits } from '../core/latent.ts';
+import type { ScaledDirection } from '../core/latent.ts';
+import { renderAlong, type StripSpec } from './strip.ts';
 import { encodeNpy } from '../core/npy.ts';
 import { parseDirectionsMeta, readDirections, type Direction } from '../core/directions.ts';
 import { PACK_FORMAT, PACK_VERSION, PackError, readPack, writePack, type PackManifest, type ReadPack } from '../core/pack.ts';
 import { AUDIT_CAUTION } from '../core/audit/settings.ts';
-import { directionSigma } from '../core/latent.ts';
+import { TOOL_STAMP } from '../protocol/version.ts';
 import { Project, vectorHash } from './project.ts';
 import type { Generator } from './generator.ts';
 
 export const PREVIEW_SEEDS = [0, 1, 2];
 
-export interface PreviewSpec {
-  seeds: number[];
-  strengths: number[];
-  psi: number;
-}
+/** A pack preview: seeds × strengths at ψ, recorded in the manifest so `plumbline apply --preview` reproduces it. */
+export type PreviewSpec = StripSpec;
 
 /** Seeds × strengths along one direction as a PNG tile: reproducible byte for byte. */
-export async function renderStrip(gen: Generator, d: { vector: Float32Array; layers: [number, number] | null; sigma: number }, spec: PreviewSpec): Promise<Uint8Array> {
-  const base = await gen.codesForSeeds(spec.seeds, spec.psi);
-  const per = gen.layout.layers * gen.layout.size;
-  const codes = new Float32Array(spec.seeds.length * spec.strengths.length * per);
-  spec.seeds.forEach((_, i) => spec.strengths.forEach((s, j) => {
-    const row = base.slice(i * per, (i + 1) * per);
-    applyEdits(row, gen.layout, [{ vector: d.vector, layers: d.layers, step: s * d.sigma }]);
-    codes.set(row, (i * spec.strengths.length + j) * per);
-  }));
-  const images = [];
-  const n = spec.seeds.length * spec.strengths.length;
-  for (let at = 0; at < n; at += gen.batchSize) {
-    const m = Math.min(gen.batchSize, n - at);
-    const out = await gen.synthesize(codes.slice(at * per, (at + m) * per), m);
-    for (let i = 0; i < m; i++) images.push(gen.toRgba(out.images, i));
-  }
+export async function renderStrip(gen: Generator, d: ScaledDirection, spec: PreviewSpec): Promise<Uint8Array> {
+  const images = await renderAlong(gen, d, spec);
   return encodePng(tileImages(images, spec.strengths.length));
 }
 
@@ -86,7 +70,7 @@ export async function buildPack(gen: Generator, projectDir: string): Promise<{ b
       skipped.push(`${d.name} (approved but never audited)`);
       continue;
     }
-    const sigma = directionSigma(gen.centredSamples, gen.layout.size, d.vector, gen.layout.layers, d.layers) || 1;
+    const sigma = gen.sigmaOf(d.vector, d.layers);
     const [lo, hi] = audit.entry.safeRange;
     const spec: PreviewSpec = { seeds: PREVIEW_SEEDS, strengths: [lo, lo / 2, 0, hi / 2, hi].map((v) => Math.round(v * 1000) / 1000), psi: gen.info.defaultPsi };
     const npy = `directions/${d.name}.npy`;
@@ -107,7 +91,7 @@ export async function buildPack(gen: Generator, projectDir: string): Promise<{ b
     format: PACK_FORMAT,
     version: PACK_VERSION,
     createdAt: new Date().toISOString(),
-    createdBy: 'plumbline 0.1.0',
+    createdBy: TOOL_STAMP,
     project: project.doc.name,
     generator: { name: gen.info.name, fingerprint: gen.info.fingerprint },
     directions,

@@ -1,6 +1,7 @@
 // Engine host entry for Electron's utilityProcess. Main sends one MessagePortMain per renderer
 // window; the host answers on that port directly, so images never pass through main.
-import { EngineHost, ENGINE_VERSION } from './host.ts';
+import { EngineHost } from './host.ts';
+import { ENGINE_NAME } from '../protocol/version.ts';
 import { event, type Message } from '../protocol/messages.ts';
 
 const threads = Number(process.env.PLUMBLINE_THREADS) || undefined;
@@ -12,6 +13,6 @@ process.parentPort.on('message', (e) => {
     const port = { post: (m: Message) => p.postMessage(m) };
     p.on('message', (ev) => host.receive(ev.data, port));
     p.start();
-    port.post(event('engine.ready', { engine: ENGINE_VERSION, restarted: Boolean(e.data.restarted) }));
+    port.post(event('engine.ready', { engine: ENGINE_NAME, restarted: Boolean(e.data.restarted) }));
   }
 });

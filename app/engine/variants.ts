@@ -8,7 +8,7 @@ import { z } from 'zod';
 import { decode } from 'fast-png';
 import { writeFileAtomic } from '../core/atomic-write.ts';
 import { encodePng, type RgbaImage } from '../core/image.ts';
-import { applyEdits } from '../core/latent.ts';
+import { applyEdits, directionEdit } from '../core/latent.ts';
 import { PlumblineError } from '../core/errors.ts';
 import { parseJsonFile } from '../core/json-file.ts';
 import { drawText, GLYPH_HEIGHT } from '../core/label-font.ts';
@@ -87,10 +87,7 @@ export async function renderVariantUnit(gen: Generator, recipe: Recipe, directio
   const setting = recipe.settings[unit.setting];
   const seeds = unit.seeds.map((i) => recipe.seeds[i]);
   const codes = await gen.codesForSeeds(seeds, recipe.psi);
-  applyEdits(codes, gen.layout, Object.entries(setting.strengths).map(([name, strength]) => {
-    const d = byName.get(name)!;
-    return { vector: d.vector, layers: d.layers, step: strength * d.sigma };
-  }));
+  applyEdits(codes, gen.layout, Object.entries(setting.strengths).map(([name, strength]) => directionEdit(byName.get(name)!, strength)));
   const r = await gen.synthesize(codes, seeds.length);
   return seeds.map((seed, k) => ({ file: variantFile(setting.label, seed), seed, image: gen.toRgba(r.images, k) }));
 }

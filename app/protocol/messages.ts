@@ -6,12 +6,9 @@ import { z } from 'zod';
 
 export const PROTOCOL_VERSION = 1;
 
-export const errorDataSchema = z.object({
-  code: z.string(),
-  message: z.string(),
-  file: z.string().optional(),
-});
-export type WireError = z.infer<typeof errorDataSchema>;
+export { errorDataSchema, ERROR_CATALOGUE, ERROR_CODES, type ErrorCode, type ErrorData } from './errors.ts';
+import { errorDataSchema, type ErrorData } from './errors.ts';
+export type WireError = ErrorData;
 
 const bytes = z.custom<Uint8Array>((v) => v instanceof Uint8Array, { message: "expected binary bytes (Uint8Array)" });
 const seed = z.number().int().min(0).max(0xffffffff);
@@ -21,75 +18,6 @@ const strength = z.number().finite().min(-50).max(50);
 export const editSchema = z.object({ direction: z.string().min(1), strength });
 export type Edit = z.infer<typeof editSchema>;
 
-/** Request parameters by method. Adding a method here is the only way to add a channel. */
-/** A render farm as the engine sees it (the password never comes back). */
-const farmWorkerSchema = z.object({ name: z.string(), host: z.string(), threads: z.number().int(), fingerprint: z.string().nullable(), imagesPerSecond: z.number().nullable(), units: z.number().int(), busy: z.string().nullable(), since: z.string() });
-const farmStatusSchema = z.object({
-  connected: z.boolean(),
-  /** The farm's address with any password replaced by ***. */
-  url: z.string().nullable(),
-  workers: z.array(farmWorkerSchema),
-  runs: z.array(z.object({ runId: z.string(), kind: z.enum(['variants', 'audit']), label: z.string(), units: z.number().int(), state: z.enum(['running', 'done', 'failed', 'cancelled']), startedAt: z.string(), message: z.string().optional() })),
-});
-/** Per-worker figures of a farm job, on its progress events. */
-export const farmProgressSchema = z.array(z.object({ worker: z.string(), units: z.number().int(), images: z.number().int(), seconds: z.number(), imagesPerSecond: z.number(), busy: z.string().nullable() }));
-
-export const requestSchemas = {
-  'engine.hello': z.object({}),
-  /** Audits and variant sets go to this farm until 'farm.disconnect'; the engine keeps the password in memory only. */
-  'farm.connect': z.object({ url: z.string().min(1).max(2048), password: z.string().max(1024).optional() }),
-  'farm.disconnect': z.object({}),
-  'farm.status': z.object({}),
-  'model.openDemo': z.object({}),
-  'model.open': z.object({ path: z.string().min(1), mappingPath: z.string().min(1).optional() }),
-  'directions.open': z.object({ path: z.string().min(1) }),
-  'preview.render': z.object({ seed, psi, edits: z.array(editSchema).max(64) }),
-  'grid.render': z.object({ seeds: z.array(seed).min(1).max(256), psi }),
-  'job.cancel': z.object({ jobId: z.number().int() }),
-  'directions.list': z.object({}),
-  'lab.discover': z.object({
-    method: z.enum(['pca', 'sefa', 'boundary', 'means']),
-    components: z.number().int().min(1).max(64).default(6),
-    samples: z.number().int().min(64).max(200_000).default(3000),
-    seed: z.number().int().min(0).max(0xffffffff).default(1),
-    layers: z.tuple([z.number().int().min(0), z.number().int().min(1)]).nullable().default(null),
-    attribute: z.string().min(1).optional(),
-    positive: z.array(seed).max(10_000).default([]),
-    negative: z.array(seed).max(10_000).default([]),
-    name: z.string().min(1).max(120).optional(),
-    /** Seeds and strengths for the preview strips of each candidate. */
-    stripSeeds: z.array(seed).min(1).max(8).default([0, 1, 2]),
-    stripStrengths: z.array(strength).min(1).max(9).default([-3, -1.5, 0, 1.5, 3]),
-  }),
-  'directions.keep': z.object({ id: z.string().min(1), name: z.string().min(1).max(120).regex(/^[A-Za-z0-9_.-]+$/, 'letters, digits, _ . - only') }),
-  'audit.run': z.object({
-    directions: z.array(z.string().min(1)).min(1).max(64),
-    probes: z.number().int().min(0).max(100_000).default(64),
-    pinnedSeeds: z.array(seed).max(10_000).default([]),
-    psi: psi.default(0.7),
-    seed: z.number().int().min(0).max(0xffffffff).default(1),
-    referenceStrength: z.number().positive().max(10).default(2),
-    leakPass: z.number().positive().max(10).default(0.15),
-    leakFail: z.number().positive().max(10).default(0.35),
-    combinations: z.enum(['all', 'none']).default('all'),
-  }),
-  'lab.repair': z.object({ direction: z.string().min(1), against: z.array(z.string().min(1)).min(1).max(32), hold: z.union([z.literal('others'), z.array(z.string())]).default([]) }),
-  'project.open': z.object({ path: z.string().min(1), create: z.boolean().default(false) }),
-  'project.saveUi': z.object({ seed, psi, strengths: z.record(z.string(), strength), pinned: z.array(seed).max(10_000), tags: z.record(z.string(), z.enum(['has', 'lacks'])) }),
-  'pack.build': z.object({ out: z.string().min(1) }),
-  'variants.render': z.object({
-    name: z.string().regex(/^[A-Za-z0-9_.-]{1,80}$/, 'letters, digits, _ . - only'),
-    seeds: z.array(seed).min(1).max(10_000),
-    psi,
-    /** Strengths keyed by direction id. */
-    settings: z.array(z.object({ label: z.string().regex(/^[A-Za-z0-9_.=+-]{1,60}$/, 'letters, digits and _ . = + - only'), strengths: z.record(z.string(), strength) })).min(1).max(200),
-    out: z.string().min(1),
-  }),
-  'pack.import': z.object({ path: z.string().min(1) }),
-  'project.review': z.object({ direction: z.string().min(1), status: z.enum(['draft', 'in-review', 'approved', 'rejected']), reviewer: z.string().min(1).max(120), note: z.string().max(4000).default('') }),
-} as const;
-export type Method = keyof typeof requestSchemas;
-export type Params<M extends Method> = z.infer<(typeof requestSchemas)[M]>;
 
 export const attributeInfoSchema = z.object({ name: z.string(), unit: z.string().optional(), description: z.string().optional() });
 
@@ -181,42 +109,119 @@ export const auditWireSchema = z.object({
 }).passthrough();
 export type AuditWire = z.infer<typeof auditWireSchema>;
 
-export const resultSchemas = {
-  'engine.hello': z.object({ protocol: z.number(), engine: z.string(), threads: z.number(), model: modelInfoSchema.nullable() }),
-  'model.openDemo': modelInfoSchema,
-  'model.open': modelInfoSchema,
-  'directions.open': z.object({ file: z.string(), directions: z.array(directionInfoSchema) }),
-  'preview.render': z.union([
+/** Which queue a method waits in: control (in order, between job batches), preview (latest wins, before the next job batch) or job (queued, cancellable, with progress). */
+export type Lane = 'control' | 'preview' | 'job';
+
+/**
+ * The one cancelled result. Every job method may answer with it instead of its outcome;
+ * cancellation is a result, not an error (shared/STYLE.md, habit 6). Declared here once: the
+ * job methods below declare only their outcome, and resultSchemas adds this alternative.
+ */
+export const cancelledSchema = z.object({ cancelled: z.literal(true) });
+export type Cancelled = z.infer<typeof cancelledSchema>;
+
+function declare<L extends Lane, P extends z.ZodType, R extends z.ZodObject | z.ZodType>(lane: L, params: P, result: R) {
+  return { lane, params, result };
+}
+
+const uiStateSchema = z.object({ seed, psi, strengths: z.record(z.string(), strength), pinned: z.array(seed).max(10_000), tags: z.record(z.string(), z.enum(['has', 'lacks'])) });
+const candidateSchema = z.object({ direction: directionInfoSchema, strip: z.array(imageSchema), stripSeeds: z.array(seed), stripStrengths: z.array(z.number()) });
+/** A render farm as the engine sees it (the password never comes back). */
+const farmWorkerSchema = z.object({ name: z.string(), host: z.string(), threads: z.number().int(), fingerprint: z.string().nullable(), imagesPerSecond: z.number().nullable(), units: z.number().int(), busy: z.string().nullable(), since: z.string() });
+const farmStatusSchema = z.object({
+  connected: z.boolean(),
+  /** The farm's address with any password replaced by ***. */
+  url: z.string().nullable(),
+  workers: z.array(farmWorkerSchema),
+  runs: z.array(z.object({ runId: z.string(), kind: z.enum(['variants', 'audit']), label: z.string(), units: z.number().int(), state: z.enum(['running', 'done', 'failed', 'cancelled']), startedAt: z.string(), message: z.string().optional() })),
+});
+/** Per-worker figures of a farm job, on its progress events. */
+export const farmProgressSchema = z.array(z.object({ worker: z.string(), units: z.number().int(), images: z.number().int(), seconds: z.number(), imagesPerSecond: z.number(), busy: z.string().nullable() }));
+
+const thumbnailSchema = z.object({ direction: z.string(), seed, strength: z.number(), attribute: z.string(), leakage: z.number(), before: bytes, after: bytes });
+
+/**
+ * Every method, declared once: its lane, its parameter schema and its result schema (for jobs,
+ * the outcome without the cancelled alternative). Adding a method means adding one entry here and
+ * one handler in app/engine/handlers/ — nothing else.
+ */
+export const methods = {
+  'engine.hello': declare('control', z.object({}), z.object({ protocol: z.number(), engine: z.string(), threads: z.number(), model: modelInfoSchema.nullable() })),
+  /** Audits and variant sets go to this farm until 'farm.disconnect'; the engine keeps the password in memory only. */
+  'farm.connect': declare('control', z.object({ url: z.string().min(1).max(2048), password: z.string().max(1024).optional() }), farmStatusSchema),
+  'farm.disconnect': declare('control', z.object({}), farmStatusSchema),
+  'farm.status': declare('control', z.object({}), farmStatusSchema),
+  'model.openDemo': declare('control', z.object({}), modelInfoSchema),
+  'model.open': declare('control', z.object({ path: z.string().min(1), mappingPath: z.string().min(1).optional() }), modelInfoSchema),
+  'directions.open': declare('control', z.object({ path: z.string().min(1) }), z.object({ file: z.string(), directions: z.array(directionInfoSchema) })),
+  'directions.list': declare('control', z.object({}), z.object({ directions: z.array(directionInfoSchema) })),
+  'directions.keep': declare('control', z.object({ id: z.string().min(1), name: z.string().min(1).max(120).regex(/^[A-Za-z0-9_.-]+$/, 'letters, digits, _ . - only') }), directionInfoSchema),
+  'preview.render': declare('preview', z.object({ seed, psi, edits: z.array(editSchema).max(64) }), z.union([
     z.object({ superseded: z.literal(true) }),
     z.object({ superseded: z.literal(false), seed, image: imageSchema, attributes: z.array(z.number()), millis: z.number() }),
-  ]),
-  'grid.render': z.union([
-    z.object({ cancelled: z.literal(true) }),
-    z.object({ cancelled: z.literal(false), images: z.array(z.object({ seed, image: imageSchema })) }),
-  ]),
-  'job.cancel': z.object({ cancelled: z.boolean() }),
-  'farm.connect': farmStatusSchema,
-  'farm.disconnect': farmStatusSchema,
-  'farm.status': farmStatusSchema,
-  'directions.list': z.object({ directions: z.array(directionInfoSchema) }),
-  'lab.discover': z.union([
-    z.object({ cancelled: z.literal(true) }),
-    z.object({ cancelled: z.literal(false), candidates: z.array(z.object({ direction: directionInfoSchema, strip: z.array(imageSchema), stripSeeds: z.array(seed), stripStrengths: z.array(z.number()) })) }),
-  ]),
-  'directions.keep': directionInfoSchema,
-  'audit.run': z.union([
-    z.object({ cancelled: z.literal(true) }),
-    z.object({ cancelled: z.literal(false), report: auditWireSchema, thumbnails: z.array(z.object({ direction: z.string(), seed, strength: z.number(), attribute: z.string(), leakage: z.number(), before: bytes, after: bytes })), savedAs: z.string().nullable() }),
-  ]),
-  'lab.repair': z.union([z.object({ cancelled: z.literal(true) }), z.object({ cancelled: z.literal(false), direction: directionInfoSchema, boundaries: z.array(z.object({ attribute: z.string(), accuracy: z.number(), role: z.string() })) })]),
-  'project.open': z.object({ path: z.string(), name: z.string(), generatorFingerprint: z.string().nullable(), generatorMatches: z.boolean(), directions: z.array(directionInfoSchema), audits: z.array(z.string()), ui: z.object({ seed, psi, strengths: z.record(z.string(), z.number()), pinned: z.array(seed), tags: z.record(z.string(), z.enum(['has', 'lacks'])) }).nullable() }),
-  'project.saveUi': z.object({ savedAt: z.string() }),
-  'project.review': z.object({ direction: z.string(), signOff: signOffSchema }),
-  'variants.render': z.union([z.object({ cancelled: z.literal(true) }), z.object({ cancelled: z.literal(false), out: z.string(), rendered: z.number(), reused: z.number(), contactSheet: bytes })]),
-  'pack.build': z.object({ file: z.string(), directions: z.array(z.string()), skipped: z.array(z.string()), bytes: z.number() }),
-  'pack.import': z.object({ imported: z.array(z.string()), directions: z.array(directionInfoSchema) }),
-} satisfies Record<Method, z.ZodType>;
-export type Result<M extends Method> = z.infer<(typeof resultSchemas)[M]>;
+  ])),
+  'grid.render': declare('job', z.object({ seeds: z.array(seed).min(1).max(256), psi }), z.object({ images: z.array(z.object({ seed, image: imageSchema })) })),
+  /** Cancels a queued or running job by the id of the request that started it. */
+  'job.cancel': declare('control', z.object({ requestId: z.number().int() }), z.object({ cancelled: z.boolean() })),
+  'lab.discover': declare('job', z.object({
+    method: z.enum(['pca', 'sefa', 'boundary', 'means']),
+    components: z.number().int().min(1).max(64).default(6),
+    samples: z.number().int().min(64).max(200_000).default(3000),
+    seed: z.number().int().min(0).max(0xffffffff).default(1),
+    layers: z.tuple([z.number().int().min(0), z.number().int().min(1)]).nullable().default(null),
+    attribute: z.string().min(1).optional(),
+    positive: z.array(seed).max(10_000).default([]),
+    negative: z.array(seed).max(10_000).default([]),
+    name: z.string().min(1).max(120).optional(),
+    /** Seeds and strengths for the preview strips of each candidate. */
+    stripSeeds: z.array(seed).min(1).max(8).default([0, 1, 2]),
+    stripStrengths: z.array(strength).min(1).max(9).default([-3, -1.5, 0, 1.5, 3]),
+  }), z.object({ candidates: z.array(candidateSchema) })),
+  'audit.run': declare('job', z.object({
+    directions: z.array(z.string().min(1)).min(1).max(64),
+    probes: z.number().int().min(0).max(100_000).default(64),
+    pinnedSeeds: z.array(seed).max(10_000).default([]),
+    psi: psi.default(0.7),
+    seed: z.number().int().min(0).max(0xffffffff).default(1),
+    referenceStrength: z.number().positive().max(10).default(2),
+    leakPass: z.number().positive().max(10).default(0.15),
+    leakFail: z.number().positive().max(10).default(0.35),
+    combinations: z.enum(['all', 'none']).default('all'),
+  }), z.object({ report: auditWireSchema, thumbnails: z.array(thumbnailSchema), savedAs: z.string().nullable() })),
+  'lab.repair': declare('job', z.object({ direction: z.string().min(1), against: z.array(z.string().min(1)).min(1).max(32), hold: z.union([z.literal('others'), z.array(z.string())]).default([]) }),
+    z.object({ direction: directionInfoSchema, boundaries: z.array(z.object({ attribute: z.string(), accuracy: z.number(), role: z.string() })) })),
+  'project.open': declare('control', z.object({ path: z.string().min(1), create: z.boolean().default(false) }),
+    z.object({ path: z.string(), name: z.string(), generatorFingerprint: z.string().nullable(), generatorMatches: z.boolean(), directions: z.array(directionInfoSchema), audits: z.array(z.string()), ui: uiStateSchema.nullable() })),
+  'project.saveUi': declare('control', uiStateSchema, z.object({ savedAt: z.string() })),
+  'project.review': declare('control', z.object({ direction: z.string().min(1), status: z.enum(['draft', 'in-review', 'approved', 'rejected']), reviewer: z.string().min(1).max(120), note: z.string().max(4000).default('') }),
+    z.object({ direction: z.string(), signOff: signOffSchema })),
+  'variants.render': declare('job', z.object({
+    name: z.string().regex(/^[A-Za-z0-9_.-]{1,80}$/, 'letters, digits, _ . - only'),
+    seeds: z.array(seed).min(1).max(10_000),
+    psi,
+    /** Strengths keyed by direction id. */
+    settings: z.array(z.object({ label: z.string().regex(/^[A-Za-z0-9_.=+-]{1,60}$/, 'letters, digits and _ . = + - only'), strengths: z.record(z.string(), strength) })).min(1).max(200),
+    out: z.string().min(1),
+  }), z.object({ out: z.string(), rendered: z.number(), reused: z.number(), contactSheet: bytes })),
+  'pack.build': declare('control', z.object({ out: z.string().min(1) }), z.object({ file: z.string(), directions: z.array(z.string()), skipped: z.array(z.string()), bytes: z.number() })),
+  'pack.import': declare('control', z.object({ path: z.string().min(1) }), z.object({ imported: z.array(z.string()), directions: z.array(directionInfoSchema) })),
+} as const;
+
+export type Method = keyof typeof methods;
+export type Params<M extends Method> = z.infer<(typeof methods)[M]['params']>;
+/** What a method's handler returns: for a job, its outcome without the cancelled alternative. */
+export type Outcome<M extends Method> = z.infer<(typeof methods)[M]['result']>;
+export type JobMethod = { [M in Method]: (typeof methods)[M]['lane'] extends 'job' ? M : never }[Method];
+/** What a request answers with: for a job, the one cancelled result or its outcome marked not cancelled. */
+export type Result<M extends Method> = M extends JobMethod ? Cancelled | ({ cancelled: false } & Outcome<M>) : Outcome<M>;
+
+export const laneOf = (method: Method): Lane => methods[method].lane;
+
+/** Parameter schemas by method (derived from `methods`). */
+export const requestSchemas = Object.fromEntries(Object.entries(methods).map(([m, d]) => [m, d.params])) as { [M in Method]: (typeof methods)[M]['params'] };
+
+/** Result schemas by method (derived from `methods`); job results also accept the cancelled result. */
+export const resultSchemas = Object.fromEntries(Object.entries(methods).map(([m, d]) => [m, d.lane === 'job' ? z.union([cancelledSchema, (d.result as z.ZodObject).extend({ cancelled: z.literal(false) })]) : d.result])) as unknown as Record<Method, z.ZodType>;
 
 export const requestSchema = z.object({
   v: z.literal(PROTOCOL_VERSION),
@@ -234,7 +239,7 @@ export const responseSchema = z.discriminatedUnion('ok', [
 export type ResponseMessage = z.infer<typeof responseSchema>;
 
 export const eventSchemas = {
-  'job.progress': z.object({ jobId: z.number().int(), requestId: z.number().int(), done: z.number().int(), total: z.number().int(), label: z.string(), workers: farmProgressSchema.optional() }),
+  'job.progress': z.object({ requestId: z.number().int(), done: z.number().int(), total: z.number().int(), label: z.string(), workers: farmProgressSchema.optional() }),
   'engine.ready': z.object({ engine: z.string(), restarted: z.boolean() }),
   'engine.stopped': z.object({ reason: z.string(), code: z.number().nullable(), restarting: z.boolean() }),
   'model.changed': z.object({ model: modelInfoSchema }),

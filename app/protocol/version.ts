@@ -5,3 +5,6 @@ export const PLUMBLINE_VERSION = '0.1.0';
 
 /** How reports and packs name the program that wrote them. */
 export const TOOL_STAMP = `plumbline ${PLUMBLINE_VERSION}`;
+
+/** How the engine names itself in engine.hello and engine.ready. */
+export const ENGINE_NAME = `plumbline-engine/${PLUMBLINE_VERSION}`;

@@ -185,10 +185,10 @@ export async function startWebShell(options: WebShellOptions = {}): Promise<WebS
         routes.set(hostId, { client, id: m.id });
         const forwarded: Message = { ...m, id: hostId };
         if (m.method === 'job.cancel') {
-          // Job ids are host-wide request ids: translate the client's id.
-          const target = (m.params as { jobId: number }).jobId;
+          // The engine sees host-wide request ids: translate the client's.
+          const target = (m.params as { requestId: number }).requestId;
           const hostTarget = [...routes].find(([, r]) => r.client === client && r.id === target)?.[0] ?? -1;
-          (forwarded as { params: unknown }).params = { jobId: hostTarget };
+          (forwarded as { params: unknown }).params = { requestId: hostTarget };
         }
         child.send(forwarded);
       });

@@ -3,11 +3,11 @@
 import { readFileSync } from 'node:fs';
 import { join } from 'node:path';
 import * as ort from 'onnxruntime-node';
-import { EngineHost, demoCardPath } from '../../app/engine/host.ts';
+import { Workspace, demoCardPath } from '../../app/engine/workspace.ts';
 import { runAudit } from '../../app/engine/audit/run.ts';
 
 const [probes, count, step, distance] = [Number(process.argv[2]), Number(process.argv[3]), Number(process.argv[4]), process.argv[5] ?? 'ssim'];
-const host = new EngineHost({ threads: Number(process.env.PLUMBLINE_THREADS) || 1 });
+const host = new Workspace({ threads: Number(process.env.PLUMBLINE_THREADS) || 1 });
 await host.openModel(demoCardPath());
 const dirs = host.openDirections(new URL('../../resources/demo/sigil-directions.npy', import.meta.url).pathname).directions.slice(0, count).map((d) => {
   const x = host.direction(d.id);

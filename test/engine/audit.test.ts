@@ -5,7 +5,7 @@ import assert from 'node:assert/strict';
 import { readFileSync } from 'node:fs';
 import { join } from 'node:path';
 import { spawnSync } from 'node:child_process';
-import { EngineHost, demoCardPath } from '../../app/engine/host.ts';
+import { Workspace, demoCardPath } from '../../app/engine/workspace.ts';
 import { runAudit, type AuditDirection, type AuditReport } from '../../app/engine/audit/run.ts';
 import { fitBoundaries, repairDirection, discoverSefa, groundTruthMetrics } from '../../app/engine/lab.ts';
 import { Generator } from '../../app/engine/generator.ts';
@@ -17,7 +17,7 @@ import { cardGenerator, tempDir, write } from '../helpers/models.ts';
 const root = join(import.meta.dirname, '..', '..');
 const demoDir = join(root, 'resources', 'demo');
 const truth = JSON.parse(readFileSync(join(demoDir, 'sigil-directions.json'), 'utf8')).directions as { name: string; truth: { verdict: string; leaksInto: string[]; breaksAbove?: number } }[];
-let host: EngineHost;
+let host: Workspace;
 let directions: AuditDirection[];
 
 async function drain(job: AsyncGenerator<unknown, AuditReport, void>): Promise<AuditReport> {
@@ -28,7 +28,7 @@ async function drain(job: AsyncGenerator<unknown, AuditReport, void>): Promise<A
 }
 
 before(async () => {
-  host = new EngineHost({ threads: 1 });
+  host = new Workspace({ threads: 1 });
   await host.openModel(demoCardPath());
   directions = host.openDirections(join(demoDir, 'sigil-directions.npy')).directions.map((d) => {
     const x = host.direction(d.id);

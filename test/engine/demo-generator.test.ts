@@ -6,17 +6,17 @@ import { readFileSync, readdirSync } from 'node:fs';
 import { join } from 'node:path';
 import { authorDemo } from '../../resources/author-demo.ts';
 import { Generator } from '../../app/engine/generator.ts';
-import { EngineHost, demoCardPath } from '../../app/engine/host.ts';
+import { Workspace, demoCardPath } from '../../app/engine/workspace.ts';
 import { tempDir } from '../helpers/models.ts';
 
 const resources = join(import.meta.dirname, '..', '..', 'resources', 'demo');
 let gen: Generator;
-let host: EngineHost;
+let host: Workspace;
 let dirs: { id: string; name: string; sigma: number }[];
 let meta: { directions: { name: string; target: string | null; layers: [number, number] | null; truth: { verdict: string; leaksInto: string[]; breaksAbove?: number; movesMost?: string } }[] };
 
 before(async () => {
-  host = new EngineHost({ threads: 1 });
+  host = new Workspace({ threads: 1 });
   await host.openModel(demoCardPath());
   gen = host.generator!;
   dirs = host.openDirections(join(resources, 'sigil-directions.npy')).directions;

@@ -12,7 +12,7 @@ let nextId = 100;
 
 before(async () => {
   host = new EngineHost({ threads: 1 });
-  await host.openModel(demoCardPath());
+  await host.workspace.openModel(demoCardPath());
 });
 after(async () => host.dispose());
 
@@ -55,7 +55,7 @@ test('a job cancelled between batches answers cancelled and stops early', async 
   host.receive(request(job, 'grid.render', { seeds: Array.from({ length: 256 }, (_, i) => i), psi: 0.7 }), port);
   await until(() => got.some((m) => m.type === 'event' && m.data.requestId === job));
   const cancel = nextId++;
-  host.receive(request(cancel, 'job.cancel', { jobId: job }), port);
+  host.receive(request(cancel, 'job.cancel', { requestId: job }), port);
   await until(() => !!response(job));
   assert.equal(response(cancel).result.cancelled, true);
   assert.deepEqual(response(job).result, { cancelled: true });
@@ -78,8 +78,8 @@ test('malformed messages get a typed protocol error and the host keeps working',
 });
 
 test('switching generators releases the previous sessions', async () => {
-  const first = host.generator!;
-  await host.openModel(demoCardPath());
+  const first = host.workspace.generator!;
+  await host.workspace.openModel(demoCardPath());
   assert.equal(first.disposed, true);
-  assert.notEqual(host.generator, first);
+  assert.notEqual(host.workspace.generator, first);
 });

@@ -71,7 +71,7 @@ test('an audit runs as a job with progress, answers with the report and binary t
   let sawProgress = false;
   host.receive(request(id, 'audit.run', { directions: ids, probes: 400, pinnedSeeds: [], psi: 0.7, seed: 1, referenceStrength: 2, leakPass: 0.15, leakFail: 0.35, combinations: 'none' }), { post: (m: any) => { if (m.type === 'event' && m.data.requestId === id) sawProgress = true; inbox.push(m); } });
   while (!sawProgress) await new Promise((res) => setTimeout(res, 10));
-  host.receive(request(nextId++, 'job.cancel', { jobId: id }), port);
+  host.receive(request(nextId++, 'job.cancel', { requestId: id }), port);
   for (;;) {
     const resp = inbox.find((m) => m.type === 'response' && m.id === id);
     if (resp) {

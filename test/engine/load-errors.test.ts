@@ -7,7 +7,8 @@ import { join } from 'node:path';
 import { spawnSync } from 'node:child_process';
 import * as ort from 'onnxruntime-node';
 import { Generator } from '../../app/engine/generator.ts';
-import { EngineHost, demoCardPath } from '../../app/engine/host.ts';
+import { EngineHost } from '../../app/engine/host.ts';
+import { Workspace, demoCardPath } from '../../app/engine/workspace.ts';
 import { request } from '../../app/protocol/messages.ts';
 import { encodeNpy } from '../../app/core/npy.ts';
 import { decodeModel, summarizeModel } from '../../app/core/onnx/inspect.ts';
@@ -71,7 +72,7 @@ test('the host answers each failure as a typed error response and keeps serving'
 });
 
 test('a directions file whose latent size does not match is refused with both sizes', async () => {
-  const host = new EngineHost({ threads: 1 });
+  const host = new Workspace({ threads: 1 });
   await host.openModel(demoCardPath());
   const npy = write(dir, 'small.npy', encodeNpy(new Float32Array(16).fill(1), [16]));
   assert.throws(() => host.openDirections(npy), /small\.npy: direction shape \[16\] does not match this generator's latent size 32 \(W\+ with 3 layers\)/);

@@ -5,7 +5,7 @@ import assert from 'node:assert/strict';
 import { writeFileSync } from 'node:fs';
 import { join } from 'node:path';
 import { ScorerModel } from '../../app/engine/scorer-model.ts';
-import { EngineHost, demoCardPath } from '../../app/engine/host.ts';
+import { Workspace, demoCardPath } from '../../app/engine/workspace.ts';
 import { runAudit, type AuditReport } from '../../app/engine/audit/run.ts';
 import { scorerModel, tempDir } from '../helpers/models.ts';
 
@@ -41,7 +41,7 @@ test('scorer cards that do not match their model are refused with the file named
 test('user scorer attributes and the feature distance take part in an audit', async () => {
   const card = scorerModel(tempDir());
   const scorer = await ScorerModel.open(card, { threads: 1 });
-  const host = new EngineHost({ threads: 1 });
+  const host = new Workspace({ threads: 1 });
   try {
     await host.openModel(demoCardPath());
     const dirs = host.openDirections(join(import.meta.dirname, '..', '..', 'resources', 'demo', 'sigil-directions.npy')).directions;

@@ -235,13 +235,13 @@ export class Farm {
         }
         if (cancelled && Date.now() - cancelAt > CANCEL_GRACE_MS) break;
       }
-      if (cancelled) throw new PlumblineError('cancelled', `run ${runId} cancelled: units not started were removed, running ones stopped at their next batch`);
+      if (cancelled) throw new PlumblineError('farm', `run ${runId} cancelled: units not started were removed, running ones stopped at their next batch`);
       // Every unit is in: the parent collects their values; its count must match.
       const parent = await waitForParent(runQueueName(runId), parentId, this.#connection);
       if (parent !== byId.size) throw new PlumblineError('farm', `run ${runId}: the flow's parent collected ${parent} unit values, expected ${byId.size}`);
       record.state = 'done';
     } catch (err) {
-      record.state = cancelled || (err as PlumblineError).code === 'cancelled' ? 'cancelled' : 'failed';
+      record.state = cancelled ? 'cancelled' : 'failed';
       record.message = (err as Error).message;
       throw err;
     } finally {

@@ -2,14 +2,14 @@
 // the web shell's WebSocket). Every incoming message is validated; results are checked per method.
 import { decodeFrame, encodeFrame } from '../../../app/protocol/frames.ts';
 import {
-  parseMessage, parseResult, request, type EventData, type EventName, type Message, type Method, type Params, type Result, type WireError,
+  parseMessage, parseResult, request, type EventData, type EventName, type Message, type Method, type Params, type Result, type WireError, type ErrorCode,
 } from '../../../app/protocol/messages.ts';
 
 export class EngineRequestError extends Error {
   constructor(readonly error: WireError) {
     super(error.message);
   }
-  get code(): string {
+  get code(): ErrorCode {
     return this.error.code;
   }
 }
@@ -73,7 +73,7 @@ export class EngineClient {
     });
   }
 
-  /** Request id of the most recent request, usable as a job id for job.cancel. */
+  /** Request id of the most recent request: job.cancel names a job by it. */
   get lastRequestId(): number {
     return this.#nextId - 1;
   }

@@ -171,7 +171,7 @@ export class Lab {
   }
 
   async cancelAudit(): Promise<void> {
-    if (this.#auditRequest) await this.engine.request('job.cancel', { jobId: this.#auditRequest });
+    if (this.#auditRequest) await this.engine.request('job.cancel', { requestId: this.#auditRequest });
   }
 
   async repair(directionName: string): Promise<void> {
@@ -266,7 +266,7 @@ export class Lab {
   }
 
   async cancelVariants(): Promise<void> {
-    if (this.#variantRequest) await this.engine.request('job.cancel', { jobId: this.#variantRequest });
+    if (this.#variantRequest) await this.engine.request('job.cancel', { requestId: this.#variantRequest });
   }
 
   async buildPack(out: string): Promise<void> {

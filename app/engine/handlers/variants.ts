@@ -1,0 +1,27 @@
+// Handler for rendering a variant set (seeds × settings of kept directions) into a folder, as a
+// resumable job; answers with the contact sheet.
+import { readFileSync } from 'node:fs';
+import { join, resolve } from 'node:path';
+import { renderVariants } from '../variants.ts';
+import { driveSteps, withWorkers, type AreaHandlers } from './context.ts';
+import { renderVariantsOnFarm } from '../farm/farm-variants.ts';
+import { modelLocation } from '../farm/session.ts';
+import type { WorkerProgress } from '../farm/coordinator.ts';
+
+export const variantHandlers: AreaHandlers<'variants.render'> = {
+  'variants.render': async (p, ctx) => {
+    const { workspace } = ctx;
+    const gen = workspace.requireGenerator();
+    const used = [...new Set(p.settings.flatMap((s) => Object.keys(s.strengths)))].map((id) => workspace.direction(id));
+    const recipe = { format: 'plumbline.variant-recipe' as const, version: 1 as const, name: p.name, seeds: p.seeds, psi: p.psi, settings: p.settings.map((s) => ({ label: s.label, strengths: Object.fromEntries(Object.entries(s.strengths).map(([id, v]) => [workspace.direction(id).name, v])) })) };
+    const out = resolve(p.out);
+    // On a farm: units go to its workers; per-worker figures ride on the progress events.
+    const farm = workspace.farm.farm;
+    let workers: WorkerProgress[] | undefined;
+    const job = farm
+      ? renderVariantsOnFarm(farm, gen, recipe, used, out, { ...modelLocation(gen), isCancelled: () => ctx.signal.aborted, onProgress: (r) => (workers = r.workers) })
+      : renderVariants(gen, recipe, used, out);
+    const done = await driveSteps(withWorkers(job, () => workers), ctx);
+    return { out, rendered: done.rendered, reused: done.reused, contactSheet: new Uint8Array(readFileSync(join(out, 'contact-sheet.png'))) };
+  },
+};

@@ -1,0 +1,182 @@
+// The engine's state, one per process (and one per CLI command): the open generator, the
+// direction registry (loaded, discovered, kept) and the open project. Handlers and the CLI work
+// through it, so a direction's σ, its edit and its saving to the project happen in one place.
+import { FarmSession } from './farm/session.ts';
+import { existsSync, readFileSync } from 'node:fs';
+import { basename, dirname, join, resolve } from 'node:path';
+import { fileURLToPath } from 'node:url';
+import { PlumblineError } from '../core/errors.ts';
+import { readDirections, parseDirectionsMeta, type Direction } from '../core/directions.ts';
+import { directionEdit, type EditVector } from '../core/latent.ts';
+import type { DirectionInfo, Params, Outcome } from '../protocol/messages.ts';
+import { Generator } from './generator.ts';
+import { defaultThreads } from './sessions.ts';
+import { Project, vectorHash } from './project.ts';
+
+/** The bundled demo generator's card (PLUMBLINE_RESOURCES overrides where resources live, as in a packaged app). */
+export function demoCardPath(): string {
+  const fromEnv = process.env.PLUMBLINE_RESOURCES;
+  const root = fromEnv ? resolve(fromEnv) : resolve(dirname(fileURLToPath(import.meta.url)), '..', '..', 'resources');
+  return join(root, 'demo', 'sigil.card.json');
+}
+
+export interface LoadedDirection extends Direction {
+  id: string;
+  /** One strength unit in latent units (Generator.sigmaOf). */
+  sigma: number;
+  /** Candidates from discovery stay unkept until the user keeps them. */
+  kept: boolean;
+}
+
+export class Workspace {
+  readonly threads: number;
+  /** The render farm audits and variant sets go to while connected (farm.connect); none by default. */
+  readonly farm = new FarmSession();
+  #generator: Generator | null = null;
+  #directions = new Map<string, LoadedDirection>();
+  #nextDirection = 1;
+  #project: Project | null = null;
+
+  constructor(options: { threads?: number } = {}) {
+    this.threads = options.threads ?? defaultThreads();
+  }
+
+  get generator(): Generator | null {
+    return this.#generator;
+  }
+
+  requireGenerator(): Generator {
+    if (!this.#generator) throw new PlumblineError('no-model', 'no generator is open; open one first (the demo loads with model.openDemo)');
+    return this.#generator;
+  }
+
+  /** The open project; `why` completes "… needs an open project". */
+  requireProject(why: string): Project {
+    if (!this.#project) throw new PlumblineError('bad-request', `${why} needs an open project`);
+    return this.#project;
+  }
+
+  get project(): Project | null {
+    return this.#project;
+  }
+
+  /** Loads a generator, releasing the previous one only once the new one is ready. */
+  async openModel(path: string, mappingPath?: string) {
+    const next = await Generator.open(path, { threads: this.threads, mappingPath });
+    const previous = this.#generator;
+    this.#generator = next;
+    this.#directions.clear();
+    if (previous) await previous.dispose();
+    return next.info;
+  }
+
+  /** Reads a directions file (.npy with an optional .json sidecar, or the sidecar itself). */
+  openDirections(path: string): Outcome<'directions.open'> {
+    const gen = this.requireGenerator();
+    const file = resolve(path);
+    const npyFile = file.endsWith('.json') ? null : file;
+    let metaFile = file.endsWith('.json') ? file : file.replace(/\.npy$/i, '.json');
+    let meta = null;
+    if (existsSync(metaFile)) {
+      meta = parseDirectionsMeta(readFileSync(metaFile, 'utf8'), metaFile);
+    } else metaFile = '';
+    const dataFile = npyFile ?? (meta?.file ? resolve(dirname(file), meta.file) : file.replace(/\.json$/i, '.npy'));
+    if (!existsSync(dataFile)) throw new PlumblineError('file-missing', `${dataFile}: directions array not found`, { file: dataFile });
+    const dirs = readDirections(new Uint8Array(readFileSync(dataFile)), dataFile, meta, gen.layout, basename(dataFile, '.npy'));
+    const loaded = dirs.map((d) => this.register(d, true));
+    for (const d of loaded) this.save(d);
+    return { file: dataFile, directions: loaded.map((d) => this.info(d)) };
+  }
+
+  /** Adds a direction with its σ; a kept direction replaces the kept one of the same name. */
+  register(d: Direction, kept: boolean): LoadedDirection {
+    const gen = this.requireGenerator();
+    const existing = this.kept().find((x) => kept && x.name === d.name);
+    const entry: LoadedDirection = { ...d, id: existing?.id ?? `d${this.#nextDirection++}`, sigma: gen.sigmaOf(d.vector, d.layers), kept };
+    this.#directions.set(entry.id, entry);
+    return entry;
+  }
+
+  /** By id, or by name. */
+  direction(id: string): LoadedDirection {
+    const d = this.#directions.get(id) ?? [...this.#directions.values()].find((x) => x.name === id);
+    if (!d) throw new PlumblineError('bad-request', `unknown direction '${id}'; loaded: ${[...this.#directions.values()].map((x) => x.name).join(', ') || 'none'}`);
+    return d;
+  }
+
+  kept(): LoadedDirection[] {
+    return [...this.#directions.values()].filter((d) => d.kept);
+  }
+
+  keep(id: string, name: string): LoadedDirection {
+    const d = this.direction(id);
+    if (this.kept().some((x) => x.name === name && x.id !== d.id)) throw new PlumblineError('bad-request', `a kept direction is already named '${name}'`);
+    d.name = name;
+    d.kept = true;
+    this.save(d);
+    return d;
+  }
+
+  /** `base`, or base2, base3… if a kept direction already has that name. */
+  uniqueName(base: string): string {
+    let name = base;
+    for (let k = 2; this.kept().some((x) => x.name === name); k++) name = `${base}${k}`;
+    return name;
+  }
+
+  /** Slider settings as latent edits (strength in σ units of each direction). */
+  edits(list: { direction: string; strength: number }[]): EditVector[] {
+    return list.map((e) => directionEdit(this.direction(e.direction), e.strength));
+  }
+
+  /** Writes a kept direction into the open project, if there is one. */
+  save(d: LoadedDirection): void {
+    if (d.kept) this.#project?.saveDirection(d, this.requireGenerator().layout.space);
+  }
+
+  info(d: LoadedDirection): DirectionInfo {
+    return {
+      id: d.id,
+      name: d.name,
+      target: d.target,
+      layers: d.layers,
+      sigma: d.sigma,
+      notes: d.notes,
+      method: d.method,
+      source: d.source,
+      kept: d.kept,
+      signOff: this.#project ? this.#project.signOff(d.name, vectorHash(d.vector, d.layers)) : null,
+    };
+  }
+
+  /** Opens (or creates) a project folder for this generator. */
+  openProject(p: Params<'project.open'>): Outcome<'project.open'> {
+    const gen = this.requireGenerator();
+    const project = Project.open(p.path, p.create, { name: gen.info.name, fingerprint: gen.info.fingerprint });
+    this.#project = project;
+    const created = p.create && project.doc.directions.length === 0;
+    if (created) {
+      // A new project starts with the directions already on the workbench.
+      for (const d of this.kept()) this.save(d);
+    } else {
+      for (const d of this.kept()) this.#directions.delete(d.id);
+      for (const d of project.loadDirections(gen.layout)) this.register(d, true);
+    }
+    const fingerprint = project.doc.generator?.fingerprint ?? null;
+    return {
+      path: project.dir,
+      name: project.doc.name,
+      generatorFingerprint: fingerprint,
+      generatorMatches: fingerprint === gen.info.fingerprint,
+      directions: this.kept().map((d) => this.info(d)),
+      audits: project.audits(),
+      ui: project.doc.ui,
+    };
+  }
+
+  async dispose(): Promise<void> {
+    await this.farm.disconnect();
+    await this.#generator?.dispose();
+    this.#generator = null;
+  }
+}
