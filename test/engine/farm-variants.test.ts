@@ -65,6 +65,8 @@ test('a variant set on two farm workers equals the one-machine set byte for byte
 });
 
 test('an ACL user limited to the farm keys can run a farm; a wrong password is refused clearly', { skip: skip ?? false }, async () => {
+  // Only this test's worker serves the farm now.
+  for (const w of workers.splice(0)) await w.kill();
   // A user that may touch only Plumbline's and BullMQ's keys (redis.io ACL: ~pattern, &channels, +@all).
   const admin = new Redis({ host: '127.0.0.1', port: redis.port, password: redis.password });
   await admin.call('ACL', 'SETUSER', 'renderer', 'on', '>render-pass', '~plumbline*', '~bull:*', '&*', '+@all');
