@@ -14,6 +14,7 @@ import { parseSeeds } from './seeds.ts';
 import { addLabCommands } from './lab-commands.ts';
 import { addPackCommands } from './pack-commands.ts';
 import { addLocateCommand } from './locate-command.ts';
+import { addFarmCommands } from './farm-commands.ts';
 
 /** Bad command-line input found after parsing (commander prints its own parse errors). */
 class UsageError extends Error {}
@@ -135,6 +136,7 @@ export function buildProgram(): Command {
   addLabCommands(program, ctx, number, integer);
   addPackCommands(program, ctx);
   addLocateCommand(program, ctx, integer);
+  addFarmCommands(program, ctx, integer);
   return program;
 }
 

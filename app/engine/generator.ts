@@ -59,6 +59,32 @@ function readBytes(file: string, what: string, maxBytes = READ_LIMITS.modelBytes
   return readRegularFile(file, what, maxBytes);
 }
 
+/** The generator fingerprint: SHA-256 over the synthesis, mapping and card bytes, each with its role and length. */
+function fingerprintBytes(synthBytes: Uint8Array, mapBytes: Uint8Array | null, cardBytes: Uint8Array | null | undefined): string {
+  const hash = createHash('sha256');
+  hash.update('plumbline-fingerprint-v1\0');
+  const part = (role: string, bytes: Uint8Array) => {
+    hash.update(`${role}\0${bytes.length}\0`);
+    hash.update(bytes);
+  };
+  part('synthesis', synthBytes);
+  if (mapBytes) part('mapping', mapBytes);
+  if (cardBytes) part('card', cardBytes);
+  return hash.digest('hex');
+}
+
+/**
+ * The fingerprint of a generator on disk without loading it (no inference session), and the
+ * files it is made of — what a farm worker checks before it loads anything.
+ */
+export function fingerprintModel(path: string, mappingPath?: string): { fingerprint: string; files: string[] } {
+  const file = resolve(path);
+  const r = file.toLowerCase().endsWith('.json') ? resolveCard(file) : resolveBare(file, mappingPath ? resolve(mappingPath) : null);
+  const synthBytes = readBytes(r.synthesisFile, 'synthesis model');
+  const mapBytes = r.mappingFile ? readBytes(r.mappingFile, 'mapping network') : null;
+  return { fingerprint: fingerprintBytes(synthBytes, mapBytes, r.cardBytes), files: [r.cardFile, r.synthesisFile, r.mappingFile].filter((f): f is string => !!f) };
+}
+
 export class Generator {
   #synthesis: ort.InferenceSession | null;
   #mapping: ort.InferenceSession | null;
@@ -122,16 +148,7 @@ export class Generator {
       throw err;
     }
 
-    const hash = createHash('sha256');
-    hash.update('plumbline-fingerprint-v1\0');
-    const part = (role: string, bytes: Uint8Array) => {
-      hash.update(`${role}\0${bytes.length}\0`);
-      hash.update(bytes);
-    };
-    part('synthesis', synthBytes);
-    if (mapBytes) part('mapping', mapBytes);
-    if (r.cardBytes) part('card', r.cardBytes);
-    const fingerprint = hash.digest('hex');
+    const fingerprint = fingerprintBytes(synthBytes, mapBytes, r.cardBytes);
 
     const gen = new Generator(r, synthesis, mapping, {} as ModelInfo, new Float32Array(r.layout.size), new Float32Array(0), limits);
     try {

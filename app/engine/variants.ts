@@ -8,7 +8,7 @@ import { createHash } from 'node:crypto';
 import { z } from 'zod';
 import { decode } from 'fast-png';
 import { writeFileAtomic } from '../core/atomic-write.ts';
-import { encodePng, encodePngAsync, type RgbaImage } from '../core/image.ts';
+import { encodePng, type RgbaImage } from '../core/image.ts';
 import { applyEdits, directionEdit } from '../core/latent.ts';
 import { PlumblineError } from '../core/errors.ts';
 import { parseJsonFile } from '../core/json-file.ts';
@@ -16,6 +16,7 @@ import { chosenOutputFolder, readTextFile } from '../core/path-policy.ts';
 import { variantLabelSchema } from '../protocol/names.ts';
 import { drawText, GLYPH_HEIGHT } from '../core/label-font.ts';
 import type { Generator } from './generator.ts';
+import { sharedPngWriter } from './png-writer.ts';
 import { checkUse, useViolations, type Override, type ReviewStatus, type Violation } from '../core/signoff-rules.ts';
 
 export const recipeSchema = z.object({
@@ -69,85 +70,184 @@ const previousSchema = z.object({
   images: z.array(z.object({ file: z.string(), sha256: z.string(), key: z.string().optional() })).default([]),
 });
 
+/** One work unit of a variant set: one setting over a chunk of the recipe's seeds (indices into `seeds`). */
+export interface VariantUnit {
+  setting: number;
+  seeds: number[];
+}
+
+/** An image finished and written: what the manifest records, plus pixels for the contact sheet. */
+export interface VariantImage {
+  file: string;
+  seed: number;
+  setting: string;
+  sha256: string;
+  thumb?: RgbaImage;
+}
+
+/** Renders units and yields each unit's written images as they finish (in any order). */
+export type VariantUnitRunner = (units: VariantUnit[]) => AsyncGenerator<VariantImage[], void, void>;
+
+export const variantFile = (label: string, seed: number) => `${label}/seed-${String(seed).padStart(6, '0')}.png`;
+/** Contact sheets show the first eight seeds of each setting. */
+const SHEET_SEEDS = 8;
+
+/** What a variant-set run answers: the manifest and how many images were rendered, kept, and rendered again over changed entries. */
+export interface VariantSetResult {
+  manifest: object;
+  rendered: number;
+  reused: number;
+  replaced: number;
+}
+
+/** Units in a fixed order: setting by setting, seeds in chunks of `perUnit` — the same on one machine and on a farm. */
+export function planVariantUnits(recipe: Recipe, perUnit: number): VariantUnit[] {
+  const units: VariantUnit[] = [];
+  recipe.settings.forEach((_, setting) => {
+    for (let at = 0; at < recipe.seeds.length; at += perUnit) units.push({ setting, seeds: recipe.seeds.slice(at, at + perUnit).map((_, k) => at + k) });
+  });
+  return units;
+}
+
 /**
- * Renders a recipe; yields progress between batches. An existing image is kept (resume) only when
- * its file matches its hash and its key matches this recipe's entry; otherwise it is rendered
- * again and counted as replaced.
+ * Refuses unknown directions; then the use rules (app/core/signoff-rules.ts, shared with the engine
+ * host and apply): unapproved, rejected or out-of-range settings need a written reason.
  */
-export async function* renderVariants(gen: Generator, recipe: Recipe, directions: VariantDirection[], outFolder: string, options: VariantOptions = {}): AsyncGenerator<{ done: number; total: number; label: string }, { manifest: object; rendered: number; reused: number; replaced: number }, void> {
-  const out = chosenOutputFolder(outFolder, 'the variant-set folder');
+export function checkRecipe(recipe: Recipe, directions: VariantDirection[], options: VariantOptions = {}): { forced: Violation[]; reason: string | null } {
   const byName = new Map(directions.map((d) => [d.name, d]));
   for (const s of recipe.settings)
     for (const name of Object.keys(s.strengths)) if (!byName.has(name)) throw new PlumblineError('bad-request', `setting '${s.label}' uses unknown direction '${name}'; available: ${[...byName.keys()].join(', ')}`);
-  // The rules shared with the engine host and apply (app/core/signoff-rules.ts).
-  const decision = options.forced ?? checkUse(useViolations(recipe.settings, directions.map((d) => ({ name: d.name, status: d.status ?? null, safeRange: d.safeRange ?? null }))), options.force ?? null, 'pass --force --reason "…" to render anyway (recorded in the manifest)');
+  return options.forced ?? checkUse(useViolations(recipe.settings, directions.map((d) => ({ name: d.name, status: d.status ?? null, safeRange: d.safeRange ?? null }))), options.force ?? null, 'pass --force --reason "…" to render anyway (recorded in the manifest)');
+}
+
+/** The pixels of one unit: its seeds' codes, the setting's edits, one synthesis call. */
+export async function renderVariantUnit(gen: Generator, recipe: Recipe, directions: VariantDirection[], unit: VariantUnit): Promise<{ file: string; seed: number; image: RgbaImage }[]> {
+  const byName = new Map(directions.map((d) => [d.name, d]));
+  const setting = recipe.settings[unit.setting];
+  const seeds = unit.seeds.map((i) => recipe.seeds[i]);
+  const codes = await gen.codesForSeeds(seeds, recipe.psi);
+  applyEdits(codes, gen.layout, Object.entries(setting.strengths).map(([name, strength]) => directionEdit(byName.get(name)!, strength)));
+  const r = await gen.synthesize(codes, seeds.length);
+  return seeds.map((seed, k) => ({ file: variantFile(setting.label, seed), seed, image: gen.toRgba(r.images, k) }));
+}
+
+/**
+ * Renders a recipe on this machine; yields progress between batches. An existing image is kept
+ * (resume) only when its file matches its hash and its key matches this recipe's entry; otherwise
+ * it is rendered again and counted as replaced.
+ */
+export async function* renderVariants(gen: Generator, recipe: Recipe, directions: VariantDirection[], outFolder: string, options: VariantOptions = {}): AsyncGenerator<{ done: number; total: number; label: string }, VariantSetResult, void> {
+  const out = chosenOutputFolder(outFolder, 'the variant-set folder');
+  return yield* runVariantSet({ name: gen.info.name, fingerprint: gen.info.fingerprint, centreFromCard: !!gen.card?.truncation.centre }, recipe, directions, out, gen.batchSize, localUnitRunner(gen, recipe, directions, out), options);
+}
+
+/** Renders units one batch at a time; PNG encoding and writing run on the pool's threads meanwhile. */
+export function localUnitRunner(gen: Generator, recipe: Recipe, directions: VariantDirection[], out: string): VariantUnitRunner {
+  return async function* (units) {
+    const pool = sharedPngWriter();
+    const inFlight: Promise<VariantImage[]>[] = [];
+    try {
+      for (const unit of units) {
+        const images = await renderVariantUnit(gen, recipe, directions, unit);
+        const label = recipe.settings[unit.setting].label;
+        inFlight.push(Promise.all(images.map(async ({ file, seed, image }) => {
+          const thumb = recipe.seeds.indexOf(seed) < SHEET_SEEDS ? { ...image, data: image.data.slice() } : undefined;
+          const w = await pool.write(image, join(out, file), { durable: false });
+          return { file, seed, setting: label, sha256: w.sha256, thumb };
+        })));
+        // Keep at most about two batches of images in flight.
+        while (inFlight.length > 2) yield await inFlight.shift()!;
+      }
+      while (inFlight.length) yield await inFlight.shift()!;
+    } finally {
+      // On cancel or error, writes already queued still settle (each file is whole or absent).
+      await Promise.allSettled(inFlight);
+    }
+  };
+}
+
+/**
+ * The variant-set job around any unit runner (this machine or a farm): resume by hash, interim
+ * and final manifests, and the contact sheet. `perUnit` seeds per unit.
+ */
+export async function* runVariantSet(
+  generator: { name: string; fingerprint: string; centreFromCard: boolean },
+  recipe: Recipe, directions: VariantDirection[], out: string, perUnit: number, runUnits: VariantUnitRunner, options: VariantOptions = {},
+): AsyncGenerator<{ done: number; total: number; label: string }, VariantSetResult, void> {
+  const decision = checkRecipe(recipe, directions, options);
+  const byName = new Map(directions.map((d) => [d.name, d]));
   const manifestFile = join(out, 'manifest.json');
   // A manifest.json that is not ours is someone else's file: never overwrite it.
   const previous = existsSync(manifestFile) ? parseJsonFile(previousSchema, readTextFile(manifestFile, 'variant-set manifest'), manifestFile, 'not a variant-set manifest (choose another folder)', 'would-overwrite') : null;
-  if (previous?.generator && previous.generator.fingerprint !== gen.info.fingerprint) throw new PlumblineError('bad-request', `${manifestFile}: this folder holds variants of another generator; choose another --out`);
+  if (previous?.generator && previous.generator.fingerprint !== generator.fingerprint) throw new PlumblineError('bad-request', `${manifestFile}: this folder holds variants of another generator; choose another --out`);
   const known = new Map(previous?.images.map((i) => [i.file, i]) ?? []);
-  const per = gen.layout.layers * gen.layout.size;
-  const base = await gen.codesForSeeds(recipe.seeds, recipe.psi);
-  const jobs = recipe.settings.flatMap((s) => recipe.seeds.map((seed, i) => ({ s, seed, i, file: `${s.label}/seed-${String(seed).padStart(6, '0')}.png`, key: imageKey(gen.info.fingerprint, seed, recipe.psi, s.strengths, byName) })));
+  // Each image's key: what determines its pixels (imageKey); resume checks it beside the file hash.
+  const keyOf = new Map(recipe.settings.flatMap((s) => recipe.seeds.map((seed) => [variantFile(s.label, seed), imageKey(generator.fingerprint, seed, recipe.psi, s.strengths, byName)] as const)));
   const images: { file: string; seed: number; setting: string; sha256: string; key: string }[] = [];
   const thumbs = new Map<string, RgbaImage>();
+  const total = recipe.seeds.length * recipe.settings.length;
   let rendered = 0;
   let reused = 0;
   let replaced = 0;
-  const writes: Promise<void>[] = [];
   const writeManifest = (complete: boolean) =>
     writeFileAtomic(manifestFile, JSON.stringify({
       format: 'plumbline.variants', version: 1, recipe: recipe.name, complete, createdAt: new Date().toISOString(),
-      generator: { name: gen.info.name, fingerprint: gen.info.fingerprint },
-      truncation: { psi: recipe.psi, centre: gen.card?.truncation.centre ? 'model card' : 'estimated' },
+      generator: { name: generator.name, fingerprint: generator.fingerprint },
+      truncation: { psi: recipe.psi, centre: generator.centreFromCard ? 'model card' : 'estimated' },
       seedConvention: 'plumbline latentForSeed (xoshiro128** via splitmix32, stream 0x5eed, polar Box–Muller)',
       latents: recipe.seeds.map((seed) => ({ seed })),
       directions: directions.map((d) => ({ name: d.name, sha256: hashOf(d), sigma: d.sigma, layers: d.layers })),
       settings: recipe.settings,
       forced: decision.forced.length ? { reason: decision.reason, settings: decision.forced } : null,
       images,
-    }, null, 2) + '\n');
-  for (let at = 0; at < jobs.length; at += gen.batchSize) {
-    const chunk = jobs.slice(at, at + gen.batchSize);
-    const keep = (j: (typeof jobs)[number]) => {
-      const k = known.get(j.file);
-      return !!k && k.key === j.key && existsSync(join(out, j.file)) && sha(readFileSync(join(out, j.file))) === k.sha256;
-    };
-    const pending = chunk.filter((j) => !keep(j));
-    for (const j of pending) if (existsSync(join(out, j.file))) replaced++;
-    for (const j of chunk.filter((x) => !pending.includes(x))) {
-      images.push({ file: j.file, seed: j.seed, setting: j.s.label, sha256: known.get(j.file)!.sha256, key: j.key });
-      if (j.i < 8) {
-        const png = decode(readFileSync(join(out, j.file)));
-        thumbs.set(j.file, { width: png.width, height: png.height, data: new Uint8ClampedArray(png.data) });
+      // Interim manifests skip the fsync: a resumed run re-checks every image by hash anyway.
+    }, null, 2) + '\n', { durable: complete });
+  // Resume: images already on disk with their recorded hash and an unchanged key are kept; units
+  // shrink to what is missing; a file on disk that is not kept is rendered again (replaced).
+  const units: VariantUnit[] = [];
+  for (const unit of planVariantUnits(recipe, perUnit)) {
+    const label = recipe.settings[unit.setting].label;
+    const missing = unit.seeds.filter((i) => {
+      const file = variantFile(label, recipe.seeds[i]);
+      const path = join(out, file);
+      const k = known.get(file);
+      const key = keyOf.get(file)!;
+      if (!existsSync(path)) return true;
+      if (!k || k.key !== key) {
+        replaced++;
+        return true;
+      }
+      const bytes = readFileSync(path);
+      if (sha(bytes) !== k.sha256) {
+        replaced++;
+        return true;
+      }
+      images.push({ file, seed: recipe.seeds[i], setting: label, sha256: k.sha256, key });
+      if (i < SHEET_SEEDS) {
+        const png = decode(bytes);
+        thumbs.set(file, { width: png.width, height: png.height, data: new Uint8ClampedArray(png.data) });
       }
       reused++;
-    }
-    if (pending.length) {
-      const codes = new Float32Array(pending.length * per);
-      pending.forEach((j, k) => {
-        const row = base.slice(j.i * per, (j.i + 1) * per);
-        applyEdits(row, gen.layout, Object.entries(j.s.strengths).map(([name, strength]) => directionEdit(byName.get(name)!, strength)));
-        codes.set(row, k * per);
-      });
-      const r = await gen.synthesize(codes, pending.length);
-      pending.forEach((j, k) => {
-        const img = gen.toRgba(r.images, k);
-        if (j.i < 8) thumbs.set(j.file, img);
-        // Compression runs on zlib's threads while the next batch renders; writes follow.
-        writes.push(encodePngAsync(img).then((png) => {
-          writeFileAtomic(join(out, j.file), png, { durable: false });
-          images.push({ file: j.file, seed: j.seed, setting: j.s.label, sha256: sha(png), key: j.key });
-          rendered++;
-        }));
-      });
-    }
-    // Keep at most about two batches of images in flight.
-    if (writes.length > 2 * gen.batchSize) await Promise.all(writes.splice(0, writes.length - gen.batchSize));
-    writeManifest(false);
-    yield { done: Math.min(jobs.length, at + chunk.length), total: jobs.length, label: `rendering ${recipe.name}` };
+      return false;
+    });
+    if (missing.length) units.push({ setting: unit.setting, seeds: missing });
   }
-  await Promise.all(writes);
+  const runner = runUnits(units);
+  try {
+    for (;;) {
+      const step = await runner.next();
+      if (step.done) break;
+      for (const { thumb, ...image } of step.value) {
+        images.push({ ...image, key: keyOf.get(image.file)! });
+        if (thumb) thumbs.set(image.file, thumb);
+        rendered++;
+      }
+      writeManifest(false);
+      yield { done: rendered + reused, total, label: `rendering ${recipe.name}` };
+    }
+  } finally {
+    await runner.return();
+  }
   images.sort((a, b) => a.file.localeCompare(b.file));
   writeManifest(true);
   writeFileAtomic(join(out, 'contact-sheet.png'), encodePng(contactSheet(recipe, thumbs)));
@@ -173,8 +273,7 @@ function contactSheet(recipe: Recipe, thumbs: Map<string, RgbaImage>): RgbaImage
     const y = header + r * (cell + gap);
     drawText(data, width, height, s.label, 6, y + cell / 2 - GLYPH_HEIGHT, [79, 179, 161], 2);
     seeds.forEach((seed, c) => {
-      const file = `${s.label}/seed-${String(seed).padStart(6, '0')}.png`;
-      const img = thumbs.get(file);
+      const img = thumbs.get(variantFile(s.label, seed));
       if (!img) return;
       const f = img.width / cell;
       for (let yy = 0; yy < cell; yy++)

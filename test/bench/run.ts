@@ -22,10 +22,46 @@ import { FOUND_SSIM, FOUND_DELTA_E } from '../../app/core/search/match.ts';
 import type { FloatImage } from '../../app/core/reference-image.ts';
 
 const root = join(import.meta.dirname, '..', '..');
+/** `npm run bench -- variants audit`: only those sections (throughput, variants, farm, pack, preview, cold, audit, audit-scaling, locate). */
+// PLUMBLINE_BENCH_ONLY=locate (as before) is the same as `-- locate`.
+const only = process.env.PLUMBLINE_BENCH_ONLY ? [process.env.PLUMBLINE_BENCH_ONLY] : process.argv.slice(2);
+const want = (section: string) => only.length === 0 || only.includes(section);
 const THREADS = Number(process.env.PLUMBLINE_THREADS) || 1;
 const rows: [string, string, string, string][] = [];
 const median = (xs: number[]) => [...xs].sort((a, b) => a - b)[Math.floor(xs.length / 2)];
 const pct = (xs: number[], p: number) => [...xs].sort((a, b) => a - b)[Math.min(xs.length - 1, Math.floor(xs.length * p))];
+
+/** Bare session.run of the synthesis file: images/s at one batch size, `images` images per round, median of `rounds`. */
+async function bareRate(card: string, batch: number, images: number, rounds: number, threads = THREADS): Promise<number> {
+  const c = JSON.parse(readFileSync(card, 'utf8'));
+  const gen = await Generator.open(card, { threads: 1 });
+  const codes = await gen.codesForSeeds(Array.from({ length: batch }, (_, i) => i), 0.7);
+  const dims = [batch, gen.layout.layers, gen.layout.size];
+  await gen.dispose();
+  const bare = await ort.InferenceSession.create(join(card, '..', c.synthesis.file), { intraOpNumThreads: threads, interOpNumThreads: 1, executionMode: 'sequential', graphOptimizationLevel: 'all' });
+  try {
+    await bare.run({ [c.synthesis.latentInput]: new ort.Tensor('float32', codes, dims) });
+    const rates: number[] = [];
+    for (let r = 0; r < rounds; r++) {
+      const t = performance.now();
+      for (let n = 0; n < images; n += batch) await bare.run({ [c.synthesis.latentInput]: new ort.Tensor('float32', codes, dims) });
+      rates.push((Math.ceil(images / batch) * batch) / ((performance.now() - t) / 1000));
+    }
+    return median(rates);
+  } finally {
+    await bare.release();
+  }
+}
+
+/** The limit: the best bare configuration over batch sizes at the same thread count. */
+async function bestBare(card: string, batches: number[], images: number, rounds: number): Promise<{ batch: number; rate: number; text: string }> {
+  let best = { batch: 0, rate: 0 };
+  for (const batch of batches) {
+    const rate = await bareRate(card, batch, Math.max(images, batch), rounds);
+    if (rate > best.rate) best = { batch, rate };
+  }
+  return { ...best, text: `best bare ${best.rate.toFixed(1)} img/s (batch ${best.batch}, ${THREADS} thread${THREADS > 1 ? 's' : ''})` };
+}
 
 async function throughput(label: string, card: string, batch: number, perRound: number, rounds: number) {
   const gen = await Generator.open(card, { threads: THREADS });
@@ -56,7 +92,7 @@ async function throughput(label: string, card: string, batch: number, perRound: 
   }
   const e = median(engineRates);
   const b = median(bareRates);
-  rows.push([`${label}: engine vs bare session.run (batch ${batch}, ${THREADS} thread${THREADS > 1 ? 's' : ''})`, `${e.toFixed(1)} img/s`, `${b.toFixed(1)} img/s`, `${(e / b).toFixed(3)}× (target ≥ 0.95)`]);
+  rows.push([`${label}: engine vs bare session.run (batch ${batch}, ${THREADS} thread${THREADS > 1 ? 's' : ''}, both sides)`, `${e.toFixed(1)} img/s`, `${b.toFixed(1)} img/s`, `${(e / b).toFixed(3)}× (target ≥ 0.95)`]);
   // Bare single-image inference time, for the preview comparison.
   const one = await gen.codesForSeeds([3], 0.7);
   const singles: number[] = [];
@@ -67,7 +103,7 @@ async function throughput(label: string, card: string, batch: number, perRound: 
   }
   await bare.release();
   await gen.dispose();
-  return { single: median(singles), rate: b };
+  return { single: median(singles) };
 }
 
 /**
@@ -138,22 +174,92 @@ async function coldStart() {
   rows.push(['cold start: new engine process → first demo image', `median ${median(times).toFixed(0)} ms`, '', `(${times.map((t) => t.toFixed(0)).join(', ')} ms)`]);
 }
 
-/** Variant-set rendering (render, check, PNG, write, manifest) against the bare session.run rate. */
-async function variantRow(label: string, card: string, bareRate: number, seeds: number[], settings: number, batch: number) {
+/**
+ * Variant-set rendering (render, check, PNG, write, manifest) against bare session.run at the same
+ * batch size and thread count, measured just before and just after on the same number of images
+ * (the mean of the two, so drift on a shared machine affects both sides alike).
+ */
+async function variantRow(label: string, card: string, seeds: number[], settings: number, batch: number, limit: string) {
+  const images = seeds.length * settings;
+  const before = await bareRate(card, batch, images, 1);
   const gen = await Generator.open(card, { threads: THREADS });
   gen.batchSize = batch;
   const out = mkdtempSync(join(tmpdir(), 'plumbline-variants-'));
+  let rate = 0;
   try {
     const v = { name: 'bench', vector: new Float32Array(gen.layout.size).fill(1 / Math.sqrt(gen.layout.size)), layers: null, sigma: 1 };
     const recipe = { format: 'plumbline.variant-recipe' as const, version: 1 as const, name: 'bench', seeds, psi: 0.7, settings: Array.from({ length: settings }, (_, k) => ({ label: `s${k}`, strengths: { bench: k - 1 } })) };
+    // Warm the session (as the app's engine is when a job starts); the job itself is timed whole.
+    await gen.renderSeeds(seeds.slice(0, batch), 0.7, []);
     const t = performance.now();
     const job = renderVariants(gen, recipe, [v], out);
     for (;;) if ((await job.next()).done) break;
-    const rate = (seeds.length * settings) / ((performance.now() - t) / 1000);
-    rows.push([`${label}: variant set (render + PNG + write + manifest), batch ${batch}`, `${rate.toFixed(1)} img/s`, `${bareRate.toFixed(1)} img/s bare`, `${(rate / bareRate).toFixed(3)}× (target ≥ 0.9)`]);
+    rate = images / ((performance.now() - t) / 1000);
   } finally {
     rmSync(out, { recursive: true, force: true });
     await gen.dispose();
+  }
+  const after = await bareRate(card, batch, images, 1);
+  const bare = (before + after) / 2;
+  rows.push([`${label}: variant set (render + PNG + write + manifest), batch ${batch}, ${THREADS} thread${THREADS > 1 ? 's' : ''}`, `${rate.toFixed(1)} img/s`, `${bare.toFixed(1)} img/s bare, same batch (${limit})`, `${(rate / bare).toFixed(3)}× (target ≥ 0.9)`]);
+}
+
+/**
+ * The farm on the realistic generator, 1 thread per worker: one worker through Redis, two workers
+ * through Redis, and one engine on this machine with two threads, all on the same variant set
+ * (same batch, same units); and the queue's overhead per unit against the same set rendered by one
+ * engine with one thread. Workers are warmed with a small run first (generator loaded), as a
+ * standing farm would be.
+ */
+async function farmRows(card: string) {
+  const { startRedis } = await import('../helpers/redis.ts');
+  const { startWorker } = await import('../helpers/farm.ts');
+  const { Farm } = await import('../../app/engine/farm/coordinator.ts');
+  const { renderVariantsOnFarm } = await import('../../app/engine/farm/farm-variants.ts');
+  const batch = 8;
+  const seeds = Array.from({ length: 16 }, (_, i) => 200 + i);
+  const units = 4;
+  const images = seeds.length * 2;
+  const redis = await startRedis();
+  const workers: Awaited<ReturnType<typeof startWorker>>[] = [];
+  const gen = await Generator.open(card, { threads: 1 });
+  gen.batchSize = batch;
+  const v = { name: 'bench', vector: new Float32Array(gen.layout.size).fill(1 / Math.sqrt(gen.layout.size)), layers: null, sigma: 1 };
+  const recipe = (name: string, list: number[]) => ({ format: 'plumbline.variant-recipe' as const, version: 1 as const, name, seeds: list, psi: 0.7, settings: [{ label: 'a', strengths: { bench: -1 } }, { label: 'b', strengths: { bench: 1 } }] });
+  const timed = async (job: AsyncGenerator<unknown, unknown, void>) => {
+    const t = performance.now();
+    for (;;) if ((await job.next()).done) break;
+    return (performance.now() - t) / 1000;
+  };
+  const farm = await Farm.connect(redis.url);
+  const out = () => mkdtempSync(join(tmpdir(), 'plumbline-farm-bench-'));
+  const onFarm = async (name: string, list: number[]) => timed(renderVariantsOnFarm(farm, gen, recipe(name, list), [v], out(), { modelPath: card }));
+  try {
+    workers.push(await startWorker(redis.url, 'one'));
+    await onFarm('warm1', seeds.slice(0, batch));
+    const one = await onFarm('one', seeds);
+    workers.push(await startWorker(redis.url, 'two'));
+    // Warm the second worker too: two units, one for each.
+    await onFarm('warm2', seeds);
+    const two = await onFarm('two', seeds);
+    for (const w of workers) await w.stop();
+    await gen.renderSeeds(seeds.slice(0, batch), 0.7, []);
+    const here1 = await timed(renderVariants(gen, recipe('here1', seeds), [v], out()));
+    const gen2 = await Generator.open(card, { threads: 2 });
+    gen2.batchSize = batch;
+    await gen2.renderSeeds(seeds.slice(0, batch), 0.7, []);
+    const here2 = await timed(renderVariants(gen2, recipe('here2', seeds), [v], out()));
+    await gen2.dispose();
+    const rate = (sec: number) => `${(images / sec).toFixed(2)} img/s`;
+    rows.push([`farm, realistic 256², ${images} images in ${units} units of ${batch}: two workers via Redis vs one worker via Redis (1 thread each)`, rate(two), rate(one), `${(one / two).toFixed(3)}× (2 cores: approaches 2)`]);
+    rows.push([`farm: two workers via Redis (1 thread each) vs one engine here with 2 threads, same set and batch`, rate(two), rate(here2), `${(here2 / two).toFixed(3)}×`]);
+    const overhead = (one - here1) / units;
+    rows.push([`farm: queue overhead per unit (one worker via Redis − one engine here, 1 thread)`, `${(overhead * 1000).toFixed(0)} ms per unit`, `unit ≈ ${(here1 / units).toFixed(2)} s`, `${((100 * overhead) / (here1 / units)).toFixed(1)}% (target ≤ 5% for units ≥ 2 s)`]);
+  } finally {
+    for (const w of workers) await w.kill();
+    await farm.close();
+    await gen.dispose();
+    await redis.stop();
   }
 }
 
@@ -184,7 +290,7 @@ async function packRow() {
 }
 
 /** Runs one audit in a fresh process (so peak memory is its own) and returns its figures. */
-function auditChild(probes: number, directions: number, step: number, distance = 'ssim'): Promise<{ ms: number; inRunMs: number; images: number; maxRssMb: number }> {
+function auditChild(probes: number, directions: number, step: number, distance = 'ssim'): Promise<{ ms: number; inRunMs: number; images: number; bare: { rate: number; batch: number }; maxRssMb: number }> {
   return new Promise((done, fail) => {
     const child = fork(join(root, 'test', 'bench', 'audit-child.ts'), [String(probes), String(directions), String(step), distance], { execArgv: ['--import', 'tsx'], stdio: ['ignore', 'pipe', 'inherit', 'ipc'], env: { ...process.env, PLUMBLINE_THREADS: String(THREADS) } });
     let out = '';
@@ -193,12 +299,17 @@ function auditChild(probes: number, directions: number, step: number, distance =
   });
 }
 
-async function auditRows(bareRate: number) {
+async function auditRows(limit: string) {
   for (const distance of ['ssim', 'l2']) {
     const r = await auditChild(64, 2, 0.5, distance);
     const rate = r.images / (r.ms / 1000);
-    rows.push([`audit throughput, 64 probes × 2 directions × 9 strengths, path length ${distance}`, `${rate.toFixed(0)} img/s (${r.images} rendered + scored)`, `${bareRate.toFixed(0)} img/s bare`, `${(rate / bareRate).toFixed(3)}× (target ≥ 0.9)`]);
+    // The bare side runs in the audit's own process at its batch size and thread count.
+    rows.push([`audit throughput, 64 probes × 2 directions × 9 strengths, path length ${distance}, batch ${r.bare.batch}, ${THREADS} thread${THREADS > 1 ? 's' : ''}`, `${rate.toFixed(0)} img/s (${r.images} rendered + scored)`, `${r.bare.rate.toFixed(0)} img/s bare, same batch and process (${limit})`, `${(rate / r.bare.rate).toFixed(3)}× (target ≥ 0.9)`]);
   }
+}
+
+/** Audit memory at growing probe counts and time linearity (section 'audit-scaling'). */
+async function auditScalingRows() {
   const mem: [number, number][] = [];
   for (const probes of [64, 256, 1024]) mem.push([probes, (await auditChild(probes, 2, 1)).maxRssMb]);
   const lo = Math.min(...mem.map((m) => m[1]));
@@ -305,32 +416,28 @@ async function locateLarge(card: string, budget: number) {
   }
 }
 
-if (process.env.PLUMBLINE_BENCH_ONLY === 'locate') {
-  // Only the locate rows (PLUMBLINE_BENCH_ONLY=locate npm run bench).
-  await locateThroughput('demo 128²', demoCardPath(), 700);
-  await locateTimeToMatch();
-  const dir = mkdtempSync(join(tmpdir(), 'plumbline-bench-'));
-  try {
-    await locateLarge(authorLarge(dir).card, 220);
-  } finally {
-    rmSync(dir, { recursive: true, force: true });
-  }
-} else {
-  const demo = await throughput('demo 128²', demoCardPath(), 16, 256, 15);
+const demoLimit = want('variants') || want('audit') ? (await bestBare(demoCardPath(), [1, 4, 8, 16, 32, 64], 256, 3)).text : '';
+const demo = want('throughput') || want('preview') ? await throughput('demo 128²', demoCardPath(), 16, 256, 15) : null;
+if (want('throughput') || want('variants') || want('farm') || want('locate')) {
   const dir = mkdtempSync(join(tmpdir(), 'plumbline-bench-'));
   try {
     const large = authorLarge(dir);
-    const big = await throughput(`realistic 256², ${(large.parameters / 1e6).toFixed(1)} M params`, large.card, 4, 8, 3);
-    await variantRow('realistic 256²', large.card, big.rate, [1, 2, 3, 4], 2, 4);
-    await locateLarge(large.card, 220);
+    const label = `realistic 256², ${(large.parameters / 1e6).toFixed(1)} M params`;
+    if (want('throughput')) await throughput(label, large.card, 4, 8, 3);
+    if (want('farm')) await farmRows(large.card);
+    if (want('locate')) await locateLarge(large.card, 220);
+    if (want('variants')) await variantRow('realistic 256²', large.card, Array.from({ length: 8 }, (_, i) => i + 1), 2, 4, (await bestBare(large.card, [1, 2, 4, 8], 8, 2)).text);
   } finally {
     rmSync(dir, { recursive: true, force: true });
   }
-  await variantRow('demo 128²', demoCardPath(), demo.rate, Array.from({ length: 64 }, (_, i) => i), 4, 16);
-  await packRow();
-  await previewLatency(demo.single);
-  await coldStart();
-  await auditRows(demo.rate);
+}
+if (want('variants')) await variantRow('demo 128²', demoCardPath(), Array.from({ length: 64 }, (_, i) => i), 4, 16, demoLimit);
+if (want('pack')) await packRow();
+if (want('preview')) await previewLatency(demo!.single);
+if (want('cold')) await coldStart();
+if (want('audit')) await auditRows(demoLimit);
+if (want('audit-scaling')) await auditScalingRows();
+if (want('locate')) {
   await locateThroughput('demo 128²', demoCardPath(), 700);
   await locateTimeToMatch();
 }

@@ -20,6 +20,7 @@ import { SsimDistanceModel } from '../distance-model.ts';
 import { groundTruthMetrics } from '../lab.ts';
 import { measureAttributeSpread, sampleProbes } from './probes.ts';
 import { measureDirection, measureNullBaseline, measurePair, pairDistances, renderWorstProbes, type DirectionRun, type MeasureContext } from './measure.ts';
+import type { DirectionMeasurements } from '../../core/audit/statistics.ts';
 import type { AuditDirection as Direction } from '../../core/audit/plan.ts';
 import type { Tick } from './probes.ts';
 
@@ -34,7 +35,15 @@ export interface AuditModels {
   scorers?: ScorerModel[];
   /** Feature model for the 'features' path-length distance. */
   features?: ScorerModel;
+  /**
+   * Renders and scores all directions and the null baseline elsewhere (a farm,
+   * app/engine/farm/audit-units.ts) and returns one run per direction and one list of
+   * measurements per null group, in order; by default each is measured here, in turn.
+   */
+  measure?: DirectionsMeasurer;
 }
+
+export type DirectionsMeasurer = (context: MeasureContext, directions: AuditDirection[], nullContext: MeasureContext, nullGroups: AuditDirection[][], tick: (label: string) => AuditProgress) => AsyncGenerator<AuditProgress, { runs: DirectionRun[]; nulls: DirectionMeasurements[][] }, void>;
 
 export async function* runAudit(gen: Generator, directions: AuditDirection[], rawSettings: Partial<AuditSettings> = {}, models: AuditModels = {}): AsyncGenerator<AuditProgress, AuditReport, void> {
   const selection = rawSettings.attributes ?? 'default';
@@ -58,25 +67,26 @@ export async function* runAudit(gen: Generator, directions: AuditDirection[], ra
     const reports: DirectionReport[] = [];
     const runs: DirectionRun[] = [];
     const measured: { d: AuditDirection; stats: DirectionStatistics; summary: NullSummary }[] = [];
-    for (const d of directions) {
-      const run = yield* measureDirection(context, d, tick);
-      runs.push(run);
-      measured.push({ d, stats: directionStatistics(run.measurements, plan, names, plan.seeds, d.target, bootstrap), summary: nullSummary(run.measurements, plan) });
-    }
     // Null baseline (METHODS §10): K random unit directions for each layer rule in use, with the
     // same σ scaling, probes and edit rule, measured at ±reference and, for path length, at the
     // probes themselves (strength 0: the end-point form), which every audited direction also has.
     // The unedited renders and scores are shared (measureNullBaseline); K is the caller's
     // (the CLI's default is 16, the app's APP_NULL_DIRECTIONS) and every report states it.
-    const nulls = new Map<string, NullSummary[]>();
     const K = plan.settings.nullDirections;
-    if (K > 0) {
-      const nullPlan = { ...plan, grid: [-plan.reference, 0, plan.reference], pathLengthGrid: [0] };
-      const nullContext: MeasureContext = { ...context, plan: nullPlan };
-      for (const layers of layerRules(directions)) {
-        const runs = yield* measureNullBaseline(nullContext, nullDirections(gen, K, layers, plan.settings.seed), tick);
-        nulls.set(layerKey(layers), runs.map((r) => nullSummary(r, nullPlan)));
-      }
+    const nullPlan = { ...plan, grid: [-plan.reference, 0, plan.reference], pathLengthGrid: [0] };
+    const nullContext: MeasureContext = { ...context, plan: nullPlan };
+    const nullGroups = K > 0 ? layerRules(directions).map((layers) => ({ key: layerKey(layers), directions: nullDirections(gen, K, layers, plan.settings.seed) })) : [];
+    // On a farm every render-and-score unit (directions and null baseline) is sent at once.
+    const farmed = models.measure ? yield* models.measure(context, directions, nullContext, nullGroups.map((g) => g.directions), tick) : null;
+    for (const [k, d] of directions.entries()) {
+      const run = farmed ? farmed.runs[k] : yield* measureDirection(context, d, tick);
+      runs.push(run);
+      measured.push({ d, stats: directionStatistics(run.measurements, plan, names, plan.seeds, d.target, bootstrap), summary: nullSummary(run.measurements, plan) });
+    }
+    const nulls = new Map<string, NullSummary[]>();
+    for (const [g, group] of nullGroups.entries()) {
+      const runs = farmed ? farmed.nulls[g] : yield* measureNullBaseline(nullContext, group.directions, tick);
+      nulls.set(group.key, runs.map((r) => nullSummary(r, nullPlan)));
     }
     for (const { d, stats, summary } of measured) {
       const nullRow = K > 0 ? nullPercentiles(summary, names.indexOf(stats.target), nulls.get(layerKey(d.layers))!) : null;

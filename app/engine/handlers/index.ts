@@ -14,6 +14,7 @@ import { projectHandlers } from './project.ts';
 import { packHandlers } from './pack.ts';
 import { variantHandlers } from './variants.ts';
 import { locateHandlers } from './locate.ts';
+import { farmHandlers } from './farm.ts';
 
 export const handlers: { [M in Method]: Handler<M> } = {
   ...engineHandlers,
@@ -27,4 +28,5 @@ export const handlers: { [M in Method]: Handler<M> } = {
   ...packHandlers,
   ...variantHandlers,
   ...locateHandlers,
+  ...farmHandlers,
 };

@@ -4,9 +4,12 @@ import { readFileSync } from 'node:fs';
 import { join } from 'node:path';
 import { requestPath } from '../request-paths.ts';
 import { renderVariants } from '../variants.ts';
-import { driveSteps, type AreaHandlers } from './context.ts';
+import { driveSteps, withWorkers, type AreaHandlers } from './context.ts';
 import { checkUse, useViolations } from '../../core/signoff-rules.ts';
 import { directionUses } from '../project.ts';
+import { renderVariantsOnFarm } from '../farm/farm-variants.ts';
+import { modelLocation } from '../farm/session.ts';
+import type { WorkerProgress } from '../farm/coordinator.ts';
 
 export const variantHandlers: AreaHandlers<'variants.render'> = {
   'variants.render': async (p, ctx) => {
@@ -17,7 +20,13 @@ export const variantHandlers: AreaHandlers<'variants.render'> = {
     const out = requestPath(p.out, 'the variant-set folder');
     // The same rules as the CLI: unapproved, rejected or out-of-range settings need a written reason.
     const forced = checkUse(useViolations(recipe.settings, directionUses(workspace.project, used)), p.forceReason?.trim() ? { reason: p.forceReason } : null, 'render anyway only with a written reason (Force with a reason)');
-    const done = await driveSteps(renderVariants(gen, recipe, used, out, { forced }), ctx);
+    // On a farm: units go to its workers; per-worker figures ride on the progress events.
+    const farm = workspace.farm.farm;
+    let workers: WorkerProgress[] | undefined;
+    const job = farm
+      ? renderVariantsOnFarm(farm, gen, recipe, used, out, { ...modelLocation(gen), forced, isCancelled: () => ctx.signal.aborted, onProgress: (r) => (workers = r.workers) })
+      : renderVariants(gen, recipe, used, out, { forced });
+    const done = await driveSteps(withWorkers(job, () => workers), ctx);
     return { out, rendered: done.rendered, reused: done.reused, replaced: done.replaced, contactSheet: new Uint8Array(readFileSync(join(out, 'contact-sheet.png'))) };
   },
 };

@@ -1,7 +1,7 @@
 // State and intents of the lab screens: project, discovery, audit, repair and sign-off. Works
 // through the same engine client as the workbench (Studio) and keeps Studio's direction list
 // in step with the engine's.
-import { APP_NULL_DIRECTIONS, PROBE_LIMITS, type AuditWire, type DirectionInfo, type LockHolder, type Params, type Result, type VariantDraft, type WireImage } from '../../../app/protocol/messages.ts';
+import { APP_NULL_DIRECTIONS, PROBE_LIMITS, type AuditWire, type DirectionInfo, type EventData, type LockHolder, type Params, type Result, type VariantDraft, type WireImage } from '../../../app/protocol/messages.ts';
 import { EngineRequestError } from './engine.ts';
 import { desktop } from './bridge.ts';
 import { reportHtml } from './report.ts';
@@ -11,6 +11,8 @@ export type View = 'workbench' | 'discover' | 'audit' | 'signoff' | 'variants';
 type ProjectInfo = Result<'project.open'>;
 type Candidate = Extract<Result<'lab.discover'>, { cancelled: false }>['candidates'][number];
 type Thumb = Extract<Result<'audit.run'>, { cancelled: false }>['thumbnails'][number];
+/** A job's progress; `workers` on a farm: per-worker units, images and images/s. */
+export type JobProgress = { done: number; total: number; label: string; workers?: EventData<'job.progress'>['workers'] };
 export type Status = 'draft' | 'in-review' | 'approved' | 'rejected';
 
 const LAST_PROJECT_KEY = 'plumbline.lastProject';
@@ -97,7 +99,7 @@ export class Lab {
   confirmingDiscard = $state(false);
   /** Audit history files of the project (every audit is kept). */
   auditFiles = $state.raw<string[]>([]);
-  auditProgress = $state<{ done: number; total: number; label: string } | null>(null);
+  auditProgress = $state<JobProgress | null>(null);
   report = $state.raw<AuditWire | null>(null);
   previousReport = $state.raw<AuditWire | null>(null);
   thumbnails = $state.raw<Thumb[]>([]);
@@ -108,7 +110,7 @@ export class Lab {
   variantSeeds = $state('0-7');
   variantOut = $state('');
   variantSettings = $state<{ label: string; strengths: Record<string, number> }[]>([{ label: 'base', strengths: {} }]);
-  variantProgress = $state<{ done: number; total: number; label: string } | null>(null);
+  variantProgress = $state<JobProgress | null>(null);
   contactSheet = $state<string | null>(null);
   variantSummary = $state<string | null>(null);
   #variantRequest = 0;
@@ -120,6 +122,11 @@ export class Lab {
   enlarged = $state.raw<{ direction: string; seed: number; strength: number; attribute: string; leakage: number; before: string; after: string } | null>(null);
   /** Repair before/after on the same probes, by repaired direction name. */
   repairImages = $state.raw<Record<string, { parent: string; strength: number; rows: { seed: number; before: string; original: string; repaired: string }[] }>>({});
+  /** The render farm (Redis address); the password stays in memory here, or in the OS keychain on the desktop. */
+  farmUrl = $state('');
+  farmPassword = $state('');
+  farm = $state.raw<Result<'farm.status'> | null>(null);
+
   repairAgainst = $state<string[]>([]);
   holdOthers = $state(true);
   repairing = $state(false);
@@ -311,7 +318,7 @@ export class Lab {
       const pending = this.engine.request(
         'audit.run',
         { directions: ids, probes: this.probes, pinnedSeeds: this.studio.pinned, psi: this.studio.psi, seed: 1, referenceStrength: 2, leakPass: 0.2, leakFail: 0.5, nullDirections: APP_NULL_DIRECTIONS, combinations: 'all' },
-        (done, total, label) => (this.auditProgress = { done, total, label }),
+        (done, total, label, workers) => (this.auditProgress = { done, total, label, workers }),
       );
       this.#auditRequest = this.engine.lastRequestId;
       const r = await pending;
@@ -428,6 +435,36 @@ export class Lab {
     this.studio.scheduleSave();
   }
 
+  /** Connects the engine to a farm: audits and variant sets then render there. */
+  async connectFarm(): Promise<void> {
+    await this.#guard('Connecting to the farm', async () => {
+      this.farm = await this.engine.request('farm.connect', { url: this.farmUrl.trim(), password: this.farmPassword || undefined });
+      const d = desktop();
+      if (d?.setSecret) {
+        await d.setSetting('farmUrl', this.farmUrl.trim());
+        if (this.farmPassword) await d.setSecret('farmPassword', this.farmPassword);
+      }
+    });
+  }
+
+  async disconnectFarm(): Promise<void> {
+    await this.#guard('Leaving the farm', async () => {
+      this.farm = await this.engine.request('farm.disconnect', {});
+    });
+  }
+
+  async refreshFarm(): Promise<void> {
+    this.farm = await this.engine.request('farm.status', {});
+  }
+
+  /** The desktop app remembers the farm address and (sealed by the OS keychain) its password. */
+  async restoreFarmSetting(): Promise<void> {
+    const d = desktop();
+    if (!d?.getSecret) return;
+    this.farmUrl = String((await d.getSetting('farmUrl')) ?? '');
+    this.farmPassword = (await d.getSecret('farmPassword')) ?? '';
+  }
+
   async renderVariants(force = false): Promise<void> {
     if (this.variantSeedsProblem || this.variantNameProblem) return;
     const seeds = parseSeedList(this.variantSeeds);
@@ -436,7 +473,7 @@ export class Lab {
     this.variantProgress = { done: 0, total: 1, label: 'starting' };
     this.studio.busy = 'Rendering the variant set';
     try {
-      const pending = this.engine.request('variants.render', { name: this.variantName, seeds, psi: this.studio.psi, settings: this.variantSettings, out: this.variantOut, ...(force ? { forceReason: this.forceReason } : {}) }, (done, total, label) => (this.variantProgress = { done, total, label }));
+      const pending = this.engine.request('variants.render', { name: this.variantName, seeds, psi: this.studio.psi, settings: this.variantSettings, out: this.variantOut, ...(force ? { forceReason: this.forceReason } : {}) }, (done, total, label, workers) => (this.variantProgress = { done, total, label, workers }));
       this.#variantRequest = this.engine.lastRequestId;
       const r = await pending;
       if (r.cancelled) {
