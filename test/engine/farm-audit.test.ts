@@ -48,9 +48,14 @@ test('an audit on two farm workers equals the one-machine audit in every number'
   const a = JSON.parse(readFileSync(join(dir, 'local.json'), 'utf8'));
   const b = JSON.parse(readFileSync(join(dir, 'farm.json'), 'utf8'));
   assert.equal(a.directions.length, 3);
+  // The null baseline (16 random directions, rendered on the farm as its own units) is in both
+  // reports, and every direction is placed against it: the equality below covers those numbers too.
+  assert.equal(a.nullBaseline?.directions, 16);
+  for (const d of a.directions) assert.ok(d.nullBaseline, `${d.name} has no null-baseline percentiles`);
   assert.deepEqual(withoutTiming(b), withoutTiming(a));
-  // The table printed is the same too, and both workers rendered units (6 in all).
+  // The table printed is the same too, and the workers rendered every unit: 3 directions and one
+  // null group per layer rule in use, each in 2 probe chunks.
   assert.equal(farm.stdout.replace(/^wrote .*$/m, ''), local.stdout.replace(/^wrote .*$/m, ''));
   const units = [...farm.stderr.matchAll(/worker (left|right): (\d+) unit\(s\)/g)].map((m) => [m[1], Number(m[2])] as const);
-  assert.equal(units.reduce((s, [, n]) => s + n, 0), 6, farm.stderr);
+  assert.equal(units.reduce((s, [, n]) => s + n, 0), (3 + a.nullBaseline.rules.length) * 2, farm.stderr);
 });
