@@ -177,7 +177,7 @@ export function addPackCommands(program: Command, ctx: CliContext): void {
       if (decision.forced.length) process.stderr.write(`warning: forced outside the safe range: ${decision.forced.map((f) => `${f.direction}=${f.strength}`).join(', ')} (reason: ${decision.reason})\n`);
       const psi = o.psi === undefined ? gen.info.defaultPsi : Number(o.psi);
       const images: (({ seed: number } | { latent: number }) & { file: string; sha256: string })[] = [];
-      // Encoding and writing run on worker threads while the next batch renders.
+      // Conversion to 8 bits, encoding and writing run on worker threads while the next batch renders.
       const pool = sharedPngWriter();
       const writes: Promise<void>[] = [];
       try {
@@ -191,7 +191,7 @@ export function addPackCommands(program: Command, ctx: CliContext): void {
             const n = chunk[i];
             const slot = at + i;
             const file = `${latents ? 'latent' : 'seed'}-${String(n).padStart(6, '0')}.png`;
-            writes.push(pool.write(gen.toRgba(r.images, i), join(out, file)).then((w) => void (images[slot] = { ...(latents ? { latent: n } : { seed: n }), file, sha256: w.sha256 })));
+            writes.push(pool.writeFloat(gen.floatImage(r.images, i), join(out, file)).then((w) => void (images[slot] = { ...(latents ? { latent: n } : { seed: n }), file, sha256: w.sha256 })));
           }
           // At most about two batches in flight.
           if (writes.length > 2 * gen.batchSize) await Promise.all(writes.splice(0, writes.length - gen.batchSize));

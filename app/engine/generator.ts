@@ -378,6 +378,17 @@ export class Generator {
     }
   }
 
+  /**
+   * Image `index` of a float batch as its own copy, with what converting it to 8 bits needs: handed
+   * to the PNG writer's threads (png-writer.ts), so the conversion and its value checks happen off
+   * the render path with the same function and the same errors as toRgba.
+   */
+  floatImage(images: Float32Array, index: number): FloatImageSource {
+    const { width, height } = this.imageSize();
+    const per = width * height * 3;
+    return { values: images.slice(index * per, (index + 1) * per), width, height, layout: this.#r.imageLayout, range: this.range, origin: this.#r.synthesisFile };
+  }
+
   async renderSeeds(seeds: number[], psi: number, edits: EditVector[], onBatch?: (done: number) => Promise<void> | void): Promise<RenderOutput> {
     const codes = await this.codesForSeeds(seeds, psi);
     applyEdits(codes, this.layout, edits);
@@ -534,4 +545,15 @@ function checkMapping(r: Resolved, s: OnnxSummary): void {
   if (!out) throw new PlumblineError('card-invalid', `${file}: mapping output '${r.mappingOutput}' not found`, { file });
   const last = out.dims?.[out.dims.length - 1];
   if (fixed(last) && last !== r.layout.size) throw new PlumblineError('latent-size-mismatch', `${file}: the mapping network outputs ${last} values per code but the synthesis latent size is ${r.layout.size}`, { file });
+}
+
+/** One rendered image in the generator's float output, for conversion elsewhere (Generator.floatImage). */
+export interface FloatImageSource {
+  values: Float32Array;
+  width: number;
+  height: number;
+  layout: 'NCHW' | 'NHWC';
+  range: [number, number];
+  /** The synthesis file, named when its output holds a value that cannot be an image value. */
+  origin: string;
 }

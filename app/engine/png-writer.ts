@@ -6,17 +6,24 @@ import { availableParallelism } from 'node:os';
 import { extname } from 'node:path';
 import { fileURLToPath } from 'node:url';
 import type { RgbaImage } from '../core/image.ts';
+import type { FloatImageSource } from './generator.ts';
 import { PlumblineError } from '../core/errors.ts';
 
 export interface WrittenPng {
   file: string;
   sha256: string;
   bytes: number;
+  /** The 8-bit pixels, when asked for (keepPixels). */
+  pixels?: RgbaImage;
 }
 
 interface Pending {
   resolve: (w: WrittenPng) => void;
   reject: (e: Error) => void;
+  width: number;
+  height: number;
+  /** The synthesis file a float image came from (named in a bad-value error). */
+  origin?: string;
 }
 
 /**
@@ -46,14 +53,16 @@ export class PngWriterPool {
   constructor(threads = DEFAULT_PNG_THREADS) {
     for (let k = 0; k < threads; k++) {
       const w = startThread(threadFile);
-      w.on('message', (m: { id: number; file: string; sha256?: string; bytes?: number; error?: string }) => {
+      w.on('message', (m: { id: number; file: string; sha256?: string; bytes?: number; pixels?: ArrayBuffer; error?: string; output?: { finite: boolean } }) => {
         const p = this.#pending.get(m.id);
         if (!p) return;
         this.#pending.delete(m.id);
         // An idle thread must not keep the process alive; a busy one must.
         if (--this.#load[k] === 0) w.unref();
-        if (m.error !== undefined) p.reject(new PlumblineError('write-failed', `${m.file}: ${m.error}`, { file: m.file }));
-        else p.resolve({ file: m.file, sha256: m.sha256!, bytes: m.bytes! });
+        // A bad value in the generator's output: the same codes and words as Generator.toRgba.
+        if (m.output && p.origin) p.reject(new PlumblineError(m.output.finite ? 'output-out-of-range' : 'output-not-finite', `${p.origin}: the generator produced a bad image (${m.error})`, { file: p.origin }));
+        else if (m.error !== undefined) p.reject(new PlumblineError('write-failed', `${m.file}: ${m.error}`, { file: m.file }));
+        else p.resolve({ file: m.file, sha256: m.sha256!, bytes: m.bytes!, pixels: m.pixels ? { width: p.width, height: p.height, data: new Uint8ClampedArray(m.pixels) } : undefined });
       });
       w.on('error', (err) => this.#fail(err));
       w.on('exit', (code) => {
@@ -80,17 +89,29 @@ export class PngWriterPool {
    * not copied) when it owns its whole ArrayBuffer; do not use `image.data` afterwards.
    */
   write(image: RgbaImage, file: string, options: { durable?: boolean } = {}): Promise<WrittenPng> {
+    return this.#post(image.data, image.width, image.height, file, options);
+  }
+
+  /**
+   * Converts one float image to 8 bits (tensorToRgba), encodes and writes it, all on a thread: the
+   * render loop only copies the image out (Generator.floatImage). Its `values` are transferred.
+   * `keepPixels` sends the 8-bit pixels back, for contact sheets.
+   */
+  writeFloat(source: FloatImageSource, file: string, options: { durable?: boolean; keepPixels?: boolean } = {}): Promise<WrittenPng> {
+    return this.#post(source.values, source.width, source.height, file, options, source);
+  }
+
+  #post(data: Uint8ClampedArray | Float32Array, width: number, height: number, file: string, options: { durable?: boolean; keepPixels?: boolean }, float?: FloatImageSource): Promise<WrittenPng> {
     if (this.#failed) return Promise.reject(this.#failed);
     const id = this.#next++;
     let k = 0;
     for (let i = 1; i < this.#load.length; i++) if (this.#load[i] < this.#load[k]) k = i;
     if (this.#load[k]++ === 0) this.#workers[k].ref();
-    const data = image.data;
     const whole = data.byteOffset === 0 && data.byteLength === data.buffer.byteLength && data.buffer instanceof ArrayBuffer;
-    const buffer = whole ? (data.buffer as ArrayBuffer) : data.slice().buffer;
+    const buffer = whole ? (data.buffer as ArrayBuffer) : (data.slice().buffer as ArrayBuffer);
     return new Promise<WrittenPng>((resolve, reject) => {
-      this.#pending.set(id, { resolve, reject });
-      this.#workers[k].postMessage({ id, file, width: image.width, height: image.height, buffer, durable: options.durable ?? true }, [buffer]);
+      this.#pending.set(id, { resolve, reject, width, height, origin: float?.origin });
+      this.#workers[k].postMessage({ id, file, width, height, buffer, durable: options.durable ?? true, keepPixels: options.keepPixels ?? false, float: float ? { layout: float.layout, range: float.range } : undefined }, [buffer]);
     });
   }
 

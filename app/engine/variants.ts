@@ -89,6 +89,11 @@ export interface VariantImage {
 export type VariantUnitRunner = (units: VariantUnit[]) => AsyncGenerator<VariantImage[], void, void>;
 
 export const variantFile = (label: string, seed: number) => `${label}/seed-${String(seed).padStart(6, '0')}.png`;
+/**
+ * An interim manifest (what a stopped run resumes from) is rewritten at most this often; a resumed
+ * run checks every image on disk by hash anyway, so a slightly stale one loses nothing.
+ */
+const INTERIM_MANIFEST_MS = 1000;
 /** Contact sheets show the first eight seeds of each setting. */
 const SHEET_SEEDS = 8;
 
@@ -120,15 +125,21 @@ export function checkRecipe(recipe: Recipe, directions: VariantDirection[], opti
   return options.forced ?? checkUse(useViolations(recipe.settings, directions.map((d) => ({ name: d.name, status: d.status ?? null, safeRange: d.safeRange ?? null }))), options.force ?? null, 'pass --force --reason "…" to render anyway (recorded in the manifest)');
 }
 
-/** The pixels of one unit: its seeds' codes, the setting's edits, one synthesis call. */
-export async function renderVariantUnit(gen: Generator, recipe: Recipe, directions: VariantDirection[], unit: VariantUnit): Promise<{ file: string; seed: number; image: RgbaImage }[]> {
+/** One unit rendered: its seeds' codes, the setting's edits, one synthesis call (float output). */
+export async function synthesizeVariantUnit(gen: Generator, recipe: Recipe, directions: VariantDirection[], unit: VariantUnit): Promise<{ files: string[]; seeds: number[]; images: Float32Array }> {
   const byName = new Map(directions.map((d) => [d.name, d]));
   const setting = recipe.settings[unit.setting];
   const seeds = unit.seeds.map((i) => recipe.seeds[i]);
   const codes = await gen.codesForSeeds(seeds, recipe.psi);
   applyEdits(codes, gen.layout, Object.entries(setting.strengths).map(([name, strength]) => directionEdit(byName.get(name)!, strength)));
   const r = await gen.synthesize(codes, seeds.length);
-  return seeds.map((seed, k) => ({ file: variantFile(setting.label, seed), seed, image: gen.toRgba(r.images, k) }));
+  return { files: seeds.map((seed) => variantFile(setting.label, seed)), seeds, images: r.images };
+}
+
+/** The pixels of one unit, in 8 bits. */
+export async function renderVariantUnit(gen: Generator, recipe: Recipe, directions: VariantDirection[], unit: VariantUnit): Promise<{ file: string; seed: number; image: RgbaImage }[]> {
+  const r = await synthesizeVariantUnit(gen, recipe, directions, unit);
+  return r.seeds.map((seed, k) => ({ file: r.files[k], seed, image: gen.toRgba(r.images, k) }));
 }
 
 /**
@@ -141,19 +152,23 @@ export async function* renderVariants(gen: Generator, recipe: Recipe, directions
   return yield* runVariantSet({ name: gen.info.name, fingerprint: gen.info.fingerprint, centreFromCard: !!gen.card?.truncation.centre }, recipe, directions, out, gen.batchSize, localUnitRunner(gen, recipe, directions, out), options);
 }
 
-/** Renders units one batch at a time; PNG encoding and writing run on the pool's threads meanwhile. */
+/**
+ * Renders units one batch at a time. Everything after synthesis — the conversion to 8 bits with its
+ * value checks, PNG encoding, hashing and the atomic write — runs on the pool's threads while the
+ * next batch renders; the render loop only copies each image out of the batch.
+ */
 export function localUnitRunner(gen: Generator, recipe: Recipe, directions: VariantDirection[], out: string): VariantUnitRunner {
   return async function* (units) {
     const pool = sharedPngWriter();
     const inFlight: Promise<VariantImage[]>[] = [];
     try {
       for (const unit of units) {
-        const images = await renderVariantUnit(gen, recipe, directions, unit);
+        const r = await synthesizeVariantUnit(gen, recipe, directions, unit);
         const label = recipe.settings[unit.setting].label;
-        inFlight.push(Promise.all(images.map(async ({ file, seed, image }) => {
-          const thumb = recipe.seeds.indexOf(seed) < SHEET_SEEDS ? { ...image, data: image.data.slice() } : undefined;
-          const w = await pool.write(image, join(out, file), { durable: false });
-          return { file, seed, setting: label, sha256: w.sha256, thumb };
+        inFlight.push(Promise.all(r.seeds.map(async (seed, k) => {
+          const keepPixels = recipe.seeds.indexOf(seed) < SHEET_SEEDS;
+          const w = await pool.writeFloat(gen.floatImage(r.images, k), join(out, r.files[k]), { durable: false, keepPixels });
+          return { file: r.files[k], seed, setting: label, sha256: w.sha256, thumb: w.pixels };
         })));
         // Keep at most about two batches of images in flight.
         while (inFlight.length > 2) yield await inFlight.shift()!;
@@ -233,20 +248,33 @@ export async function* runVariantSet(
     if (missing.length) units.push({ setting: unit.setting, seeds: missing });
   }
   const runner = runUnits(units);
+  let lastManifest = performance.now();
+  let finished = false;
+  writeManifest(false);
   try {
     for (;;) {
       const step = await runner.next();
-      if (step.done) break;
+      if (step.done) {
+        finished = true;
+        break;
+      }
       for (const { thumb, ...image } of step.value) {
         images.push({ ...image, key: keyOf.get(image.file)! });
         if (thumb) thumbs.set(image.file, thumb);
         rendered++;
       }
-      writeManifest(false);
+      // Interim manifests at most every INTERIM_MANIFEST_MS: rewriting a manifest that grows with
+      // every unit after every unit is quadratic work on the render path.
+      if (performance.now() - lastManifest >= INTERIM_MANIFEST_MS) {
+        writeManifest(false);
+        lastManifest = performance.now();
+      }
       yield { done: rendered + reused, total, label: `rendering ${recipe.name}` };
     }
   } finally {
     await runner.return();
+    // Stopped or failed: the manifest a resumed run starts from lists everything written so far.
+    if (!finished) writeManifest(false);
   }
   images.sort((a, b) => a.file.localeCompare(b.file));
   writeManifest(true);
