@@ -132,12 +132,13 @@ export class Farm {
     const attempts = o.attempts ?? UNIT_ATTEMPTS;
     const record: RunRecord = { runId, kind: o.kind, label: o.label, units: o.units.length, state: 'running', startedAt: new Date().toISOString() };
     const saveRecord = () => this.redis.set(keys.run(runId), JSON.stringify(record), 'EX', RUN_RECORD_TTL_S).catch(() => {});
-    let published = false;
-    if (o.publish ?? true) {
-      await publishModel(this.redis, runId, o.model.files);
-      published = true;
-    }
-    const model: ModelRef = { fingerprint: o.model.fingerprint, path: o.model.path, mappingPath: o.model.mappingPath, published };
+    // Publishing (reading, hashing and storing the generator's files) runs while the units are
+    // submitted and taken: workers that reach the files on shared storage never wait for it, and a
+    // worker that needs them waits for the published list, which is written last (model-store.ts).
+    const publish = o.publish ?? true;
+    let publishError: Error | null = null;
+    const publishing = publish ? publishModel(this.redis, runId, o.model.files).then(() => undefined, (err: Error) => void (publishError = err)) : null;
+    const model: ModelRef = { fingerprint: o.model.fingerprint, path: o.model.path, mappingPath: o.model.mappingPath, published: publish };
     await saveRecord();
     const flow = new FlowProducer({ connection: this.#connection });
     const units = new Queue(UNIT_QUEUE, { connection: this.#connection });
@@ -170,6 +171,7 @@ export class Farm {
       let cancelAt = 0;
       while (finished.size < byId.size) {
         await new Promise((r) => setTimeout(r, POLL_MS));
+        if (publishError) throw new PlumblineError('farm', `run ${runId}: publishing the generator's files through Redis failed: ${(publishError as Error).message}`);
         if (!cancelled && o.isCancelled?.()) {
           cancelled = true;
           cancelAt = Date.now();
@@ -180,13 +182,21 @@ export class Farm {
             if (job && ['waiting', 'delayed', 'prioritized', 'wait'].includes(await job.getState())) await job.remove().catch(() => {});
           }
         }
-        let states: { id: string; job: Job | undefined; state: string }[];
+        let states: { id: string; job: Job | undefined; state: string; by: string | null; progress: string | null }[];
         try {
           states = await withTimeout(Promise.all([...byId.keys()].filter((id) => !finished.has(id)).map(async (id) => {
             // State first, then the job: a job read before its completion would lack its result.
+            // Only finished units are read whole (their result, or their failure); for the others
+            // two fields are enough, so a poll does not re-read every waiting unit's payload.
             const state = await units.getJobState(id);
-            const job = state === 'unknown' ? undefined : await Job.fromId(units, id);
-            return { id, job, state: job ? state : 'missing' };
+            if (state === 'completed' || state === 'failed') {
+              const job = await Job.fromId(units, id);
+              return { id, job, state: job ? state : 'missing', by: (job as (Job & { processedBy?: string }) | undefined)?.processedBy ?? null, progress: null };
+            }
+            if (state === 'unknown') return { id, job: undefined, state: 'missing', by: null, progress: null };
+            const [by, progress] = await this.redis.hmget(units.toKey(id), 'processedBy', 'progress');
+            if (by === null && progress === null && !(await this.redis.exists(units.toKey(id)))) return { id, job: undefined, state: 'missing', by: null, progress: null };
+            return { id, job: undefined, state, by, progress };
           })), 5_000, 'Redis did not answer');
           const alive = await this.redis.exists(keys.run(runId));
           lastContact = Date.now();
@@ -196,23 +206,24 @@ export class Farm {
           if (Date.now() - lastContact > REDIS_SILENCE_LIMIT_MS) throw new PlumblineError('farm', `lost the farm's Redis at ${describe(this.address)} for ${REDIS_SILENCE_LIMIT_MS / 1000} s: ${(err as Error).message}`);
           continue;
         }
-        for (const { id, job, state } of states) {
+        for (const { id, job, state, by: processedBy, progress } of states) {
           const unit = byId.get(id)!;
           if (cancelled && (state === 'missing' || state === 'failed' || state === 'unknown')) {
             finished.add(id);
             continue;
           }
-          if (state === 'missing' || !job) throw new PlumblineError('farm', `the farm's Redis at ${describe(this.address)} lost unit ${unit.name} of run ${runId} (restarted without persistence, or flushed); nothing from this run was kept — run it again`);
-          const by = (job as Job & { processedBy?: string }).processedBy ?? 'unknown worker';
-          if (state === 'failed') {
+          if (state === 'missing') throw new PlumblineError('farm', `the farm's Redis at ${describe(this.address)} lost unit ${unit.name} of run ${runId} (restarted without persistence, or flushed); nothing from this run was kept — run it again`);
+          const by = processedBy ?? 'unknown worker';
+          if (state === 'failed' && job) {
             throw new PlumblineError('farm', `run ${runId} failed: unit ${unit.name} failed ${job.attemptsMade} time(s); last on worker ${by}: ${job.failedReason}`);
           }
-          if (state === 'active' && job.progress && typeof job.progress === 'object') {
+          // A unit's progress is a JSON object once its worker has reported a batch.
+          if (state === 'active' && progress?.startsWith('{')) {
             const w = workers.get(by) ?? { worker: by, units: 0, images: 0, seconds: 0, imagesPerSecond: 0, busy: null };
             w.busy = unit.name;
             workers.set(by, w);
           }
-          if (state !== 'completed') continue;
+          if (state !== 'completed' || !job) continue;
           const parsed = o.schema.safeParse(job.returnvalue);
           if (!parsed.success) throw new PlumblineError('farm', `result of unit ${unit.name} from worker ${by} rejected: ${parsed.error.issues.slice(0, 3).map((i) => `${i.path.join('.') || '(root)'}: ${i.message}`).join('; ')}`);
           let images: number;
@@ -253,13 +264,16 @@ export class Farm {
       if (record.state !== 'done') {
         // Stop the rest of the run: flag running units (they stop at their next batch), drop waiting ones.
         await this.redis.set(keys.cancel(runId), '1', 'EX', RUN_RECORD_TTL_S).catch(() => {});
-        for (const id of byId.keys()) if (!finished.has(id)) await Job.fromId(units, id).then((j) => j?.remove()).catch(() => {});
+        for (const id of byId.keys()) if (!finished.has(id)) await units.remove(id).catch(() => {});
       }
       await saveRecord();
       await parentWorker.close().catch(() => {});
-      if (published) await unpublishModel(this.redis, runId).catch(() => {});
+      if (publishing) {
+        await publishing;
+        await unpublishModel(this.redis, runId).catch(() => {});
+      }
       // Results are merged: the units' stored values (images) leave Redis.
-      for (const id of byId.keys()) await Job.fromId(units, id).then((j) => j?.remove()).catch(() => {});
+      for (const id of byId.keys()) await units.remove(id).catch(() => {});
       const runQueue = new Queue(runQueueName(runId), { connection: this.#connection });
       await runQueue.obliterate({ force: true }).catch(() => {});
       await runQueue.close().catch(() => {});

@@ -15,6 +15,13 @@ export const MODEL_CHUNK_BYTES = 4 * 1024 * 1024;
 /** Published models above this size are refused (set a larger cap or use shared storage). */
 export const DEFAULT_MODEL_CAP_BYTES = 1024 * 1024 * 1024;
 
+/**
+ * A worker that needs the published files waits this long for them: publishing runs beside the
+ * run's start, and a 1 GB generator (the cap) takes seconds to read, hash and store.
+ */
+export const PUBLISH_WAIT_MS = 120_000;
+const PUBLISH_POLL_MS = 200;
+
 const sha = (b: Uint8Array) => createHash('sha256').update(b).digest('hex');
 
 /** Publishes `files` (paths; the first is the entry) for a run. Names are relative to the entry's folder. */
@@ -43,7 +50,16 @@ export async function publishModel(redis: Redis, runId: string, files: string[],
 
 export async function unpublishModel(redis: Redis, runId: string): Promise<void> {
   const meta = await redis.get(keys.modelMeta(runId));
-  if (!meta) return;
+  if (!meta) {
+    // Publishing stopped part way (no list yet): remove whatever chunks it stored.
+    let cursor = '0';
+    do {
+      const [next, found] = await redis.scan(cursor, 'MATCH', keys.modelAll(runId), 'COUNT', 200);
+      cursor = next;
+      if (found.length) await redis.del(...found);
+    } while (cursor !== '0');
+    return;
+  }
   const m = publishedModelSchema.parse(JSON.parse(meta));
   const doomed = [keys.modelMeta(runId), ...m.files.flatMap((f, i) => f.chunks.map((_, k) => keys.modelChunk(runId, i, k)))];
   await redis.del(...doomed);
@@ -54,9 +70,11 @@ export async function unpublishModel(redis: Redis, runId: string): Promise<void>
  * chunk's SHA-256 and each file's size, and returns the entry file's path. Files already there
  * with the right chunks are kept.
  */
-export async function fetchModel(redis: Redis, runId: string, folder: string, worker: string): Promise<string> {
-  const raw = await redis.get(keys.modelMeta(runId));
-  if (!raw) throw new PlumblineError('farm', `worker ${worker}: the generator files for run ${runId} are not published in Redis (removed, or the run has ended)`);
+export async function fetchModel(redis: Redis, runId: string, folder: string, worker: string, waitMs = PUBLISH_WAIT_MS): Promise<string> {
+  // The coordinator publishes while units are already being taken; the list is written last.
+  let raw = await redis.get(keys.modelMeta(runId));
+  for (const until = Date.now() + waitMs; !raw && Date.now() < until; raw = await redis.get(keys.modelMeta(runId))) await new Promise((r) => setTimeout(r, PUBLISH_POLL_MS));
+  if (!raw) throw new PlumblineError('farm', `worker ${worker}: the generator files for run ${runId} are not published in Redis after ${waitMs / 1000} s (removed, the run has ended, or publishing failed)`);
   const meta = publishedModelSchema.parse(JSON.parse(raw));
   const base = resolve(folder);
   for (const [index, f] of meta.files.entries()) {
