@@ -16,7 +16,8 @@ export function farmPassword(): string | undefined {
 
 /** One line per worker that delivered units: units, images, images/s while rendering. */
 export function farmSummary(p: RunProgress): string {
-  return p.workers.map((w) => `farm run ${p.runId}: worker ${w.worker}: ${w.units} unit(s), ${w.images} image(s), ${w.imagesPerSecond.toFixed(1)} img/s\n`).join('');
+  // Workers that delivered units; one that held a unit and died delivered nothing from it.
+  return p.workers.filter((w) => w.units > 0).map((w) => `farm run ${p.runId}: worker ${w.worker}: ${w.units} unit(s), ${w.images} image(s), ${w.imagesPerSecond.toFixed(1)} img/s\n`).join('');
 }
 
 function parsePathMap(v: string, prev: [string, string][], usage: CliContext['usage']): [string, string][] {

@@ -22,9 +22,11 @@ parentPort!.on('message', (m: WriteMessage) => {
   try {
     const data = m.float ? tensorToRgba(new Float32Array(m.buffer), 0, m.height, m.width, m.float.layout, m.float.range).data : new Uint8ClampedArray(m.buffer);
     const png = encodePng({ width: m.width, height: m.height, data });
-    writeFileAtomic(m.file, png, { durable: m.durable });
+    // No file: encode only, and send the bytes back (a farm worker returns them through Redis).
+    if (m.file) writeFileAtomic(m.file, png, { durable: m.durable });
     const pixels = m.keepPixels ? data.buffer : undefined;
-    parentPort!.postMessage({ id: m.id, file: m.file, sha256: createHash('sha256').update(png).digest('hex'), bytes: png.length, pixels }, pixels ? [pixels as ArrayBuffer] : []);
+    const bytes = m.file ? undefined : png.buffer;
+    parentPort!.postMessage({ id: m.id, file: m.file, sha256: createHash('sha256').update(png).digest('hex'), bytes: png.length, pixels, png: bytes }, [...(pixels ? [pixels as ArrayBuffer] : []), ...(bytes ? [bytes as ArrayBuffer] : [])]);
   } catch (err) {
     const output = err instanceof OutputValueError ? { finite: err.finite } : undefined;
     parentPort!.postMessage({ id: m.id, file: m.file, error: (err as Error).message, output });

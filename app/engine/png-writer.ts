@@ -15,6 +15,8 @@ export interface WrittenPng {
   bytes: number;
   /** The 8-bit pixels, when asked for (keepPixels). */
   pixels?: RgbaImage;
+  /** The PNG bytes, from encodeFloat (nothing is written then). */
+  png?: Uint8Array;
 }
 
 interface Pending {
@@ -53,7 +55,7 @@ export class PngWriterPool {
   constructor(threads = DEFAULT_PNG_THREADS) {
     for (let k = 0; k < threads; k++) {
       const w = startThread(threadFile);
-      w.on('message', (m: { id: number; file: string; sha256?: string; bytes?: number; pixels?: ArrayBuffer; error?: string; output?: { finite: boolean } }) => {
+      w.on('message', (m: { id: number; file: string; sha256?: string; bytes?: number; pixels?: ArrayBuffer; png?: ArrayBuffer; error?: string; output?: { finite: boolean } }) => {
         const p = this.#pending.get(m.id);
         if (!p) return;
         this.#pending.delete(m.id);
@@ -62,7 +64,7 @@ export class PngWriterPool {
         // A bad value in the generator's output: the same codes and words as Generator.toRgba.
         if (m.output && p.origin) p.reject(new PlumblineError(m.output.finite ? 'output-out-of-range' : 'output-not-finite', `${p.origin}: the generator produced a bad image (${m.error})`, { file: p.origin }));
         else if (m.error !== undefined) p.reject(new PlumblineError('write-failed', `${m.file}: ${m.error}`, { file: m.file }));
-        else p.resolve({ file: m.file, sha256: m.sha256!, bytes: m.bytes!, pixels: m.pixels ? { width: p.width, height: p.height, data: new Uint8ClampedArray(m.pixels) } : undefined });
+        else p.resolve({ file: m.file, sha256: m.sha256!, bytes: m.bytes!, pixels: m.pixels ? { width: p.width, height: p.height, data: new Uint8ClampedArray(m.pixels) } : undefined, png: m.png ? new Uint8Array(m.png) : undefined });
       });
       w.on('error', (err) => this.#fail(err));
       w.on('exit', (code) => {
@@ -99,6 +101,11 @@ export class PngWriterPool {
    */
   writeFloat(source: FloatImageSource, file: string, options: { durable?: boolean; keepPixels?: boolean } = {}): Promise<WrittenPng> {
     return this.#post(source.values, source.width, source.height, file, options, source);
+  }
+
+  /** As writeFloat, but only encodes: the PNG bytes come back (`png`) and no file is written. */
+  encodeFloat(source: FloatImageSource): Promise<WrittenPng & { png: Uint8Array }> {
+    return this.#post(source.values, source.width, source.height, '', {}, source) as Promise<WrittenPng & { png: Uint8Array }>;
   }
 
   #post(data: Uint8ClampedArray | Float32Array, width: number, height: number, file: string, options: { durable?: boolean; keepPixels?: boolean }, float?: FloatImageSource): Promise<WrittenPng> {

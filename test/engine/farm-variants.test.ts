@@ -23,7 +23,7 @@ const cliAsync = (...args: string[]) => new Promise<{ status: number | null; std
   c.on('exit', (status) => done({ status, stdout, stderr }));
 });
 const directions = join(root, 'resources', 'demo', 'sigil-directions.npy');
-const recipe = { format: 'plumbline.variant-recipe', version: 1, name: 'farmset', seeds: [3, 5, 8, 13, 21, 34, 55, 89, 144, 233, 377, 610, 987, 1597, 2584, 4181, 6765, 10946, 17711, 28657], psi: 0.7, settings: [{ label: 'base', strengths: {} }, { label: 'big_warm', strengths: { crest_size: 2, hue_shift: 1.5 } }] };
+const recipe = { format: 'plumbline.variant-recipe', version: 1, name: 'farmset', seeds: [3, 5, 8, 13, 21, 34, 55, 89, 144, 233, 377, 610, 987, 1597, 2584, 4181, 6765, 10946, 17711, 28657, ...Array.from({ length: 60 }, (_, i) => 40_000 + 7 * i)], psi: 0.7, settings: [{ label: 'base', strengths: {} }, { label: 'big_warm', strengths: { crest_size: 2, hue_shift: 1.5 } }] };
 const skip = redisMissing();
 
 let redis: TestRedis;
@@ -48,14 +48,14 @@ test('a variant set on two farm workers equals the one-machine set byte for byte
   assert.equal(local.status, 0, local.stderr);
   const farm = await cliAsync('variants', '--recipe', recipeFile, '-d', directions, '--out', join(dir, 'farm'), '--farm', redis.url);
   assert.equal(farm.status, 0, farm.stderr);
-  assert.match(farm.stdout, /40 rendered, 0 kept/);
+  assert.match(farm.stdout, /160 rendered, 0 kept/);
   const a = files(join(dir, 'local'));
   assert.deepEqual(files(join(dir, 'farm')), a);
-  assert.equal(a.length, 41); // 40 images and the contact sheet
+  assert.equal(a.length, 161); // 160 images and the contact sheet
   for (const f of a) assert.ok(readFileSync(join(dir, 'local', f)).equals(readFileSync(join(dir, 'farm', f))), `${f}: same bytes`);
   const strip = (m: { createdAt?: string }) => ({ ...m, createdAt: undefined });
   assert.deepEqual(strip(JSON.parse(readFileSync(join(dir, 'farm', 'manifest.json'), 'utf8'))), strip(JSON.parse(readFileSync(join(dir, 'local', 'manifest.json'), 'utf8'))));
-  // Both workers took part (units are small and many), and status lists them.
+  // Both workers took part (80 seeds × 2 settings make 4 units of up to 64), and status lists them.
   const status = cli('farm', 'status', '--farm', redis.url, '--json');
   assert.equal(status.status, 0, status.stderr);
   const s = JSON.parse(status.stdout);

@@ -194,7 +194,8 @@ export class Farm {
               return { id, job, state: job ? state : 'missing', by: (job as (Job & { processedBy?: string }) | undefined)?.processedBy ?? null, progress: null };
             }
             if (state === 'unknown') return { id, job: undefined, state: 'missing', by: null, progress: null };
-            const [by, progress] = await this.redis.hmget(units.toKey(id), 'processedBy', 'progress');
+            // 'pb' is where BullMQ keeps the name of the worker that took the job (prepareJobForProcessing.lua).
+            const [by, progress] = await this.redis.hmget(units.toKey(id), 'pb', 'progress');
             if (by === null && progress === null && !(await this.redis.exists(units.toKey(id)))) return { id, job: undefined, state: 'missing', by: null, progress: null };
             return { id, job: undefined, state, by, progress };
           })), 5_000, 'Redis did not answer');
@@ -206,6 +207,8 @@ export class Farm {
           if (Date.now() - lastContact > REDIS_SILENCE_LIMIT_MS) throw new PlumblineError('farm', `lost the farm's Redis at ${describe(this.address)} for ${REDIS_SILENCE_LIMIT_MS / 1000} s: ${(err as Error).message}`);
           continue;
         }
+        // Who holds a unit now is read afresh each poll: a worker that died holding one is not shown busy.
+        for (const w of workers.values()) w.busy = null;
         for (const { id, job, state, by: processedBy, progress } of states) {
           const unit = byId.get(id)!;
           if (cancelled && (state === 'missing' || state === 'failed' || state === 'unknown')) {

@@ -1,4 +1,4 @@
-// Variant sets on a farm: the recipe's (setting × seed chunk) units become farm units; each
+// Variant sets on a farm: the recipe's (setting × seed chunk) units, four batches each, become farm units; each
 // result is checked (files, seeds, hashes, PNG header and size) before its images are written.
 import { createHash } from 'node:crypto';
 import { join } from 'node:path';
@@ -9,6 +9,14 @@ import { runVariantSet, variantFile, type Recipe, type VariantDirection, type Va
 import { chosenOutputFolder } from '../../core/path-policy.ts';
 import type { Farm, FarmUnit, RunProgress } from './coordinator.ts';
 import { variantUnitResultSchema, type VariantUnitResult } from './protocol.ts';
+
+/**
+ * Batches per farm unit. A unit's fixed costs (taking it from the queue, handing its result back,
+ * and encoding its last batch, which nothing overlaps) are paid once per unit; four batches make
+ * them a few percent of the unit. Units start on batch boundaries, so the batches are one
+ * machine's.
+ */
+export const BATCHES_PER_VARIANT_UNIT = 4;
 
 /** PNG signature (ISO/IEC 15948 §5.2). */
 const PNG_SIGNATURE = [137, 80, 78, 71, 13, 10, 26, 10];
@@ -77,5 +85,5 @@ export function farmVariantRunner(farm: Farm, gen: Generator, recipe: Recipe, di
 export async function* renderVariantsOnFarm(farm: Farm, gen: Generator, recipe: Recipe, directions: VariantDirection[], outFolder: string, o: FarmRunOptions & VariantOptions): AsyncGenerator<{ done: number; total: number; label: string }, VariantSetResult, void> {
   // The same output-folder rule as on this machine (app/core/path-policy.ts).
   const out = chosenOutputFolder(outFolder, 'the variant-set folder');
-  return yield* runVariantSet({ name: gen.info.name, fingerprint: gen.info.fingerprint, centreFromCard: !!gen.card?.truncation.centre }, recipe, directions, out, gen.batchSize, farmVariantRunner(farm, gen, recipe, directions, out, o), o);
+  return yield* runVariantSet({ name: gen.info.name, fingerprint: gen.info.fingerprint, centreFromCard: !!gen.card?.truncation.centre }, recipe, directions, out, gen.batchSize * BATCHES_PER_VARIANT_UNIT, farmVariantRunner(farm, gen, recipe, directions, out, o), o);
 }

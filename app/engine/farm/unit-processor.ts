@@ -3,15 +3,14 @@
 // after its fingerprint checks out, renders one unit, and hands the result back to BullMQ; it
 // writes nothing except the generator files it fetches into the worker's scratch folder.
 import { hostname } from 'node:os';
-import { createHash } from 'node:crypto';
 import { existsSync } from 'node:fs';
 import { join } from 'node:path';
 import { Redis } from 'ioredis';
 import { UnrecoverableError, type SandboxedJob } from 'bullmq';
 import { Generator, fingerprintModel } from '../generator.ts';
-import { encodePng } from '../../core/image.ts';
 import { PlumblineError } from '../../core/errors.ts';
-import { recipeSchema, renderVariantUnit } from '../variants.ts';
+import { recipeSchema, synthesizeVariantUnit } from '../variants.ts';
+import { sharedPngWriter } from '../png-writer.ts';
 import { fetchModel } from './model-store.ts';
 import { auditUnit, isAuditUnit } from './audit-units.ts';
 import { keys, variantUnitDataSchema, type ModelRef, type VariantUnitResult } from './protocol.ts';
@@ -77,13 +76,25 @@ async function variantUnit(job: SandboxedJob): Promise<VariantUnitResult> {
   const gen = await generatorFor(data.model, data.runId);
   gen.batchSize = data.batch;
   const directions = data.directions.map((d) => ({ ...d, vector: Float32Array.from(d.vector) }));
-  const rendered = await renderVariantUnit(gen, recipe, directions, data.unit);
-  const images = rendered.map(({ file, seed, image }) => {
-    const png = encodePng(image);
-    return { file, seed, sha256: createHash('sha256').update(png).digest('hex'), png: Buffer.from(png).toString('base64') };
-  });
-  await job.updateProgress({ worker: settings.name, done: images.length, total: images.length });
-  return { kind: 'variants', worker: settings.name, seconds: (performance.now() - started) / 1000, images };
+  // Batch by batch, as one machine renders the same seeds; each batch's conversion and PNG
+  // encoding run on a thread while the next batch renders.
+  const pool = sharedPngWriter();
+  const encoded: Promise<VariantUnitResult['images'][number]>[] = [];
+  try {
+    for (let at = 0; at < data.unit.seeds.length; at += data.batch) {
+      if (at > 0) await checkCancelled(data.runId);
+      const r = await synthesizeVariantUnit(gen, recipe, directions, { setting: data.unit.setting, seeds: data.unit.seeds.slice(at, at + data.batch) });
+      encoded.push(...r.seeds.map(async (seed, k) => {
+        const e = await pool.encodeFloat(gen.floatImage(r.images, k));
+        return { file: r.files[k], seed, sha256: e.sha256, png: Buffer.from(e.png.buffer, e.png.byteOffset, e.png.byteLength).toString('base64') };
+      }));
+      await job.updateProgress({ worker: settings.name, done: Math.min(data.unit.seeds.length, at + data.batch), total: data.unit.seeds.length });
+    }
+    const images = await Promise.all(encoded);
+    return { kind: 'variants', worker: settings.name, seconds: (performance.now() - started) / 1000, images };
+  } finally {
+    await Promise.allSettled(encoded);
+  }
 }
 
 export default async function processUnit(job: SandboxedJob): Promise<unknown> {
