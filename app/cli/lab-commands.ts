@@ -27,6 +27,9 @@ function readPinnedLatents(list: string, layout: { layers: number; size: number 
     return referenceProbe(r.name, r.latent, r.imageSha256);
   });
 }
+import { Farm, type RunProgress } from '../engine/farm/coordinator.ts';
+import { farmAuditMeasurer } from '../engine/farm/audit-units.ts';
+import { farmPassword, farmSummary } from './farm-commands.ts';
 
 export interface CliContext {
   progressBar(total: number, label: string): { update(n: number, label?: string): void; stop(): void };
@@ -206,7 +209,10 @@ export function addLabCommands(program: Command, ctx: CliContext, number: (n: st
     .option('--resamples <n>', 'bootstrap resamples', integer('--resamples', 200, 100_000), 1000)
     .option('--json <file>', 'write the full report as JSON')
     .option('--threads <n>', 'inference threads', integer('--threads', 1, 256))
+    .option('--farm <url>', 'render and score on a farm: redis://[user:password@]host:port (workers: plumbline worker)')
+    .option('--no-publish-model', 'on a farm, do not publish the generator files through Redis (workers read them from shared storage)')
     .action(async (o) => {
+      if (o.farm && (o.scorer.length || o.featureScorer)) throw ctx.usage('--farm audits built-in attributes only; leave out --scorer and --feature-scorer, or audit on this machine');
       if (!['ssim-lab', 'ssim', 'ciede2000', 'l2', 'features'].includes(o.distance)) throw ctx.usage(`--distance must be ssim-lab, ssim, ciede2000, l2 or features; got '${o.distance}'`);
       if (o.distance === 'features' && !o.featureScorer) throw ctx.usage("--distance features needs --feature-scorer <card>");
       if (!['all', 'none'].includes(o.combinations)) throw ctx.usage(`--combinations must be all or none; got '${o.combinations}'`);
@@ -217,6 +223,8 @@ export function addLabCommands(program: Command, ctx: CliContext, number: (n: st
       if (o.probes + pinned.length + latentFiles < PROBE_LIMITS.minTotal) throw ctx.usage(`--probes ${o.probes} with ${pinned.length} --pin seed(s) and ${latentFiles} --pin-latents file(s) makes ${o.probes + pinned.length + latentFiles} probe(s); an audit needs at least ${PROBE_LIMITS.minTotal} in all (--probes ${PROBE_LIMITS.min}–${PROBE_LIMITS.max}, 0 only with --pin or --pin-latents)`);
       const workspace = await openWorkspace(o.model, o.threads);
       const scorers: ScorerModel[] = [];
+      let farm: Farm | null = null;
+      let progress: RunProgress | null = null;
       try {
         for (const c of o.scorer as string[]) scorers.push(await ScorerModel.open(c, { threads: o.threads }));
         const features = o.featureScorer ? await ScorerModel.open(o.featureScorer, { threads: o.threads }) : undefined;
@@ -233,7 +241,10 @@ export function addLabCommands(program: Command, ctx: CliContext, number: (n: st
           defined.push(...r.accepted);
         }
         const attributes = ['default', 'card', 'image', 'all'].includes(o.attributes) ? o.attributes : String(o.attributes).split(',');
-        const steps = runAudit(workspace.requireGenerator(), dirs, {
+        const gen = workspace.requireGenerator();
+        farm = o.farm ? await Farm.connect(o.farm, farmPassword()) : null;
+        const measure = farm ? farmAuditMeasurer(farm, attributes, { fingerprint: gen.info.fingerprint, files: gen.info.files, modelPath: resolve(o.model ?? demoCardPath()), publish: o.publishModel, isCancelled: () => ctx.interrupt.aborted, onProgress: (p) => (progress = p) }) : undefined;
+        const steps = runAudit(gen, dirs, {
           probes: o.probes,
           pinnedSeeds: pinned,
           psi: o.psi,
@@ -249,8 +260,9 @@ export function addLabCommands(program: Command, ctx: CliContext, number: (n: st
           bootstrapResamples: o.resamples,
           scorerCards: (o.scorer as string[]).map((c) => resolve(c)),
           featureScorer: o.featureScorer ? resolve(o.featureScorer) : null,
-        }, { scorers: scorers.filter((x) => x !== features), features, defined, references: o.pinLatents ? readPinnedLatents(String(o.pinLatents), workspace.requireGenerator().layout) : [] });
+        }, { scorers: scorers.filter((x) => x !== features), features, defined, measure, references: o.pinLatents ? readPinnedLatents(String(o.pinLatents), workspace.requireGenerator().layout) : [] });
         const report = await runCliJob(ctx, workspace, 'auditing', 'audit cancelled; nothing was written', (job) => driveSteps(steps, job));
+        if (progress) process.stderr.write(farmSummary(progress));
         if (!report) return;
         process.stdout.write(auditTable(report));
         if (o.json) {
@@ -258,6 +270,7 @@ export function addLabCommands(program: Command, ctx: CliContext, number: (n: st
           process.stdout.write(`wrote ${resolve(o.json)}\n`);
         }
       } finally {
+        await farm?.close();
         for (const sc of scorers) await sc.dispose();
         await workspace.dispose();
       }

@@ -15,6 +15,7 @@ import { addLabCommands } from './lab-commands.ts';
 import { addPackCommands } from './pack-commands.ts';
 import { addLocateCommand } from './locate-command.ts';
 import { addDefineCommand } from './define-commands.ts';
+import { addFarmCommands } from './farm-commands.ts';
 
 /** Bad command-line input found after parsing (commander prints its own parse errors). */
 class UsageError extends Error {}
@@ -137,6 +138,7 @@ export function buildProgram(): Command {
   addPackCommands(program, ctx);
   addLocateCommand(program, ctx, integer);
   addDefineCommand(program, ctx, integer, number);
+  addFarmCommands(program, ctx, integer);
   return program;
 }
 

@@ -5,7 +5,6 @@ import { createHash, createPrivateKey, createPublicKey, type KeyObject } from 'n
 import { READ_LIMITS, chosenOutputFile, readRegularFile, readTextFile } from '../core/path-policy.ts';
 import { DIRECTION_NAME_RULE, isDirectionName } from '../protocol/names.ts';
 import { writeFileAtomic } from '../core/atomic-write.ts';
-import { encodePng } from '../core/image.ts';
 import { applyEdits, broadcastLayers, directionEdit } from '../core/latent.ts';
 import { decodeNpy } from '../core/npy.ts';
 import { PackError, keyIdOf, type PackFailure } from '../core/pack.ts';
@@ -20,6 +19,10 @@ import { parseRecipe, renderVariants, resolveRecipeReferences, type VariantDirec
 import { driveSteps } from '../engine/handlers/context.ts';
 import { checkUse, useViolations } from '../core/signoff-rules.ts';
 import { loadDirections, openWorkspace, type CliContext } from './lab-commands.ts';
+import { sharedPngWriter } from '../engine/png-writer.ts';
+import { Farm, type RunProgress } from '../engine/farm/coordinator.ts';
+import { renderVariantsOnFarm } from '../engine/farm/farm-variants.ts';
+import { farmPassword, farmSummary } from './farm-commands.ts';
 
 /** One exit code per failure class, so pipelines can tell them apart (docs/preset-pack.md). */
 export const PACK_EXIT: Record<PackFailure, number> = { archive: 3, hostile: 4, hash: 5, version: 6, generator: 7, range: 8, missing: 9, signature: 10 };
@@ -173,19 +176,29 @@ export function addPackCommands(program: Command, ctx: CliContext): void {
       }
       if (decision.forced.length) process.stderr.write(`warning: forced outside the safe range: ${decision.forced.map((f) => `${f.direction}=${f.strength}`).join(', ')} (reason: ${decision.reason})\n`);
       const psi = o.psi === undefined ? gen.info.defaultPsi : Number(o.psi);
-      const images = [];
-      for (let at = 0; at < seeds.length; at += gen.batchSize) {
-        const chunk = seeds.slice(at, at + gen.batchSize);
-        const per = gen.layout.layers * gen.layout.size;
-        const codes = latents ? latents.codes.slice(at * per, (at + chunk.length) * per) : await gen.codesForSeeds(chunk, psi);
-        applyEdits(codes, gen.layout, sets.map(({ d, strength }) => directionEdit(d, strength)));
-        const r = await gen.synthesize(codes, chunk.length);
-        for (let i = 0; i < chunk.length; i++) {
-          const png = encodePng(gen.toRgba(r.images, i));
-          const file = `${latents ? 'latent' : 'seed'}-${String(chunk[i]).padStart(6, '0')}.png`;
-          writeFileAtomic(join(out, file), png);
-          images.push({ ...(latents ? { latent: chunk[i] } : { seed: chunk[i] }), file, sha256: createHash('sha256').update(png).digest('hex') });
+      const images: (({ seed: number } | { latent: number }) & { file: string; sha256: string })[] = [];
+      // Conversion to 8 bits, encoding and writing run on worker threads while the next batch renders.
+      const pool = sharedPngWriter();
+      const writes: Promise<void>[] = [];
+      try {
+        for (let at = 0; at < seeds.length; at += gen.batchSize) {
+          const chunk = seeds.slice(at, at + gen.batchSize);
+          const per = gen.layout.layers * gen.layout.size;
+          const codes = latents ? latents.codes.slice(at * per, (at + chunk.length) * per) : await gen.codesForSeeds(chunk, psi);
+          applyEdits(codes, gen.layout, sets.map(({ d, strength }) => directionEdit(d, strength)));
+          const r = await gen.synthesize(codes, chunk.length);
+          for (let i = 0; i < chunk.length; i++) {
+            const n = chunk[i];
+            const slot = at + i;
+            const file = `${latents ? 'latent' : 'seed'}-${String(n).padStart(6, '0')}.png`;
+            writes.push(pool.writeFloat(gen.floatImage(r.images, i), join(out, file)).then((w) => void (images[slot] = { ...(latents ? { latent: n } : { seed: n }), file, sha256: w.sha256 })));
+          }
+          // At most about two batches in flight.
+          if (writes.length > 2 * gen.batchSize) await Promise.all(writes.splice(0, writes.length - gen.batchSize));
         }
+        await Promise.all(writes);
+      } finally {
+        await Promise.allSettled(writes);
       }
       writeFileAtomic(join(out, 'manifest.json'), JSON.stringify({
         format: 'plumbline.applied', version: 1, createdAt: new Date().toISOString(), pack: v.pack.manifest.project,
@@ -206,6 +219,8 @@ export function addPackCommands(program: Command, ctx: CliContext): void {
     .option('--trust <key.pem>', 'with --pack: require a signature by this Ed25519 public key (PEM); repeatable', collect, [] as string[])
     .option('--project <dir>', "the project whose named references the recipe's references name (.npy entries need none)")
     .requiredOption('-o, --out <dir>', 'output folder; rerun the same command to resume')
+    .option('--farm <url>', 'render on a farm: redis://[user:password@]host:port (workers: plumbline worker)')
+    .option('--no-publish-model', 'on a farm, do not publish the generator files through Redis (workers read them from shared storage)')
     .action(async (o) => withPackErrors(async () => {
       if (!o.directions === !o.pack) throw ctx.usage('give exactly one of --directions or --pack');
       const recipeFile = resolve(o.recipe);
@@ -216,10 +231,21 @@ export function addPackCommands(program: Command, ctx: CliContext): void {
         let dirs: VariantDirection[];
         if (o.pack) dirs = (await verifyPack(readFile(o.pack), resolve(o.pack), gen, { trust: trusted(o.trust) })).directions.map((d) => ({ ...d, status: 'approved' as const }));
         else dirs = loadDirections(workspace, o.directions);
-        const references = resolveRecipeReferences(recipe, dirname(recipeFile), o.project ? resolve(o.project) : null, gen);
-        const steps = renderVariants(gen, recipe, dirs, resolve(o.out), { force: o.force ? { reason: o.reason ?? '' } : null, references });
-        const done = await runCliJob(ctx, workspace, 'variants', 'stopped; run the same command again to resume', (job) => driveSteps(steps, job));
-        if (done) process.stdout.write(`${recipe.name}: ${done.rendered} rendered${done.replaced ? ` (${done.replaced} replaced: their recipe entry changed)` : ''}, ${done.reused} kept from an earlier run; manifest.json and contact-sheet.png in ${resolve(o.out)}\n`);
+        const farm = o.farm ? await Farm.connect(o.farm, farmPassword()) : null;
+        let progress: RunProgress | null = null;
+        try {
+          const force = o.force ? { reason: o.reason ?? '' } : null;
+          const references = resolveRecipeReferences(recipe, dirname(recipeFile), o.project ? resolve(o.project) : null, gen);
+          if (farm && references.length) throw ctx.usage('a recipe with references renders on this machine only: run it without --farm');
+          const steps = farm
+            ? renderVariantsOnFarm(farm, gen, recipe, dirs, resolve(o.out), { force, modelPath: resolve(o.model ?? demoCardPath()), publish: o.publishModel, isCancelled: () => ctx.interrupt.aborted, onProgress: (p) => (progress = p) })
+            : renderVariants(gen, recipe, dirs, resolve(o.out), { force, references });
+          const done = await runCliJob(ctx, workspace, 'variants', 'stopped; run the same command again to resume', (job) => driveSteps(steps, job));
+          if (progress) process.stderr.write(farmSummary(progress));
+          if (done) process.stdout.write(`${recipe.name}: ${done.rendered} rendered${done.replaced ? ` (${done.replaced} replaced: their recipe entry changed)` : ''}, ${done.reused} kept from an earlier run; manifest.json and contact-sheet.png in ${resolve(o.out)}\n`);
+        } finally {
+          await farm?.close();
+        }
       } finally {
         await workspace.dispose();
       }

@@ -28,15 +28,19 @@ export function tensorToRgba(
   const span = range[1] - range[0];
   const min = lo - span;
   const max = range[1] + span;
-  for (let p = 0; p < plane; p++) {
-    for (let ch = 0; ch < 3; ch++) {
-      const v = layout === 'NCHW' ? values[base + ch * plane + p] : values[base + p * 3 + ch];
+  // One channel at a time, with the layout decided once: where a channel's values start and how
+  // far apart they lie. The loop is this function's whole cost, run for every image written.
+  const step = layout === 'NCHW' ? 1 : 3;
+  for (let ch = 0; ch < 3; ch++) {
+    let at = base + (layout === 'NCHW' ? ch * plane : ch);
+    for (let p = 0, o = ch; p < plane; p++, at += step, o += 4) {
+      const v = values[at];
       // Every value is read here anyway, so this is where NaN, ±Inf and far values are caught for sure.
       if (!(v >= min && v <= max)) throw new OutputValueError(v, range);
-      out[p * 4 + ch] = Math.floor((v - lo) * scale + 0.5); // Uint8ClampedArray clamps
+      out[o] = Math.floor((v - lo) * scale + 0.5); // Uint8ClampedArray clamps
     }
-    out[p * 4 + 3] = 255;
   }
+  for (let o = 3; o < out.length; o += 4) out[o] = 255;
   return { width, height, data: out };
 }
 
@@ -73,10 +77,12 @@ function filterRows(image: RgbaImage): Uint8Array {
   const stride = w * 4;
   const raw = new Uint8Array((stride + 1) * h);
   for (let y = 0; y < h; y++) {
-    const o = y * (stride + 1);
-    raw[o] = 1; // filter: sub
+    const o = y * (stride + 1) + 1;
+    raw[o - 1] = 1; // filter: sub
     const row = y * stride;
-    for (let i = 0; i < stride; i++) raw[o + 1 + i] = (data[row + i] - (i >= 4 ? data[row + i - 4] : 0)) & 255;
+    // The first pixel has no left neighbour (it counts as 0); the rest are differences, mod 256 by the Uint8Array store.
+    for (let i = 0; i < 4 && i < stride; i++) raw[o + i] = data[row + i];
+    for (let i = 4; i < stride; i++) raw[o + i] = data[row + i] - data[row + i - 4];
   }
   return raw;
 }

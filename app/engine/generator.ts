@@ -61,6 +61,32 @@ function readBytes(file: string, what: string, maxBytes = READ_LIMITS.modelBytes
   return readRegularFile(file, what, maxBytes);
 }
 
+/** The generator fingerprint: SHA-256 over the synthesis, mapping and card bytes, each with its role and length. */
+function fingerprintBytes(synthBytes: Uint8Array, mapBytes: Uint8Array | null, cardBytes: Uint8Array | null | undefined): string {
+  const hash = createHash('sha256');
+  hash.update('plumbline-fingerprint-v1\0');
+  const part = (role: string, bytes: Uint8Array) => {
+    hash.update(`${role}\0${bytes.length}\0`);
+    hash.update(bytes);
+  };
+  part('synthesis', synthBytes);
+  if (mapBytes) part('mapping', mapBytes);
+  if (cardBytes) part('card', cardBytes);
+  return hash.digest('hex');
+}
+
+/**
+ * The fingerprint of a generator on disk without loading it (no inference session), and the
+ * files it is made of — what a farm worker checks before it loads anything.
+ */
+export function fingerprintModel(path: string, mappingPath?: string): { fingerprint: string; files: string[] } {
+  const file = resolve(path);
+  const r = file.toLowerCase().endsWith('.json') ? resolveCard(file) : resolveBare(file, mappingPath ? resolve(mappingPath) : null);
+  const synthBytes = readBytes(r.synthesisFile, 'synthesis model');
+  const mapBytes = r.mappingFile ? readBytes(r.mappingFile, 'mapping network') : null;
+  return { fingerprint: fingerprintBytes(synthBytes, mapBytes, r.cardBytes), files: [r.cardFile, r.synthesisFile, r.mappingFile].filter((f): f is string => !!f) };
+}
+
 export class Generator {
   #synthesis: ort.InferenceSession | null;
   #mapping: ort.InferenceSession | null;
@@ -124,16 +150,7 @@ export class Generator {
       throw err;
     }
 
-    const hash = createHash('sha256');
-    hash.update('plumbline-fingerprint-v1\0');
-    const part = (role: string, bytes: Uint8Array) => {
-      hash.update(`${role}\0${bytes.length}\0`);
-      hash.update(bytes);
-    };
-    part('synthesis', synthBytes);
-    if (mapBytes) part('mapping', mapBytes);
-    if (r.cardBytes) part('card', r.cardBytes);
-    const fingerprint = hash.digest('hex');
+    const fingerprint = fingerprintBytes(synthBytes, mapBytes, r.cardBytes);
 
     const gen = new Generator(r, synthesis, mapping, {} as ModelInfo, new Float32Array(r.layout.size), new Float32Array(0), limits);
     try {
@@ -377,6 +394,17 @@ export class Generator {
     }
   }
 
+  /**
+   * Image `index` of a float batch as its own copy, with what converting it to 8 bits needs: handed
+   * to the PNG writer's threads (png-writer.ts), so the conversion and its value checks happen off
+   * the render path with the same function and the same errors as toRgba.
+   */
+  floatImage(images: Float32Array, index: number): FloatImageSource {
+    const { width, height } = this.imageSize();
+    const per = width * height * 3;
+    return { values: images.slice(index * per, (index + 1) * per), width, height, layout: this.#r.imageLayout, range: this.range, origin: this.#r.synthesisFile };
+  }
+
   async renderSeeds(seeds: number[], psi: number, edits: EditVector[], onBatch?: (done: number) => Promise<void> | void): Promise<RenderOutput> {
     const codes = await this.codesForSeeds(seeds, psi);
     applyEdits(codes, this.layout, edits);
@@ -534,4 +562,15 @@ function checkMapping(r: Resolved, s: OnnxSummary): void {
   if (!out) throw new PlumblineError('card-invalid', `${file}: mapping output '${r.mappingOutput}' not found`, { file });
   const last = out.dims?.[out.dims.length - 1];
   if (fixed(last) && last !== r.layout.size) throw new PlumblineError('latent-size-mismatch', `${file}: the mapping network outputs ${last} values per code but the synthesis latent size is ${r.layout.size}`, { file });
+}
+
+/** One rendered image in the generator's float output, for conversion elsewhere (Generator.floatImage). */
+export interface FloatImageSource {
+  values: Float32Array;
+  width: number;
+  height: number;
+  layout: 'NCHW' | 'NHWC';
+  range: [number, number];
+  /** The synthesis file, named when its output holds a value that cannot be an image value. */
+  origin: string;
 }

@@ -9,7 +9,7 @@ import { createHash } from 'node:crypto';
 import { z } from 'zod';
 import { decode } from 'fast-png';
 import { writeFileAtomic } from '../core/atomic-write.ts';
-import { encodePng, encodePngAsync, type RgbaImage } from '../core/image.ts';
+import { encodePng, type RgbaImage } from '../core/image.ts';
 import { applyEdits, directionEdit } from '../core/latent.ts';
 import { PlumblineError } from '../core/errors.ts';
 import { parseJsonFile } from '../core/json-file.ts';
@@ -17,6 +17,7 @@ import { chosenOutputFolder, readTextFile } from '../core/path-policy.ts';
 import { variantLabelSchema } from '../protocol/names.ts';
 import { drawText, GLYPH_HEIGHT } from '../core/label-font.ts';
 import type { Generator } from './generator.ts';
+import { sharedPngWriter } from './png-writer.ts';
 import { checkUse, useViolations, type Override, type ReviewStatus, type Violation } from '../core/signoff-rules.ts';
 
 export const recipeSchema = z.object({
@@ -107,99 +108,248 @@ const previousSchema = z.object({
 });
 
 /**
- * Renders a recipe; yields progress between batches. An existing image is kept (resume) only when
- * its file matches its hash and its key matches this recipe's entry; otherwise it is rendered
- * again and counted as replaced.
+ * One work unit of a variant set: one setting over a chunk of the recipe's columns — indices into
+ * its seeds, then its references (index seeds.length + k is reference k).
  */
-export async function* renderVariants(gen: Generator, recipe: RecipeInput, directions: VariantDirection[], outFolder: string, options: VariantOptions = {}): AsyncGenerator<{ done: number; total: number; label: string }, { manifest: object; rendered: number; reused: number; replaced: number }, void> {
-  const out = chosenOutputFolder(outFolder, 'the variant-set folder');
-  const byName = new Map(directions.map((d) => [d.name, d]));
-  for (const s of recipe.settings)
-    for (const name of Object.keys(s.strengths)) if (!byName.has(name)) throw new PlumblineError('bad-request', `setting '${s.label}' uses unknown direction '${name}'; available: ${[...byName.keys()].join(', ')}`);
-  // The rules shared with the engine host and apply (app/core/signoff-rules.ts).
-  const decision = options.forced ?? checkUse(useViolations(recipe.settings, directions.map((d) => ({ name: d.name, status: d.status ?? null, safeRange: d.safeRange ?? null }))), options.force ?? null, 'pass --force --reason "…" to render anyway (recorded in the manifest)');
-  const manifestFile = join(out, 'manifest.json');
-  // A manifest.json that is not ours is someone else's file: never overwrite it.
-  const previous = existsSync(manifestFile) ? parseJsonFile(previousSchema, readTextFile(manifestFile, 'variant-set manifest'), manifestFile, 'not a variant-set manifest (choose another folder)', 'would-overwrite') : null;
-  if (previous?.generator && previous.generator.fingerprint !== gen.info.fingerprint) throw new PlumblineError('bad-request', `${manifestFile}: this folder holds variants of another generator; choose another --out`);
-  const known = new Map(previous?.images.map((i) => [i.file, i]) ?? []);
-  const { layers, size } = gen.layout;
-  const per = layers * size;
-  const refs = options.references ?? [];
-  if (refs.length !== (recipe.references ?? []).length) throw new PlumblineError('bad-request', `the recipe names ${(recipe.references ?? []).length} reference(s) but ${refs.length} were resolved`);
-  // Base codes: the seeds at ψ, then each reference as stored (a W code on every row).
-  const base = new Float32Array((recipe.seeds.length + refs.length) * per);
-  base.set(await gen.codesForSeeds(recipe.seeds, recipe.psi));
-  refs.forEach((r, k) => {
-    const at = (recipe.seeds.length + k) * per;
-    if (r.latent.length === per) base.set(r.latent, at);
-    else for (let l = 0; l < layers; l++) base.set(r.latent, at + l * size);
-  });
-  const columns: Column[] = [
+export interface VariantUnit {
+  setting: number;
+  seeds: number[];
+}
+
+/** A column of the set: a seed or a reference. */
+export interface Column {
+  i: number;
+  seed: number | null;
+  reference: LatentReference | null;
+  label: string;
+  stem: string;
+}
+
+/** The recipe's columns: its seeds, then its resolved references. */
+export function recipeColumns(recipe: RecipeInput, refs: LatentReference[] = []): Column[] {
+  return [
     ...recipe.seeds.map((seed, i) => ({ i, seed, reference: null, label: String(seed), stem: `seed-${String(seed).padStart(6, '0')}` })),
     ...refs.map((r, k) => ({ i: recipe.seeds.length + k, seed: null, reference: r, label: r.name, stem: `reference-${r.name}` })),
   ];
-  const onSheet = ((shown) => (i: number) => shown.has(i))(new Set(sheetColumns(columns).map((c) => c.i)));
-  const jobs = recipe.settings.flatMap((s) => columns.map((c) => ({ s, seed: c.seed, reference: c.reference?.name ?? null, i: c.i, file: `${s.label}/${c.stem}.png`, key: imageKey(gen.info.fingerprint, c.reference ?? c.seed!, recipe.psi, s.strengths, byName) })));
+}
+const columnFile = (label: string, c: Column) => `${label}/${c.stem}.png`;
+
+/** An image finished and written: what the manifest records, plus pixels for the contact sheet. */
+export interface VariantImage {
+  file: string;
+  /** The seed, or null for a reference (then `reference` names it). */
+  seed: number | null;
+  reference?: string | null;
+  setting: string;
+  sha256: string;
+  thumb?: RgbaImage;
+}
+
+/** Renders units and yields each unit's written images as they finish (in any order). */
+export type VariantUnitRunner = (units: VariantUnit[]) => AsyncGenerator<VariantImage[], void, void>;
+
+export const variantFile = (label: string, seed: number) => `${label}/seed-${String(seed).padStart(6, '0')}.png`;
+/**
+ * An interim manifest (what a stopped run resumes from) is rewritten at most this often; a resumed
+ * run checks every image on disk by hash anyway, so a slightly stale one loses nothing.
+ */
+const INTERIM_MANIFEST_MS = 1000;
+
+/** What a variant-set run answers: the manifest and how many images were rendered, kept, and rendered again over changed entries. */
+export interface VariantSetResult {
+  manifest: object;
+  rendered: number;
+  reused: number;
+  replaced: number;
+}
+
+/** Units in a fixed order: setting by setting, seeds in chunks of `perUnit` — the same on one machine and on a farm. */
+export function planVariantUnits(recipe: RecipeInput, perUnit: number, columns = recipe.seeds.length): VariantUnit[] {
+  const units: VariantUnit[] = [];
+  recipe.settings.forEach((_, setting) => {
+    for (let at = 0; at < columns; at += perUnit) units.push({ setting, seeds: Array.from({ length: Math.min(perUnit, columns - at) }, (_, k) => at + k) });
+  });
+  return units;
+}
+
+/**
+ * Refuses unknown directions; then the use rules (app/core/signoff-rules.ts, shared with the engine
+ * host and apply): unapproved, rejected or out-of-range settings need a written reason.
+ */
+export function checkRecipe(recipe: RecipeInput, directions: VariantDirection[], options: VariantOptions = {}): { forced: Violation[]; reason: string | null } {
+  const byName = new Map(directions.map((d) => [d.name, d]));
+  for (const s of recipe.settings)
+    for (const name of Object.keys(s.strengths)) if (!byName.has(name)) throw new PlumblineError('bad-request', `setting '${s.label}' uses unknown direction '${name}'; available: ${[...byName.keys()].join(', ')}`);
+  return options.forced ?? checkUse(useViolations(recipe.settings, directions.map((d) => ({ name: d.name, status: d.status ?? null, safeRange: d.safeRange ?? null }))), options.force ?? null, 'pass --force --reason "…" to render anyway (recorded in the manifest)');
+}
+
+/** One unit rendered: its seeds' codes, the setting's edits, one synthesis call (float output). */
+export async function synthesizeVariantUnit(gen: Generator, recipe: RecipeInput, directions: VariantDirection[], unit: VariantUnit, refs: LatentReference[] = []): Promise<{ files: string[]; seeds: (number | null)[]; references: (string | null)[]; images: Float32Array }> {
+  const byName = new Map(directions.map((d) => [d.name, d]));
+  const setting = recipe.settings[unit.setting];
+  const all = recipeColumns(recipe, refs);
+  const columns = unit.seeds.map((i) => all[i]);
+  const { layers, size } = gen.layout;
+  const per = layers * size;
+  // Seeds at ψ; each reference as stored (a W code on every row).
+  const seedCodes = await gen.codesForSeeds(columns.filter((c) => c.seed !== null).map((c) => c.seed!), recipe.psi);
+  const codes = new Float32Array(columns.length * per);
+  let nextSeed = 0;
+  columns.forEach((c, k) => {
+    if (c.reference === null) codes.set(seedCodes.subarray(nextSeed * per, ++nextSeed * per), k * per);
+    else if (c.reference.latent.length === per) codes.set(c.reference.latent, k * per);
+    else for (let l = 0; l < layers; l++) codes.set(c.reference.latent, k * per + l * size);
+  });
+  applyEdits(codes, gen.layout, Object.entries(setting.strengths).map(([name, strength]) => directionEdit(byName.get(name)!, strength)));
+  const r = await gen.synthesize(codes, columns.length);
+  return { files: columns.map((c) => columnFile(setting.label, c)), seeds: columns.map((c) => c.seed), references: columns.map((c) => c.reference?.name ?? null), images: r.images };
+}
+
+/** The pixels of one unit, in 8 bits. */
+export async function renderVariantUnit(gen: Generator, recipe: RecipeInput, directions: VariantDirection[], unit: VariantUnit): Promise<{ file: string; seed: number | null; image: RgbaImage }[]> {
+  const r = await synthesizeVariantUnit(gen, recipe, directions, unit);
+  return r.seeds.map((seed, k) => ({ file: r.files[k], seed, image: gen.toRgba(r.images, k) }));
+}
+
+/**
+ * Renders a recipe on this machine; yields progress between batches. An existing image is kept
+ * (resume) only when its file matches its hash and its key matches this recipe's entry; otherwise
+ * it is rendered again and counted as replaced.
+ */
+export async function* renderVariants(gen: Generator, recipe: RecipeInput, directions: VariantDirection[], outFolder: string, options: VariantOptions = {}): AsyncGenerator<{ done: number; total: number; label: string }, VariantSetResult, void> {
+  const out = chosenOutputFolder(outFolder, 'the variant-set folder');
+  return yield* runVariantSet({ name: gen.info.name, fingerprint: gen.info.fingerprint, centreFromCard: !!gen.card?.truncation.centre }, recipe, directions, out, gen.batchSize, localUnitRunner(gen, recipe, directions, out, options.references ?? []), options);
+}
+
+/**
+ * Renders units one batch at a time. Everything after synthesis — the conversion to 8 bits with its
+ * value checks, PNG encoding, hashing and the atomic write — runs on the pool's threads while the
+ * next batch renders; the render loop only copies each image out of the batch.
+ */
+export function localUnitRunner(gen: Generator, recipe: RecipeInput, directions: VariantDirection[], out: string, refs: LatentReference[] = []): VariantUnitRunner {
+  const onSheet = new Set(sheetColumns(recipeColumns(recipe, refs)).map((c) => c.i));
+  return async function* (units) {
+    const pool = sharedPngWriter();
+    const inFlight: Promise<VariantImage[]>[] = [];
+    try {
+      for (const unit of units) {
+        const r = await synthesizeVariantUnit(gen, recipe, directions, unit, refs);
+        const label = recipe.settings[unit.setting].label;
+        inFlight.push(Promise.all(r.seeds.map(async (seed, k) => {
+          const keepPixels = onSheet.has(unit.seeds[k]);
+          const w = await pool.writeFloat(gen.floatImage(r.images, k), join(out, r.files[k]), { durable: false, keepPixels });
+          return { file: r.files[k], seed, reference: r.references[k], setting: label, sha256: w.sha256, thumb: w.pixels };
+        })));
+        // Keep at most about two batches of images in flight.
+        while (inFlight.length > 2) yield await inFlight.shift()!;
+      }
+      while (inFlight.length) yield await inFlight.shift()!;
+    } finally {
+      // On cancel or error, writes already queued still settle (each file is whole or absent).
+      await Promise.allSettled(inFlight);
+    }
+  };
+}
+
+/**
+ * The variant-set job around any unit runner (this machine or a farm): resume by hash, interim
+ * and final manifests, and the contact sheet. `perUnit` seeds per unit.
+ */
+export async function* runVariantSet(
+  generator: { name: string; fingerprint: string; centreFromCard: boolean },
+  recipe: RecipeInput, directions: VariantDirection[], out: string, perUnit: number, runUnits: VariantUnitRunner, options: VariantOptions = {},
+): AsyncGenerator<{ done: number; total: number; label: string }, VariantSetResult, void> {
+  const decision = checkRecipe(recipe, directions, options);
+  const byName = new Map(directions.map((d) => [d.name, d]));
+  const manifestFile = join(out, 'manifest.json');
+  // A manifest.json that is not ours is someone else's file: never overwrite it.
+  const previous = existsSync(manifestFile) ? parseJsonFile(previousSchema, readTextFile(manifestFile, 'variant-set manifest'), manifestFile, 'not a variant-set manifest (choose another folder)', 'would-overwrite') : null;
+  if (previous?.generator && previous.generator.fingerprint !== generator.fingerprint) throw new PlumblineError('bad-request', `${manifestFile}: this folder holds variants of another generator; choose another --out`);
+  const known = new Map(previous?.images.map((i) => [i.file, i]) ?? []);
+  const refs = options.references ?? [];
+  if (refs.length !== (recipe.references ?? []).length) throw new PlumblineError('bad-request', `the recipe names ${(recipe.references ?? []).length} reference(s) but ${refs.length} were resolved`);
+  const columns = recipeColumns(recipe, refs);
+  const onSheet = new Set(sheetColumns(columns).map((c) => c.i));
+  // Each image's key: what determines its pixels (imageKey); resume checks it beside the file hash.
+  const keyOf = new Map(recipe.settings.flatMap((s) => columns.map((c) => [columnFile(s.label, c), imageKey(generator.fingerprint, c.reference ?? c.seed!, recipe.psi, s.strengths, byName)] as const)));
   const images: { file: string; seed: number | null; reference: string | null; setting: string; sha256: string; key: string }[] = [];
   const thumbs = new Map<string, RgbaImage>();
+  const total = columns.length * recipe.settings.length;
   let rendered = 0;
   let reused = 0;
   let replaced = 0;
-  const writes: Promise<void>[] = [];
   const writeManifest = (complete: boolean) =>
     writeFileAtomic(manifestFile, JSON.stringify({
       format: 'plumbline.variants', version: 1, recipe: recipe.name, complete, createdAt: new Date().toISOString(),
-      generator: { name: gen.info.name, fingerprint: gen.info.fingerprint },
-      truncation: { psi: recipe.psi, centre: gen.card?.truncation.centre ? 'model card' : 'estimated' },
+      generator: { name: generator.name, fingerprint: generator.fingerprint },
+      truncation: { psi: recipe.psi, centre: generator.centreFromCard ? 'model card' : 'estimated' },
       seedConvention: 'plumbline latentForSeed (xoshiro128** via splitmix32, stream 0x5eed, polar Box–Muller)',
       latents: [...recipe.seeds.map((seed) => ({ seed })), ...refs.map((r) => ({ reference: r.name, latentSha256: r.latentSha256, imageSha256: r.imageSha256 }))],
       directions: directions.map((d) => ({ name: d.name, sha256: hashOf(d), sigma: d.sigma, layers: d.layers })),
       settings: recipe.settings,
       forced: decision.forced.length ? { reason: decision.reason, settings: decision.forced } : null,
       images,
-    }, null, 2) + '\n');
-  for (let at = 0; at < jobs.length; at += gen.batchSize) {
-    const chunk = jobs.slice(at, at + gen.batchSize);
-    const keep = (j: (typeof jobs)[number]) => {
-      const k = known.get(j.file);
-      return !!k && k.key === j.key && existsSync(join(out, j.file)) && sha(readFileSync(join(out, j.file))) === k.sha256;
-    };
-    const pending = chunk.filter((j) => !keep(j));
-    for (const j of pending) if (existsSync(join(out, j.file))) replaced++;
-    for (const j of chunk.filter((x) => !pending.includes(x))) {
-      images.push({ file: j.file, seed: j.seed, reference: j.reference, setting: j.s.label, sha256: known.get(j.file)!.sha256, key: j.key });
-      if (onSheet(j.i)) {
-        const png = decode(readFileSync(join(out, j.file)));
-        thumbs.set(j.file, { width: png.width, height: png.height, data: new Uint8ClampedArray(png.data) });
+      // Interim manifests skip the fsync: a resumed run re-checks every image by hash anyway.
+    }, null, 2) + '\n', { durable: complete });
+  // Resume: images already on disk with their recorded hash and an unchanged key are kept; units
+  // shrink to what is missing; a file on disk that is not kept is rendered again (replaced).
+  const units: VariantUnit[] = [];
+  for (const unit of planVariantUnits(recipe, perUnit, columns.length)) {
+    const label = recipe.settings[unit.setting].label;
+    const missing = unit.seeds.filter((i) => {
+      const file = columnFile(label, columns[i]);
+      const path = join(out, file);
+      const k = known.get(file);
+      const key = keyOf.get(file)!;
+      if (!existsSync(path)) return true;
+      if (!k || k.key !== key) {
+        replaced++;
+        return true;
+      }
+      const bytes = readFileSync(path);
+      if (sha(bytes) !== k.sha256) {
+        replaced++;
+        return true;
+      }
+      images.push({ file, seed: columns[i].seed, reference: columns[i].reference?.name ?? null, setting: label, sha256: k.sha256, key });
+      if (onSheet.has(i)) {
+        const png = decode(bytes);
+        thumbs.set(file, { width: png.width, height: png.height, data: new Uint8ClampedArray(png.data) });
       }
       reused++;
-    }
-    if (pending.length) {
-      const codes = new Float32Array(pending.length * per);
-      pending.forEach((j, k) => {
-        const row = base.slice(j.i * per, (j.i + 1) * per);
-        applyEdits(row, gen.layout, Object.entries(j.s.strengths).map(([name, strength]) => directionEdit(byName.get(name)!, strength)));
-        codes.set(row, k * per);
-      });
-      const r = await gen.synthesize(codes, pending.length);
-      pending.forEach((j, k) => {
-        const img = gen.toRgba(r.images, k);
-        if (onSheet(j.i)) thumbs.set(j.file, img);
-        // Compression runs on zlib's threads while the next batch renders; writes follow.
-        writes.push(encodePngAsync(img).then((png) => {
-          writeFileAtomic(join(out, j.file), png, { durable: false });
-          images.push({ file: j.file, seed: j.seed, reference: j.reference, setting: j.s.label, sha256: sha(png), key: j.key });
-          rendered++;
-        }));
-      });
-    }
-    // Keep at most about two batches of images in flight.
-    if (writes.length > 2 * gen.batchSize) await Promise.all(writes.splice(0, writes.length - gen.batchSize));
-    writeManifest(false);
-    yield { done: Math.min(jobs.length, at + chunk.length), total: jobs.length, label: `rendering ${recipe.name}` };
+      return false;
+    });
+    if (missing.length) units.push({ setting: unit.setting, seeds: missing });
   }
-  await Promise.all(writes);
+  const runner = runUnits(units);
+  let lastManifest = performance.now();
+  let finished = false;
+  writeManifest(false);
+  try {
+    for (;;) {
+      const step = await runner.next();
+      if (step.done) {
+        finished = true;
+        break;
+      }
+      for (const { thumb, ...image } of step.value) {
+        images.push({ ...image, reference: image.reference ?? null, key: keyOf.get(image.file)! });
+        if (thumb) thumbs.set(image.file, thumb);
+        rendered++;
+      }
+      // Interim manifests at most every INTERIM_MANIFEST_MS: rewriting a manifest that grows with
+      // every unit after every unit is quadratic work on the render path.
+      if (performance.now() - lastManifest >= INTERIM_MANIFEST_MS) {
+        writeManifest(false);
+        lastManifest = performance.now();
+      }
+      yield { done: rendered + reused, total, label: `rendering ${recipe.name}` };
+    }
+  } finally {
+    await runner.return();
+    // Stopped or failed: the manifest a resumed run starts from lists everything written so far.
+    if (!finished) writeManifest(false);
+  }
   images.sort((a, b) => a.file.localeCompare(b.file));
   writeManifest(true);
   writeFileAtomic(join(out, 'contact-sheet.png'), encodePng(contactSheet(recipe, sheetColumns(columns), thumbs)));
@@ -207,15 +357,6 @@ export async function* renderVariants(gen: Generator, recipe: RecipeInput, direc
 }
 
 const sha = (b: Uint8Array) => createHash('sha256').update(b).digest('hex');
-
-/** A column of the set: a seed or a reference. */
-interface Column {
-  i: number;
-  seed: number | null;
-  reference: LatentReference | null;
-  label: string;
-  stem: string;
-}
 
 /** Columns on the contact sheet: up to SHEET_COLUMNS, the references kept beside the first seeds. */
 const SHEET_COLUMNS = 8;

@@ -1,6 +1,7 @@
 // The engine's state, one per process (and one per CLI command): the open generator, the
 // direction registry (loaded, discovered, kept) and the open project. Handlers and the CLI work
 // through it, so a direction's σ, its edit and its saving to the project happen in one place.
+import { FarmSession } from './farm/session.ts';
 import { dirname, join, resolve } from 'node:path';
 import { fileURLToPath } from 'node:url';
 import { PlumblineError } from '../core/errors.ts';
@@ -31,6 +32,8 @@ export interface LoadedDirection extends Direction {
 
 export class Workspace {
   readonly threads: number;
+  /** The render farm audits and variant sets go to while connected (farm.connect); none by default. */
+  readonly farm = new FarmSession();
   #generator: Generator | null = null;
   #directions = new Map<string, LoadedDirection>();
   #nextDirection = 1;
@@ -248,6 +251,7 @@ export class Workspace {
   }
 
   async dispose(): Promise<void> {
+    await this.farm.disconnect();
     await this.#generator?.dispose();
     this.#generator = null;
   }

@@ -1,6 +1,6 @@
 // Electron main: windows, menus, dialogs, settings and the engine's lifecycle. It stays thin:
 // the engine runs in a utilityProcess and talks to the renderer over a MessagePort directly.
-import { app, BrowserWindow, Menu, MessageChannelMain, dialog, nativeTheme, net, protocol, session, utilityProcess, ipcMain, type UtilityProcess, type MenuItemConstructorOptions } from 'electron';
+import { app, BrowserWindow, Menu, MessageChannelMain, dialog, nativeTheme, net, protocol, safeStorage, session, utilityProcess, ipcMain, type UtilityProcess, type MenuItemConstructorOptions } from 'electron';
 import Store from 'electron-store';
 import { existsSync, renameSync, statSync, writeFileSync } from 'node:fs';
 import { dirname, join, normalize, resolve, sep } from 'node:path';
@@ -22,6 +22,9 @@ interface Settings {
   theme: 'dark' | 'light' | 'system';
   threads: number;
   recent: string[];
+  farmUrl: string;
+  /** The farm password sealed by safeStorage (the OS keychain), base64; never stored in clear. */
+  farmPasswordSealed: string;
 }
 const store = new Store<Settings>({
   name: 'settings',
@@ -29,6 +32,8 @@ const store = new Store<Settings>({
     theme: { type: 'string', enum: ['dark', 'light', 'system'], default: 'system' },
     threads: { type: 'integer', minimum: 1, maximum: 256, default: 1 },
     recent: { type: 'array', items: { type: 'string' }, maxItems: 12, default: [] },
+    farmUrl: { type: 'string', maxLength: 2048, default: '' },
+    farmPasswordSealed: { type: 'string', default: '' },
   },
 });
 
@@ -200,7 +205,18 @@ function registerIpc(): void {
     if (p.key === 'theme') {
       store.set('theme', p.value);
       nativeTheme.themeSource = p.value;
-    } else store.set('threads', p.value);
+    } else if (p.key === 'farmUrl') store.set('farmUrl', p.value);
+    else store.set('threads', p.value);
+  }, isMainFrame));
+  // Secrets go through safeStorage (Keychain, DPAPI or the Secret Service); without it, nothing is stored.
+  ipcMain.handle(C.secretGet, guarded(desktopSchemas[C.secretGet], () => {
+    const sealed = store.get('farmPasswordSealed');
+    if (!sealed || !safeStorage.isEncryptionAvailable()) return null;
+    return safeStorage.decryptString(Buffer.from(sealed, 'base64'));
+  }, isMainFrame));
+  ipcMain.handle(C.secretSet, guarded(desktopSchemas[C.secretSet], ({ value }) => {
+    if (!safeStorage.isEncryptionAvailable()) throw new Error('the OS keychain is not available; the farm password is kept for this session only');
+    store.set('farmPasswordSealed', value ? safeStorage.encryptString(value).toString('base64') : '');
   }, isMainFrame));
 }
 

@@ -17,8 +17,10 @@ contextBridge.exposeInMainWorld('plumbline', {
   pathForFile: (file: File) => webUtils.getPathForFile(file),
   recent: () => ipcRenderer.invoke(C.recentList, {}),
   addRecent: (path: string) => ipcRenderer.invoke(C.recentAdd, { path }),
-  getSetting: (key: 'theme' | 'threads') => ipcRenderer.invoke(C.settingGet, { key }),
-  setSetting: (key: 'theme' | 'threads', value: unknown) => ipcRenderer.invoke(C.settingSet, { key, value }),
+  getSetting: (key: 'theme' | 'threads' | 'farmUrl') => ipcRenderer.invoke(C.settingGet, { key }),
+  setSetting: (key: 'theme' | 'threads' | 'farmUrl', value: unknown) => ipcRenderer.invoke(C.settingSet, { key, value }),
+  getSecret: (key: 'farmPassword') => ipcRenderer.invoke(C.secretGet, { key }),
+  setSecret: (key: 'farmPassword', value: string) => ipcRenderer.invoke(C.secretSet, { key, value }),
   onMenu: (listener: (command: string, arg?: string) => void) => {
     const handler = (_event: unknown, command: unknown, arg: unknown) => {
       if (typeof command === 'string' && (MENU_COMMANDS as readonly string[]).includes(command)) listener(command, typeof arg === 'string' ? arg : undefined);

@@ -7,6 +7,8 @@ export const DESKTOP_CHANNELS = {
   settingGet: 'plumbline:setting-get',
   settingSet: 'plumbline:setting-set',
   printPdf: 'plumbline:print-pdf',
+  secretGet: 'plumbline:secret-get',
+  secretSet: 'plumbline:secret-set',
   menu: 'plumbline:menu',
   enginePort: 'plumbline:engine-port',
   engineStopped: 'plumbline:engine-stopped',

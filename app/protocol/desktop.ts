@@ -6,7 +6,8 @@ import { DESKTOP_CHANNELS } from './channels.ts';
 
 export { DESKTOP_CHANNELS, MENU_COMMANDS, type MenuCommand } from './channels.ts';
 
-export const settingKey = z.enum(['theme', 'threads']);
+export const settingKey = z.enum(['theme', 'threads', 'farmUrl']);
+export const secretKey = z.enum(['farmPassword']);
 export const desktopSchemas = {
   /** pack: an existing .plpack; pack-save: where to write one; folder: an output folder. */
   [DESKTOP_CHANNELS.chooseFile]: z.object({ kind: z.enum(['generator', 'directions', 'project', 'pack', 'pack-save', 'folder']) }),
@@ -18,6 +19,9 @@ export const desktopSchemas = {
   [DESKTOP_CHANNELS.settingSet]: z.discriminatedUnion('key', [
     z.object({ key: z.literal('theme'), value: z.enum(['dark', 'light', 'system']) }),
     z.object({ key: z.literal('threads'), value: z.number().int().min(1).max(256) }),
+    z.object({ key: z.literal('farmUrl'), value: z.string().max(2048) }),
   ]),
+  [DESKTOP_CHANNELS.secretGet]: z.object({ key: secretKey }),
+  [DESKTOP_CHANNELS.secretSet]: z.object({ key: secretKey, value: z.string().max(1024) }),
 } as const;
 

@@ -36,6 +36,8 @@ export const ERROR_CATALOGUE = {
   'no-model': { title: 'No generator is loaded', input: false },
   'protocol': { title: 'A message broke the protocol', input: false },
   'engine-stopped': { title: 'The engine stopped', input: false },
+  'write-failed': { title: 'A file could not be written', input: false },
+  'farm': { title: 'The render farm refused or failed the work', input: false },
   'internal': { title: 'Internal error', input: false },
 } as const satisfies Record<string, { title: string; input: boolean }>;
 

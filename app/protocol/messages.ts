@@ -217,6 +217,18 @@ const uiStateSchema = z.object({
 export const lockHolderSchema = z.object({ pid: z.number().int(), host: z.string(), session: z.string(), at: z.string() });
 export type LockHolder = z.infer<typeof lockHolderSchema>;
 const candidateSchema = z.object({ direction: directionInfoSchema, strip: z.array(imageSchema), stripSeeds: z.array(seed), stripStrengths: z.array(z.number()) });
+/** A render farm as the engine sees it (the password never comes back). */
+const farmWorkerSchema = z.object({ name: z.string(), host: z.string(), threads: z.number().int(), fingerprint: z.string().nullable(), imagesPerSecond: z.number().nullable(), units: z.number().int(), busy: z.string().nullable(), since: z.string() });
+const farmStatusSchema = z.object({
+  connected: z.boolean(),
+  /** The farm's address with any password replaced by ***. */
+  url: z.string().nullable(),
+  workers: z.array(farmWorkerSchema),
+  runs: z.array(z.object({ runId: z.string(), kind: z.enum(['variants', 'audit']), label: z.string(), units: z.number().int(), state: z.enum(['running', 'done', 'failed', 'cancelled']), startedAt: z.string(), message: z.string().optional() })),
+});
+/** Per-worker figures of a farm job, on its progress events. */
+export const farmProgressSchema = z.array(z.object({ worker: z.string(), units: z.number().int(), images: z.number().int(), seconds: z.number(), imagesPerSecond: z.number(), busy: z.string().nullable() }));
+
 const thumbnailSchema = z.object({ direction: z.string(), seed: seed.nullable(), reference: z.string().optional(), strength: z.number(), attribute: z.string(), leakage: z.number(), before: bytes, after: bytes });
 
 /**
@@ -226,6 +238,10 @@ const thumbnailSchema = z.object({ direction: z.string(), seed: seed.nullable(),
  */
 export const methods = {
   'engine.hello': declare('control', z.object({}), z.object({ protocol: z.number(), engine: z.string(), threads: z.number(), model: modelInfoSchema.nullable() })),
+  /** Audits and variant sets go to this farm until 'farm.disconnect'; the engine keeps the password in memory only. */
+  'farm.connect': declare('control', z.object({ url: z.string().min(1).max(2048), password: z.string().max(1024).optional() }), farmStatusSchema),
+  'farm.disconnect': declare('control', z.object({}), farmStatusSchema),
+  'farm.status': declare('control', z.object({}), farmStatusSchema),
   'model.openDemo': declare('control', z.object({}), modelInfoSchema),
   'model.open': declare('control', z.object({ path: z.string().min(1), mappingPath: z.string().min(1).optional() }), modelInfoSchema),
   'directions.open': declare('control', z.object({ path: z.string().min(1) }), z.object({ file: z.string(), directions: z.array(directionInfoSchema) })),
@@ -365,7 +381,7 @@ export const responseSchema = z.discriminatedUnion('ok', [
 export type ResponseMessage = z.infer<typeof responseSchema>;
 
 export const eventSchemas = {
-  'job.progress': z.object({ requestId: z.number().int(), done: z.number().int(), total: z.number().int(), label: z.string() }),
+  'job.progress': z.object({ requestId: z.number().int(), done: z.number().int(), total: z.number().int(), label: z.string(), workers: farmProgressSchema.optional() }),
   'engine.ready': z.object({ engine: z.string(), restarted: z.boolean() }),
   'engine.stopped': z.object({ reason: z.string(), code: z.number().nullable(), restarting: z.boolean() }),
   'model.changed': z.object({ model: modelInfoSchema }),

@@ -1,9 +1,9 @@
 // npm run bench — benchmarks, not tests. Every ratio is measured side by side in one run, with
 // the two sides interleaved round by round so machine drift affects both alike.
 import { fork } from 'node:child_process';
-import { readFileSync } from 'node:fs';
+import { readFileSync, statSync } from 'node:fs';
 import { join } from 'node:path';
-import { tmpdir } from 'node:os';
+import { availableParallelism, loadavg, tmpdir } from 'node:os';
 import { mkdtempSync, readdirSync, rmSync } from 'node:fs';
 import * as ort from 'onnxruntime-node';
 import { chromium } from '@playwright/test';
@@ -13,6 +13,7 @@ import { request, type Message } from '../../app/protocol/messages.ts';
 import { startWebShell } from '../../app/web/serve.ts';
 import { authorLarge } from './author-large.ts';
 import { renderVariants } from '../../app/engine/variants.ts';
+import { sharedPngWriter } from '../../app/engine/png-writer.ts';
 import { readPack, writePack } from '../../app/core/pack.ts';
 import { decodeNpy, encodeNpy } from '../../app/core/npy.ts';
 import { Random } from '../../app/core/random.ts';
@@ -22,10 +23,70 @@ import { FOUND_SSIM, FOUND_DELTA_E } from '../../app/core/search/match.ts';
 import type { FloatImage } from '../../app/core/reference-image.ts';
 
 const root = join(import.meta.dirname, '..', '..');
+/** `npm run bench -- variants audit`: only those sections (throughput, variants, farm, pack, preview, cold, audit, audit-scaling, audit-measures, locate). */
+// PLUMBLINE_BENCH_ONLY=locate (as before) is the same as `-- locate`.
+const only = process.env.PLUMBLINE_BENCH_ONLY ? [process.env.PLUMBLINE_BENCH_ONLY] : process.argv.slice(2);
+const want = (section: string) => only.length === 0 || only.includes(section);
 const THREADS = Number(process.env.PLUMBLINE_THREADS) || 1;
 const rows: [string, string, string, string][] = [];
-const median = (xs: number[]) => [...xs].sort((a, b) => a - b)[Math.floor(xs.length / 2)];
+/** The median (for an even count, the mean of the middle two). */
+const median = (xs: number[]) => {
+  const o = [...xs].sort((a, b) => a - b);
+  return o.length % 2 ? o[(o.length - 1) / 2] : (o[o.length / 2 - 1] + o[o.length / 2]) / 2;
+};
 const pct = (xs: number[], p: number) => [...xs].sort((a, b) => a - b)[Math.min(xs.length - 1, Math.floor(xs.length * p))];
+
+/**
+ * How long the bare side warms up before it is timed. One warm-up run is not enough: a fresh
+ * session in a fresh process runs well below its steady rate for its first second or so (measured
+ * on the demo: 519 img/s in the first 0.7 s, 760–910 img/s after), and the engine side it is
+ * compared with is timed over seconds of steady running.
+ */
+const BARE_WARM_MS = 1500;
+/** Each bare measurement runs at least this long. */
+const BARE_MIN_MS = 1500;
+
+/**
+ * Bare session.run of the synthesis file: images/s at one batch size, fetching the outputs the
+ * engine fetches (image, and attributes when the card declares them), at least `images` images
+ * and BARE_MIN_MS per round after BARE_WARM_MS of warm-up; median of `rounds`.
+ */
+async function bareRate(card: string, batch: number, images: number, rounds: number, threads = THREADS): Promise<number> {
+  const c = JSON.parse(readFileSync(card, 'utf8'));
+  const gen = await Generator.open(card, { threads: 1 });
+  const codes = await gen.codesForSeeds(Array.from({ length: batch }, (_, i) => i), 0.7);
+  const dims = [batch, gen.layout.layers, gen.layout.size];
+  await gen.dispose();
+  const bare = await ort.InferenceSession.create(join(card, '..', c.synthesis.file), { intraOpNumThreads: threads, interOpNumThreads: 1, executionMode: 'sequential', graphOptimizationLevel: 'all' });
+  const fetches = [c.synthesis.output, ...(c.synthesis.attributesOutput ? [c.synthesis.attributesOutput] : [])];
+  const feed = () => ({ [c.synthesis.latentInput]: new ort.Tensor('float32', codes, dims) });
+  try {
+    for (const t = performance.now(); performance.now() - t < BARE_WARM_MS; ) await bare.run(feed(), fetches);
+    const rates: number[] = [];
+    for (let r = 0; r < rounds; r++) {
+      const t = performance.now();
+      let n = 0;
+      while (n < images || performance.now() - t < BARE_MIN_MS) {
+        await bare.run(feed(), fetches);
+        n += batch;
+      }
+      rates.push(n / ((performance.now() - t) / 1000));
+    }
+    return median(rates);
+  } finally {
+    await bare.release();
+  }
+}
+
+/** The limit: the best bare configuration over batch sizes at the same thread count. */
+async function bestBare(card: string, batches: number[], images: number, rounds: number): Promise<{ batch: number; rate: number; text: string }> {
+  let best = { batch: 0, rate: 0 };
+  for (const batch of batches) {
+    const rate = await bareRate(card, batch, Math.max(images, batch), rounds);
+    if (rate > best.rate) best = { batch, rate };
+  }
+  return { ...best, text: `best bare ${best.rate.toFixed(1)} img/s (batch ${best.batch}, ${THREADS} thread${THREADS > 1 ? 's' : ''})` };
+}
 
 async function throughput(label: string, card: string, batch: number, perRound: number, rounds: number) {
   const gen = await Generator.open(card, { threads: THREADS });
@@ -56,7 +117,7 @@ async function throughput(label: string, card: string, batch: number, perRound: 
   }
   const e = median(engineRates);
   const b = median(bareRates);
-  rows.push([`${label}: engine vs bare session.run (batch ${batch}, ${THREADS} thread${THREADS > 1 ? 's' : ''})`, `${e.toFixed(1)} img/s`, `${b.toFixed(1)} img/s`, `${(e / b).toFixed(3)}× (target ≥ 0.95)`]);
+  rows.push([`${label}: engine vs bare session.run (batch ${batch}, ${THREADS} thread${THREADS > 1 ? 's' : ''}, both sides)`, `${e.toFixed(1)} img/s`, `${b.toFixed(1)} img/s`, `${(e / b).toFixed(3)}× (target ≥ 0.95)`]);
   // Bare single-image inference time, for the preview comparison.
   const one = await gen.codesForSeeds([3], 0.7);
   const singles: number[] = [];
@@ -67,7 +128,7 @@ async function throughput(label: string, card: string, batch: number, perRound: 
   }
   await bare.release();
   await gen.dispose();
-  return { single: median(singles), rate: b };
+  return { single: median(singles) };
 }
 
 /**
@@ -138,22 +199,130 @@ async function coldStart() {
   rows.push(['cold start: new engine process → first demo image', `median ${median(times).toFixed(0)} ms`, '', `(${times.map((t) => t.toFixed(0)).join(', ')} ms)`]);
 }
 
-/** Variant-set rendering (render, check, PNG, write, manifest) against the bare session.run rate. */
-async function variantRow(label: string, card: string, bareRate: number, seeds: number[], settings: number, batch: number) {
+/**
+ * Variant-set rendering (render, check, PNG, write, manifest) against bare session.run at the same
+ * batch size and thread count, measured just before and just after on the same number of images
+ * (the mean of the two, so drift on a shared machine affects both sides alike).
+ */
+async function variantRow(label: string, card: string, seeds: number[], settings: number, batch: number, limit: string) {
+  const images = seeds.length * settings;
+  const before = await bareRate(card, batch, images, 1);
   const gen = await Generator.open(card, { threads: THREADS });
   gen.batchSize = batch;
   const out = mkdtempSync(join(tmpdir(), 'plumbline-variants-'));
+  let rate = 0;
+  let cpu0 = process.cpuUsage();
+  let cpuCores = 0;
+  const load = loadavg()[0];
   try {
     const v = { name: 'bench', vector: new Float32Array(gen.layout.size).fill(1 / Math.sqrt(gen.layout.size)), layers: null, sigma: 1 };
     const recipe = { format: 'plumbline.variant-recipe' as const, version: 1 as const, name: 'bench', seeds, psi: 0.7, settings: Array.from({ length: settings }, (_, k) => ({ label: `s${k}`, strengths: { bench: k - 1 } })) };
+    // Warm the session and the PNG writer's threads (as the app's engine has them when a job
+    // starts: both are started once per process); the job itself is timed whole.
+    await gen.renderSeeds(seeds.slice(0, batch), 0.7, []);
+    const warm = await gen.renderSeeds([0], 0.7, []);
+    await sharedPngWriter().writeFloat(gen.floatImage(warm.images, 0), join(out, 'warm.png'), { durable: false });
+    rmSync(join(out, 'warm.png'));
     const t = performance.now();
+    cpu0 = process.cpuUsage();
     const job = renderVariants(gen, recipe, [v], out);
     for (;;) if ((await job.next()).done) break;
-    const rate = (seeds.length * settings) / ((performance.now() - t) / 1000);
-    rows.push([`${label}: variant set (render + PNG + write + manifest), batch ${batch}`, `${rate.toFixed(1)} img/s`, `${bareRate.toFixed(1)} img/s bare`, `${(rate / bareRate).toFixed(3)}× (target ≥ 0.9)`]);
+    const seconds = (performance.now() - t) / 1000;
+    rate = images / seconds;
+    const used = process.cpuUsage(cpu0);
+    cpuCores = (used.user + used.system) / 1e6 / seconds;
   } finally {
     rmSync(out, { recursive: true, force: true });
     await gen.dispose();
+  }
+  const after = await bareRate(card, batch, images, 1);
+  const bare = (before + after) / 2;
+  rows.push([`${label}: variant set (render + PNG + write + manifest), batch ${batch}, ${THREADS} thread${THREADS > 1 ? 's' : ''}`, `${rate.toFixed(1)} img/s`, `${bare.toFixed(1)} img/s bare, same batch (${limit})`, `${(rate / bare).toFixed(3)}× (target ≥ 0.9); process used ${cpuCores.toFixed(2)} cores, load ${load.toFixed(1)} on ${availableParallelism()}`]);
+}
+
+/**
+ * The farm on the realistic generator, 1 thread per worker: one worker through Redis, two workers
+ * through Redis, and one engine on this machine with two threads, all on the same variant set
+ * (same batch, same units). Workers are warmed with a small run first (generator loaded), as a
+ * standing farm would be.
+ *
+ * Queue overhead per unit is what each further unit costs on the farm beyond its rendering: the
+ * farm and one engine here (1 thread, same batch) each render a set of N units and one of 2N; the
+ * per-unit overhead is ((farm 2N − farm N) − (here 2N − here N)) / N, so costs paid once per run
+ * (submitting the flow, publishing the generator, collecting the parent, cleaning up) do not
+ * count against units — they are their own row. Comparing one 4-unit run against one engine, as
+ * before, charged those per-run costs to four units and read 44%.
+ */
+async function farmRows(card: string) {
+  const { startRedis } = await import('../helpers/redis.ts');
+  const { startWorker } = await import('../helpers/farm.ts');
+  const { Farm } = await import('../../app/engine/farm/coordinator.ts');
+  const { renderVariantsOnFarm } = await import('../../app/engine/farm/farm-variants.ts');
+  const { BATCHES_PER_VARIANT_UNIT } = await import('../../app/engine/farm/farm-variants.ts');
+  const batch = 8;
+  const perUnit = batch * BATCHES_PER_VARIANT_UNIT;
+  const seedsOf = (n: number, from = 200) => Array.from({ length: n }, (_, i) => from + i);
+  // One unit per setting (N = 2 units); twice the seeds make 2N.
+  const seeds = seedsOf(perUnit);
+  const units = 2;
+  const images = seeds.length * 2;
+  const redis = await startRedis();
+  const workers: Awaited<ReturnType<typeof startWorker>>[] = [];
+  const gen = await Generator.open(card, { threads: 1 });
+  gen.batchSize = batch;
+  const v = { name: 'bench', vector: new Float32Array(gen.layout.size).fill(1 / Math.sqrt(gen.layout.size)), layers: null, sigma: 1 };
+  const recipe = (name: string, list: number[]) => ({ format: 'plumbline.variant-recipe' as const, version: 1 as const, name, seeds: list, references: [] as string[], psi: 0.7, settings: [{ label: 'a', strengths: { bench: -1 } }, { label: 'b', strengths: { bench: 1 } }] });
+  const timed = async (job: AsyncGenerator<unknown, unknown, void>) => {
+    const t = performance.now();
+    for (;;) if ((await job.next()).done) break;
+    return (performance.now() - t) / 1000;
+  };
+  const farm = await Farm.connect(redis.url);
+  const out = () => mkdtempSync(join(tmpdir(), 'plumbline-farm-bench-'));
+  const onFarm = async (name: string, list: number[]) => timed(renderVariantsOnFarm(farm, gen, recipe(name, list), [v], out(), { modelPath: card }));
+  const here = async (g: Generator, name: string, list: number[]) => timed(renderVariants(g, recipe(name, list), [v], out()));
+  try {
+    workers.push(await startWorker(redis.url, 'one'));
+    await onFarm('warm1', seeds.slice(0, batch));
+    await gen.renderSeeds(seeds.slice(0, batch), 0.7, []);
+    const warm = await gen.renderSeeds([0], 0.7, []);
+    await sharedPngWriter().writeFloat(gen.floatImage(warm.images, 0), join(out(), 'warm.png'), { durable: false });
+    // N = 2 units (32 seeds × 2 settings) and 2N = 4 units (64 seeds): farm (one idle-waiting
+    // worker) and here interleaved, two rounds, medians — load from elsewhere then hits both sides.
+    const farmN: number[] = [];
+    const farm2N: number[] = [];
+    const hereN: number[] = [];
+    const here2N: number[] = [];
+    for (let r = 0; r < 2; r++) {
+      farmN.push(await onFarm(`one-${r}`, seedsOf(perUnit, 1000 * r)));
+      hereN.push(await here(gen, `here-${r}`, seedsOf(perUnit, 1000 * r)));
+      farm2N.push(await onFarm(`one-double-${r}`, seedsOf(2 * perUnit, 1000 * r + 400)));
+      here2N.push(await here(gen, `here-double-${r}`, seedsOf(2 * perUnit, 1000 * r + 400)));
+    }
+    const [one, oneDouble, here1, here1Double] = [farmN, farm2N, hereN, here2N].map(median);
+    workers.push(await startWorker(redis.url, 'two'));
+    // Warm the second worker too: two units, one for each.
+    await onFarm('warm2', seedsOf(perUnit, 5000));
+    const two = await onFarm('two', seeds);
+    for (const w of workers) await w.stop();
+    const gen2 = await Generator.open(card, { threads: 2 });
+    gen2.batchSize = batch;
+    await gen2.renderSeeds(seeds.slice(0, batch), 0.7, []);
+    const here2 = await here(gen2, 'here2', seeds);
+    await gen2.dispose();
+    const rate = (sec: number) => `${(images / sec).toFixed(2)} img/s`;
+    rows.push([`farm, realistic 256², ${images} images in ${units} units of ${perUnit} (batch ${batch}): two workers via Redis vs one worker via Redis (1 thread each)`, rate(two), rate(one), `${(one / two).toFixed(3)}× (2 cores: approaches 2)`]);
+    rows.push([`farm: two workers via Redis (1 thread each) vs one engine here with 2 threads, same set and batch`, rate(two), rate(here2), `${(here2 / two).toFixed(3)}×`]);
+    const unitHere = (here1Double - here1) / units;
+    const overheadPerUnit = ((oneDouble - one) - (here1Double - here1)) / units;
+    const perRun = (one - here1) - units * overheadPerUnit;
+    rows.push([`farm: queue overhead per unit, one worker via Redis vs one engine here (1 thread, batch ${batch}); ${units} vs ${2 * units} units`, `${(overheadPerUnit * 1000).toFixed(0)} ms per unit`, `unit ≈ ${unitHere.toFixed(2)} s here (medians of 2: farm ${one.toFixed(1)} / ${oneDouble.toFixed(1)} s, here ${here1.toFixed(1)} / ${here1Double.toFixed(1)} s)`, `${((100 * overheadPerUnit) / unitHere).toFixed(1)}% (target ≤ 5% for units ≥ 2 s)`]);
+    rows.push([`farm: cost once per run (flow, publishing the ${(gen.info.files.reduce((a, f) => a + statSync(f).size, 0) / 1e6).toFixed(0)} MB generator alongside, collecting, clean-up)`, `${(perRun * 1000).toFixed(0)} ms per run`, '', '']);
+  } finally {
+    for (const w of workers) await w.kill();
+    await farm.close();
+    await gen.dispose();
+    await redis.stop();
   }
 }
 
@@ -184,21 +353,28 @@ async function packRow() {
 }
 
 /** Runs one audit in a fresh process (so peak memory is its own) and returns its figures. */
-function auditChild(probes: number, directions: number, step: number, distance = 'ssim'): Promise<{ ms: number; inRunMs: number; images: number; maxRssMb: number }> {
+function auditChild(probes: number, directions: number, step: number, distance = 'ssim', bare = false): Promise<{ ms: number; inRunMs: number; images: number; bare: { rate: number; batch: number; images: number } | null; maxRssMb: number }> {
   return new Promise((done, fail) => {
-    const child = fork(join(root, 'test', 'bench', 'audit-child.ts'), [String(probes), String(directions), String(step), distance], { execArgv: ['--import', 'tsx'], stdio: ['ignore', 'pipe', 'inherit', 'ipc'], env: { ...process.env, PLUMBLINE_THREADS: String(THREADS) } });
+    const child = fork(join(root, 'test', 'bench', 'audit-child.ts'), [String(probes), String(directions), String(step), distance, ...(bare ? ['bare'] : [])], { execArgv: ['--import', 'tsx'], stdio: ['ignore', 'pipe', 'inherit', 'ipc'], env: { ...process.env, PLUMBLINE_THREADS: String(THREADS) } });
     let out = '';
     child.stdout!.on('data', (c) => (out += c));
     child.on('exit', (code) => (code === 0 ? done(JSON.parse(out.trim().split('\n').pop()!)) : fail(new Error(`audit child exited ${code}`))));
   });
 }
 
-async function auditRows(bareRate: number) {
+async function auditRows(limit: string) {
   for (const distance of ['ssim', 'l2']) {
-    const r = await auditChild(64, 2, 0.5, distance);
+    const r = await auditChild(64, 2, 0.5, distance, true);
     const rate = r.images / (r.ms / 1000);
-    rows.push([`audit throughput, 64 probes × 2 directions × 9 strengths, path length ${distance}`, `${rate.toFixed(0)} img/s (${r.images} rendered + scored)`, `${bareRate.toFixed(0)} img/s bare`, `${(rate / bareRate).toFixed(3)}× (target ≥ 0.9)`]);
+    const b = r.bare!;
+    // The bare side runs in the audit's own process at its batch size and thread count, one batch
+    // after every step of the audit (audit-child.ts says why).
+    rows.push([`audit throughput, 64 probes × 2 directions × 9 strengths (+ null baseline, published-form PPL), path length ${distance}, batch ${b.batch}, ${THREADS} thread${THREADS > 1 ? 's' : ''}`, `${rate.toFixed(0)} img/s (${r.images} rendered + scored)`, `${b.rate.toFixed(0)} img/s bare (${b.images} images interleaved with the audit's steps), same batch, outputs and process (${limit})`, `${(rate / b.rate).toFixed(3)}× (target ≥ 0.9)`]);
   }
+}
+
+/** Audit memory at growing probe counts and time linearity (section 'audit-scaling'). */
+async function auditScalingRows() {
   const mem: [number, number][] = [];
   for (const probes of [64, 256, 1024]) mem.push([probes, (await auditChild(probes, 2, 1)).maxRssMb]);
   const lo = Math.min(...mem.map((m) => m[1]));
@@ -368,48 +544,42 @@ function printRows() {
   for (const r of rows) console.log(line(r));
 }
 
-// PLUMBLINE_BENCH_ONLY=locate or =audit-measures runs those rows alone (with the bare throughputs
-// they compare with); without it, every row.
-const ONLY = process.env.PLUMBLINE_BENCH_ONLY ?? '';
-if (ONLY === 'locate') {
-  await locateThroughput('demo 128²', demoCardPath(), 700);
-  await locateTimeToMatch();
-  const dir = mkdtempSync(join(tmpdir(), 'plumbline-bench-'));
-  try {
-    await locateLarge(authorLarge(dir).card, 220);
-  } finally {
-    rmSync(dir, { recursive: true, force: true });
-  }
-} else if (ONLY === 'audit-measures') {
+const demoLimit = want('variants') || want('audit') ? (await bestBare(demoCardPath(), [1, 4, 8, 16, 32, 64], 256, 3)).text : '';
+const demo = want('throughput') || want('preview') ? await throughput('demo 128²', demoCardPath(), 16, 256, 15) : null;
+if (want('throughput') || want('variants') || want('farm') || want('locate')) {
   const dir = mkdtempSync(join(tmpdir(), 'plumbline-bench-'));
   try {
     const large = authorLarge(dir);
-    const big = await throughput('realistic 256²', large.card, 4, 8, 3);
+    const label = `realistic 256², ${(large.parameters / 1e6).toFixed(1)} M params`;
+    if (want('throughput')) await throughput(label, large.card, 4, 8, 3);
+    if (want('farm')) await farmRows(large.card);
+    if (want('locate')) await locateLarge(large.card, 220);
+    if (want('variants')) await variantRow('realistic 256²', large.card, Array.from({ length: 8 }, (_, i) => i + 1), 2, 4, (await bestBare(large.card, [1, 2, 4, 8], 8, 2)).text);
+  } finally {
+    rmSync(dir, { recursive: true, force: true });
+  }
+}
+if (want('variants')) await variantRow('demo 128²', demoCardPath(), Array.from({ length: 64 }, (_, i) => i), 4, 16, demoLimit);
+if (want('pack')) await packRow();
+if (want('preview')) await previewLatency(demo!.single);
+if (want('cold')) await coldStart();
+if (want('audit')) await auditRows(demoLimit);
+if (want('audit-scaling')) await auditScalingRows();
+if (want('locate')) {
+  await locateThroughput('demo 128²', demoCardPath(), 700);
+  await locateTimeToMatch();
+}
+if (want('audit-measures')) {
+  // Issue 9: an audit from images alone (measures, calibration, change maps) against bare throughput.
+  const dir = mkdtempSync(join(tmpdir(), 'plumbline-bench-'));
+  try {
+    const large = authorLarge(dir);
+    const big = await bestBare(large.card, [4], 8, 3);
     await auditMeasureRow('realistic 256²', large.card, big.rate, 4, 'random:1', ' (target ≥ 0.8)');
   } finally {
     rmSync(dir, { recursive: true, force: true });
   }
-  const demo = await throughput('demo 128²', demoCardPath(), 16, 256, 5);
-  await auditMeasureRow('demo 128²', demoCardPath(), demo.rate, 16, join(root, 'resources', 'demo', 'sigil-directions.npy'), '');
-} else {
-  const demo = await throughput('demo 128²', demoCardPath(), 16, 256, 15);
-  const dir = mkdtempSync(join(tmpdir(), 'plumbline-bench-'));
-  try {
-    const large = authorLarge(dir);
-    const big = await throughput(`realistic 256², ${(large.parameters / 1e6).toFixed(1)} M params`, large.card, 4, 8, 3);
-    await variantRow('realistic 256²', large.card, big.rate, [1, 2, 3, 4], 2, 4);
-    await auditMeasureRow('realistic 256²', large.card, big.rate, 4, 'random:1', ' (target ≥ 0.8)');
-    await locateLarge(large.card, 220);
-  } finally {
-    rmSync(dir, { recursive: true, force: true });
-  }
-  await variantRow('demo 128²', demoCardPath(), demo.rate, Array.from({ length: 64 }, (_, i) => i), 4, 16);
-  await packRow();
-  await previewLatency(demo.single);
-  await coldStart();
-  await auditRows(demo.rate);
-  await auditMeasureRow('demo 128²', demoCardPath(), demo.rate, 16, join(root, 'resources', 'demo', 'sigil-directions.npy'), '');
-  await locateThroughput('demo 128²', demoCardPath(), 700);
-  await locateTimeToMatch();
+  const bare = await bestBare(demoCardPath(), [16], 256, 5);
+  await auditMeasureRow('demo 128²', demoCardPath(), bare.rate, 16, join(root, 'resources', 'demo', 'sigil-directions.npy'), '');
 }
 printRows();

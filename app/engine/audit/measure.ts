@@ -166,6 +166,24 @@ function floatRgb(images: Float32Array, i: number, g: ImageLayout): FloatRgbImag
   return { width: g.width, height: g.height, rgb };
 }
 
+/**
+ * A direction's change map alone: the kept probe images against their edits at +reference, in
+ * probe order — the same sums measureDirection accumulates, for a run whose other measurements
+ * were made elsewhere (a farm's workers do not hold the probe images).
+ */
+export async function measureChangeMap(c: MeasureContext, d: AuditDirection): Promise<ChangeMapSummary | null> {
+  const { gen, plan, probes } = c;
+  const n = probes.images.length;
+  if (!n) return null;
+  const map = new ChangeMapAccumulator();
+  for (let at = 0; at < n; at += gen.batchSize) {
+    const m = Math.min(gen.batchSize, n - at);
+    const out = await gen.synthesize(editedProbes(c, at, m, [{ d, s: plan.reference }]), m);
+    for (let i = 0; i < m; i++) map.add(probes.images[at + i], gen.toRgba(out.images, i));
+  }
+  return map.summary();
+}
+
 /** Additivity of a pair: attribute changes at +reference, and the images' mixed difference at ±ε. */
 export async function* measurePair(c: MeasureContext, a: { d: AuditDirection; scoresAtReference: Float64Array }, b: { d: AuditDirection; scoresAtReference: Float64Array }, tick: Tick): AsyncGenerator<AuditProgress, PairMeasurements, void> {
   const { gen, plan, probes, specs, sigma } = c;

@@ -20,7 +20,8 @@ import type { DefinedAttribute } from '../defined-attributes.ts';
 import { SsimDistanceModel } from '../distance-model.ts';
 import { groundTruthMetrics } from '../lab.ts';
 import { measureAttributeSpread, sampleProbes } from './probes.ts';
-import { measureDirection, measureNullBaseline, measurePair, pairDistances, renderWorstProbes, type DirectionRun, type MeasureContext } from './measure.ts';
+import { measureChangeMap, measureDirection, measureNullBaseline, measurePair, pairDistances, renderWorstProbes, type DirectionRun, type MeasureContext } from './measure.ts';
+import type { DirectionMeasurements } from '../../core/audit/statistics.ts';
 import type { AuditDirection as Direction } from '../../core/audit/plan.ts';
 import type { Tick } from './probes.ts';
 import { calibrateInstrument } from './calibrate.ts';
@@ -61,7 +62,15 @@ export interface AuditModels {
   defined?: DefinedAttribute[];
   /** Reference latents added to the probe set after the seeds (the report's probes.references). */
   references?: ReferenceProbe[];
+  /**
+   * Renders and scores all directions and the null baseline elsewhere (a farm,
+   * app/engine/farm/audit-units.ts) and returns one run per direction and one list of
+   * measurements per null group, in order; by default each is measured here, in turn.
+   */
+  measure?: DirectionsMeasurer;
 }
+
+export type DirectionsMeasurer = (context: MeasureContext, directions: AuditDirection[], nullContext: MeasureContext, nullGroups: AuditDirection[][], tick: (label: string) => AuditProgress) => AsyncGenerator<AuditProgress, { runs: DirectionRun[]; nulls: DirectionMeasurements[][] }, void>;
 
 export async function* runAudit(gen: Generator, directions: AuditDirection[], rawSettings: Partial<AuditSettings> = {}, models: AuditModels = {}): AsyncGenerator<AuditProgress, AuditReport, void> {
   const selection = rawSettings.attributes ?? 'default';
@@ -102,27 +111,29 @@ export async function* runAudit(gen: Generator, directions: AuditDirection[], ra
     // One entry per probe; a reference probe has no seed (NaN here, named by renderedWorst below).
     const probeSeeds = [...plan.seeds, ...plan.references.map(() => NaN)];
     const measured: { d: AuditDirection; run: DirectionRun; stats: DirectionStatistics; unmeasuredTarget: string | null; summary: NullSummary }[] = [];
-    for (const d of directions) {
-      const run = yield* measureDirection(context, d, tick);
-      runs.push(run);
-      const unmeasuredTarget = d.target && !names.includes(d.target) ? d.target : null;
-      const stats = directionStatistics(run.measurements, plan, names, probeSeeds, unmeasuredTarget ? null : d.target, bootstrap, leakCandidates, instrument);
-      measured.push({ d, run, stats, unmeasuredTarget, summary: nullSummary(run.measurements, plan) });
-    }
     // Null baseline (METHODS §10): K random unit directions for each layer rule in use, with the
     // same σ scaling, probes and edit rule, measured at ±reference and, for path length, at the
     // probes themselves (strength 0: the end-point form), which every audited direction also has.
     // The unedited renders and scores are shared (measureNullBaseline); K is the caller's
     // (the CLI's default is 16, the app's APP_NULL_DIRECTIONS) and every report states it.
-    const nulls = new Map<string, NullSummary[]>();
     const K = plan.settings.nullDirections;
-    if (K > 0) {
-      const nullPlan = { ...plan, grid: [-plan.reference, 0, plan.reference], pathLengthGrid: [0] };
-      const nullContext: MeasureContext = { ...context, plan: nullPlan };
-      for (const layers of layerRules(directions)) {
-        const runs = yield* measureNullBaseline(nullContext, nullDirections(gen, K, layers, plan.settings.seed), tick);
-        nulls.set(layerKey(layers), runs.map((r) => nullSummary(r, nullPlan)));
-      }
+    const nullPlan = { ...plan, grid: [-plan.reference, 0, plan.reference], pathLengthGrid: [0] };
+    const nullContext: MeasureContext = { ...context, plan: nullPlan };
+    const nullGroups = K > 0 ? layerRules(directions).map((layers) => ({ key: layerKey(layers), directions: nullDirections(gen, K, layers, plan.settings.seed) })) : [];
+    // On a farm every render-and-score unit (directions and null baseline) is sent at once.
+    const farmed = models.measure ? yield* models.measure(context, directions, nullContext, nullGroups.map((g) => g.directions), tick) : null;
+    for (const [k, d] of directions.entries()) {
+      // A farm's workers do not hold the probe images: the change map is made here.
+      const run = farmed ? { ...farmed.runs[k], changeMap: await measureChangeMap(context, d) } : yield* measureDirection(context, d, tick);
+      runs.push(run);
+      const unmeasuredTarget = d.target && !names.includes(d.target) ? d.target : null;
+      const stats = directionStatistics(run.measurements, plan, names, probeSeeds, unmeasuredTarget ? null : d.target, bootstrap, leakCandidates, instrument);
+      measured.push({ d, run, stats, unmeasuredTarget, summary: nullSummary(run.measurements, plan) });
+    }
+    const nulls = new Map<string, NullSummary[]>();
+    for (const [g, group] of nullGroups.entries()) {
+      const runs = farmed ? farmed.nulls[g] : yield* measureNullBaseline(nullContext, group.directions, tick);
+      nulls.set(group.key, runs.map((r) => nullSummary(r, nullPlan)));
     }
     for (const { d, run, stats, unmeasuredTarget, summary } of measured) {
       const nullRow = K > 0 && !unmeasuredTarget ? nullPercentiles(summary, names.indexOf(stats.target), nulls.get(layerKey(d.layers))!, leakCandidates) : null;

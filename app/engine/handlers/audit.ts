@@ -3,11 +3,14 @@
 // change-map PNGs.
 import { auditReportFile, auditReportWire } from '../../core/audit/report.ts';
 import { runAudit } from '../audit/run.ts';
-import { driveSteps, type AreaHandlers } from './context.ts';
+import { driveSteps, withWorkers, type AreaHandlers } from './context.ts';
 import { vectorHash } from '../project.ts';
 import { referenceCodes } from '../locate-job.ts';
 import { loadReference } from '../references.ts';
 import { referenceProbe } from '../audit/probes.ts';
+import { farmAuditMeasurer } from '../farm/audit-units.ts';
+import { modelLocation } from '../farm/session.ts';
+import type { WorkerProgress } from '../farm/coordinator.ts';
 
 /** Progress is forwarded every this many batches (the audit runs hundreds), not every batch. */
 const AUDIT_PROGRESS_EVERY = 4;
@@ -29,9 +32,13 @@ export const auditHandlers: AreaHandlers<'audit.run'> = {
       const stored = loadReference(projectDir!, name);
       return referenceProbe(name, stored.latent, stored.report.image.sha256);
     });
-    const report = await driveSteps(runAudit(gen, directions, {
+    // On a farm: the render-and-score step goes to its workers; statistics stay here.
+    const farm = workspace.farm.farm;
+    let workers: WorkerProgress[] | undefined;
+    const measure = farm ? farmAuditMeasurer(farm, 'default', { fingerprint: gen.info.fingerprint, files: gen.info.files, ...modelLocation(gen), isCancelled: () => ctx.signal.aborted, onProgress: (r) => (workers = r.workers) }) : undefined;
+    const report = await driveSteps(withWorkers(runAudit(gen, directions, {
       probes: p.probes, pinnedSeeds: p.pinnedSeeds, psi: p.psi, seed: p.seed, referenceStrength: p.referenceStrength, leakPass: p.leakPass, leakFail: p.leakFail, nullDirections: p.nullDirections, combinations: p.combinations,
-    }, { defined, references }), ctx, AUDIT_PROGRESS_EVERY);
+    }, { defined, references, measure }), () => workers), ctx, AUDIT_PROGRESS_EVERY);
     // Kept as history with each direction's vector hash, so sign-off can tell which version passed.
     const project = workspace.project && !workspace.project.readOnly ? workspace.project : null;
     const savedAs = project ? project.saveAudit(auditReportFile(report), Object.fromEntries(directions.map((d) => [d.name, vectorHash(d.vector, d.layers)]))) : null;

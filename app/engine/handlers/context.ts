@@ -3,11 +3,14 @@
 // never builds { cancelled: true } itself — the scheduler answers it when the signal is aborted.
 import type { EventData, EventName, Method, Outcome, Params } from '../../protocol/messages.ts';
 import type { Workspace } from '../workspace.ts';
+import type { WorkerProgress } from '../farm/coordinator.ts';
 
 export interface Progress {
   done: number;
   total: number;
   label: string;
+  /** On a farm: per-worker units, images and images/s. */
+  workers?: WorkerProgress[];
 }
 
 export interface HandlerContext {
@@ -47,6 +50,19 @@ export async function driveSteps<T>(steps: AsyncGenerator<Progress, T, void>, ct
         ctx.progress(step.value);
       }
       await ctx.checkpoint();
+    }
+  } finally {
+    await steps.return(undefined as never);
+  }
+}
+
+/** Adds the latest per-worker figures (a farm job) to every progress step. */
+export async function* withWorkers<T>(steps: AsyncGenerator<Progress, T, void>, workers: () => WorkerProgress[] | undefined): AsyncGenerator<Progress, T, void> {
+  try {
+    for (;;) {
+      const step = await steps.next();
+      if (step.done) return step.value;
+      yield { ...step.value, workers: workers() };
     }
   } finally {
     await steps.return(undefined as never);

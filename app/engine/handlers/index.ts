@@ -15,6 +15,7 @@ import { packHandlers } from './pack.ts';
 import { variantHandlers } from './variants.ts';
 import { locateHandlers } from './locate.ts';
 import { attributeHandlers } from './attributes.ts';
+import { farmHandlers } from './farm.ts';
 
 export const handlers: { [M in Method]: Handler<M> } = {
   ...engineHandlers,
@@ -29,4 +30,5 @@ export const handlers: { [M in Method]: Handler<M> } = {
   ...variantHandlers,
   ...locateHandlers,
   ...attributeHandlers,
+  ...farmHandlers,
 };

@@ -3,10 +3,14 @@
 import { readFileSync } from 'node:fs';
 import { join } from 'node:path';
 import { requestPath } from '../request-paths.ts';
+import { PlumblineError } from '../../core/errors.ts';
 import { renderVariants, resolveRecipeReferences } from '../variants.ts';
-import { driveSteps, type AreaHandlers } from './context.ts';
+import { driveSteps, withWorkers, type AreaHandlers } from './context.ts';
 import { checkUse, useViolations } from '../../core/signoff-rules.ts';
 import { directionUses } from '../project.ts';
+import { renderVariantsOnFarm } from '../farm/farm-variants.ts';
+import { modelLocation } from '../farm/session.ts';
+import type { WorkerProgress } from '../farm/coordinator.ts';
 
 export const variantHandlers: AreaHandlers<'variants.render'> = {
   'variants.render': async (p, ctx) => {
@@ -19,7 +23,14 @@ export const variantHandlers: AreaHandlers<'variants.render'> = {
     const forced = checkUse(useViolations(recipe.settings, directionUses(workspace.project, used)), p.forceReason?.trim() ? { reason: p.forceReason } : null, 'render anyway only with a written reason (Force with a reason)');
     // Named references of the open project beside the seeds (no files from the app: names only).
     const references = resolveRecipeReferences(recipe, null, workspace.project?.dir ?? null, gen);
-    const done = await driveSteps(renderVariants(gen, recipe, used, out, { forced, references }), ctx);
+    // On a farm: units go to its workers; per-worker figures ride on the progress events.
+    const farm = workspace.farm.farm;
+    if (references.length && farm) throw new PlumblineError('bad-request', 'a variant set with references renders on this machine only: disconnect the farm or leave the references out');
+    let workers: WorkerProgress[] | undefined;
+    const job = farm
+      ? renderVariantsOnFarm(farm, gen, recipe, used, out, { ...modelLocation(gen), forced, isCancelled: () => ctx.signal.aborted, onProgress: (r) => (workers = r.workers) })
+      : renderVariants(gen, recipe, used, out, { forced, references });
+    const done = await driveSteps(withWorkers(job, () => workers), ctx);
     return { out, rendered: done.rendered, reused: done.reused, replaced: done.replaced, contactSheet: new Uint8Array(readFileSync(join(out, 'contact-sheet.png'))) };
   },
 };

@@ -11,8 +11,11 @@ export interface DesktopBridge {
   onEngineStopped?(listener: (message: unknown) => void): () => void;
   recent(): Promise<string[]>;
   addRecent(path: string): Promise<void>;
-  getSetting(key: 'theme' | 'threads'): Promise<unknown>;
-  setSetting(key: 'theme' | 'threads', value: unknown): Promise<void>;
+  getSetting(key: 'theme' | 'threads' | 'farmUrl'): Promise<unknown>;
+  setSetting(key: 'theme' | 'threads' | 'farmUrl', value: unknown): Promise<void>;
+  /** Secrets sealed with the OS keychain (Electron safeStorage); absent where it is unavailable. */
+  getSecret?(key: 'farmPassword'): Promise<string | null>;
+  setSecret?(key: 'farmPassword', value: string): Promise<void>;
 }
 
 export function desktop(): DesktopBridge | null {

@@ -25,7 +25,7 @@ interface Pending {
   resolve(v: unknown): void;
   reject(e: unknown): void;
   method: Method;
-  onProgress?: (done: number, total: number, label: string) => void;
+  onProgress?: (done: number, total: number, label: string, workers?: EventData<'job.progress'>['workers']) => void;
 }
 
 type Listener = (data: never) => void;
@@ -134,7 +134,7 @@ export class EngineClient {
     if (m.type === 'event') {
       if (m.event === 'job.progress') {
         const d = m.data as EventData<'job.progress'>;
-        this.#pending.get(d.requestId)?.onProgress?.(d.done, d.total, d.label);
+        this.#pending.get(d.requestId)?.onProgress?.(d.done, d.total, d.label, d.workers);
       }
       if (m.event === 'engine.stopped') {
         this.#failAll('the engine stopped');

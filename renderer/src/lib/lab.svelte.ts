@@ -1,7 +1,7 @@
 // State and intents of the lab screens: project, discovery, audit, repair and sign-off. Works
 // through the same engine client as the workbench (Studio) and keeps Studio's direction list
 // in step with the engine's.
-import { APP_NULL_DIRECTIONS, PROBE_LIMITS, type AuditWire, type DefinedAttributeInfo, type DirectionInfo, type LockHolder, type Params, type Result, type VariantDraft, type WireImage } from '../../../app/protocol/messages.ts';
+import { APP_NULL_DIRECTIONS, PROBE_LIMITS, type AuditWire, type DefinedAttributeInfo, type DirectionInfo, type EventData, type LockHolder, type Params, type Result, type VariantDraft, type WireImage } from '../../../app/protocol/messages.ts';
 import { EngineRequestError } from './engine.ts';
 import { desktop } from './bridge.ts';
 import { reportHtml } from './report.ts';
@@ -12,6 +12,8 @@ type ProjectInfo = Result<'project.open'>;
 type Candidate = Extract<Result<'lab.discover'>, { cancelled: false }>['candidates'][number];
 type Thumb = Extract<Result<'audit.run'>, { cancelled: false }>['thumbnails'][number];
 type ChangeMapPng = Extract<Result<'audit.run'>, { cancelled: false }>['changeMaps'][number];
+/** A job's progress; `workers` on a farm: per-worker units, images and images/s. */
+export type JobProgress = { done: number; total: number; label: string; workers?: EventData<'job.progress'>['workers'] };
 export type Status = 'draft' | 'in-review' | 'approved' | 'rejected';
 
 const LAST_PROJECT_KEY = 'plumbline.lastProject';
@@ -98,7 +100,7 @@ export class Lab {
   confirmingDiscard = $state(false);
   /** Audit history files of the project (every audit is kept). */
   auditFiles = $state.raw<string[]>([]);
-  auditProgress = $state<{ done: number; total: number; label: string } | null>(null);
+  auditProgress = $state<JobProgress | null>(null);
   report = $state.raw<AuditWire | null>(null);
   previousReport = $state.raw<AuditWire | null>(null);
   thumbnails = $state.raw<Thumb[]>([]);
@@ -113,7 +115,7 @@ export class Lab {
   variantSeeds = $state('0-7');
   variantOut = $state('');
   variantSettings = $state<{ label: string; strengths: Record<string, number> }[]>([{ label: 'base', strengths: {} }]);
-  variantProgress = $state<{ done: number; total: number; label: string } | null>(null);
+  variantProgress = $state<JobProgress | null>(null);
   contactSheet = $state<string | null>(null);
   variantSummary = $state<string | null>(null);
   #variantRequest = 0;
@@ -137,6 +139,10 @@ export class Lab {
   auditReferences = $state<string[]>([]);
   /** Target attribute per direction id for the next audit (absent: the direction's own target). */
   auditTargets = $state<Record<string, string>>({});
+  /** The render farm (Redis address); the password stays in memory here, or in the OS keychain on the desktop. */
+  farmUrl = $state('');
+  farmPassword = $state('');
+  farm = $state.raw<Result<'farm.status'> | null>(null);
 
   repairAgainst = $state<string[]>([]);
   holdOthers = $state(true);
@@ -362,7 +368,7 @@ export class Lab {
           defined: this.auditDefined.filter((n) => this.defined.some((d) => d.name === n)),
           targets: Object.fromEntries(Object.entries(this.auditTargets).filter(([id, t]) => ids.includes(id) && t)),
         },
-        (done, total, label) => (this.auditProgress = { done, total, label }),
+        (done, total, label, workers) => (this.auditProgress = { done, total, label, workers }),
       );
       this.#auditRequest = this.engine.lastRequestId;
       const r = await pending;
@@ -486,6 +492,36 @@ export class Lab {
     this.studio.scheduleSave();
   }
 
+  /** Connects the engine to a farm: audits and variant sets then render there. */
+  async connectFarm(): Promise<void> {
+    await this.#guard('Connecting to the farm', async () => {
+      this.farm = await this.engine.request('farm.connect', { url: this.farmUrl.trim(), password: this.farmPassword || undefined });
+      const d = desktop();
+      if (d?.setSecret) {
+        await d.setSetting('farmUrl', this.farmUrl.trim());
+        if (this.farmPassword) await d.setSecret('farmPassword', this.farmPassword);
+      }
+    });
+  }
+
+  async disconnectFarm(): Promise<void> {
+    await this.#guard('Leaving the farm', async () => {
+      this.farm = await this.engine.request('farm.disconnect', {});
+    });
+  }
+
+  async refreshFarm(): Promise<void> {
+    this.farm = await this.engine.request('farm.status', {});
+  }
+
+  /** The desktop app remembers the farm address and (sealed by the OS keychain) its password. */
+  async restoreFarmSetting(): Promise<void> {
+    const d = desktop();
+    if (!d?.getSecret) return;
+    this.farmUrl = String((await d.getSetting('farmUrl')) ?? '');
+    this.farmPassword = (await d.getSecret('farmPassword')) ?? '';
+  }
+
   async renderVariants(force = false): Promise<void> {
     if (this.variantSeedsProblem || this.variantNameProblem) return;
     const seeds = parseSeedList(this.variantSeeds);
@@ -494,7 +530,7 @@ export class Lab {
     this.variantProgress = { done: 0, total: 1, label: 'starting' };
     this.studio.busy = 'Rendering the variant set';
     try {
-      const pending = this.engine.request('variants.render', { name: this.variantName, seeds, psi: this.studio.psi, settings: this.variantSettings, out: this.variantOut, ...(force ? { forceReason: this.forceReason } : {}) }, (done, total, label) => (this.variantProgress = { done, total, label }));
+      const pending = this.engine.request('variants.render', { name: this.variantName, seeds, psi: this.studio.psi, settings: this.variantSettings, out: this.variantOut, ...(force ? { forceReason: this.forceReason } : {}) }, (done, total, label, workers) => (this.variantProgress = { done, total, label, workers }));
       this.#variantRequest = this.engine.lastRequestId;
       const r = await pending;
       if (r.cancelled) {

@@ -1,0 +1,63 @@
+// Farm addresses: redis://[user:password@]host:port[/db] → connection options for BullMQ's Redis
+// client, and the same address with the password hidden, for messages and status lines.
+import { PlumblineError } from '../../core/errors.ts';
+
+export interface FarmAddress {
+  host: string;
+  port: number;
+  username?: string;
+  password?: string;
+  db: number;
+  tls: boolean;
+}
+
+/** Redis's default port (redis.io/docs, common practice). */
+const DEFAULT_REDIS_PORT = 6379;
+
+export function parseFarmUrl(url: string, password?: string): FarmAddress {
+  let u: URL;
+  try {
+    u = new URL(url);
+  } catch {
+    throw new PlumblineError('bad-request', `--farm '${url}' is not an address; expected redis://[user:password@]host:port`);
+  }
+  if (u.protocol !== 'redis:' && u.protocol !== 'rediss:') throw new PlumblineError('bad-request', `--farm '${redact(url)}' must start with redis:// (or rediss:// for TLS)`);
+  if (!u.hostname) throw new PlumblineError('bad-request', `--farm '${redact(url)}' names no host`);
+  const port = u.port ? Number(u.port) : DEFAULT_REDIS_PORT;
+  const db = u.pathname && u.pathname !== '/' ? Number(u.pathname.slice(1)) : 0;
+  if (!Number.isInteger(db) || db < 0) throw new PlumblineError('bad-request', `--farm '${redact(url)}': the database number after the port must be an integer ≥ 0`);
+  return {
+    host: u.hostname.replace(/^\[|\]$/g, ''),
+    port,
+    username: u.username ? decodeURIComponent(u.username) : undefined,
+    password: password ?? (u.password ? decodeURIComponent(u.password) : undefined),
+    db,
+    tls: u.protocol === 'rediss:',
+  };
+}
+
+/** The address with any password replaced by ***. */
+export function redact(url: string): string {
+  return url.replace(/^(rediss?:\/\/[^:@/]*:)[^@/]*@/, '$1***@');
+}
+
+export function describe(a: FarmAddress): string {
+  return `${a.tls ? 'rediss' : 'redis'}://${a.username ? `${a.username}@` : ''}${a.host}:${a.port}${a.db ? `/${a.db}` : ''}`;
+}
+
+/**
+ * Options for the Redis client. Workers need `maxRetriesPerRequest: null` (BullMQ blocks on
+ * Redis and must not give up while it restarts); the coordinator bounds its own waits instead.
+ */
+export function redisOptions(a: FarmAddress, forWorker: boolean) {
+  return {
+    host: a.host,
+    port: a.port,
+    username: a.username,
+    password: a.password,
+    db: a.db,
+    ...(a.tls ? { tls: {} } : {}),
+    maxRetriesPerRequest: forWorker ? null : 3,
+    enableOfflineQueue: true,
+  };
+}

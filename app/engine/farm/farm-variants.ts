@@ -1,0 +1,89 @@
+// Variant sets on a farm: the recipe's (setting × seed chunk) units, four batches each, become farm units; each
+// result is checked (files, seeds, hashes, PNG header and size) before its images are written.
+import { createHash } from 'node:crypto';
+import { join } from 'node:path';
+import { decode } from 'fast-png';
+import { writeFileAtomic } from '../../core/atomic-write.ts';
+import type { Generator } from '../generator.ts';
+import { runVariantSet, variantFile, type Recipe, type VariantDirection, type VariantImage, type VariantOptions, type VariantSetResult, type VariantUnit, type VariantUnitRunner } from '../variants.ts';
+import { chosenOutputFolder } from '../../core/path-policy.ts';
+import type { Farm, FarmUnit, RunProgress } from './coordinator.ts';
+import { variantUnitResultSchema, type VariantUnitResult } from './protocol.ts';
+
+/**
+ * Batches per farm unit. A unit's fixed costs (taking it from the queue, handing its result back,
+ * and encoding its last batch, which nothing overlaps) are paid once per unit; four batches make
+ * them a few percent of the unit. Units start on batch boundaries, so the batches are one
+ * machine's.
+ */
+export const BATCHES_PER_VARIANT_UNIT = 4;
+
+/** PNG signature (ISO/IEC 15948 §5.2). */
+const PNG_SIGNATURE = [137, 80, 78, 71, 13, 10, 26, 10];
+
+export interface FarmRunOptions {
+  modelPath: string;
+  mappingPath?: string;
+  publish?: boolean;
+  isCancelled?: () => boolean;
+  onProgress?: (p: RunProgress) => void;
+}
+
+export function farmVariantRunner(farm: Farm, gen: Generator, recipe: Recipe, directions: VariantDirection[], out: string, o: FarmRunOptions): VariantUnitRunner {
+  const { width, height } = gen.imageSize();
+  return async function* (plan: VariantUnit[]) {
+    if (plan.length === 0) return;
+    const units: FarmUnit[] = plan.map((u) => {
+      const seeds = u.seeds.map((i) => recipe.seeds[i]);
+      return {
+        name: `${recipe.name} '${recipe.settings[u.setting].label}' seeds ${seeds[0]}…${seeds[seeds.length - 1]}`,
+        data: { kind: 'variants', recipe, directions: directions.map((d) => ({ name: d.name, vector: Array.from(d.vector), layers: d.layers, sigma: d.sigma })), unit: u, batch: gen.batchSize },
+      };
+    });
+    const planOf = new Map(units.map((u, k) => [u, plan[k]]));
+    const ready: VariantImage[][] = [];
+    const check = (unit: FarmUnit, r: VariantUnitResult) => {
+      const u = planOf.get(unit)!;
+      const label = recipe.settings[u.setting].label;
+      if (r.images.length !== u.seeds.length) throw new Error(`${r.images.length} images for ${u.seeds.length} seeds`);
+      r.images.forEach((img, k) => {
+        const seed = recipe.seeds[u.seeds[k]];
+        if (img.seed !== seed || img.file !== variantFile(label, seed)) throw new Error(`image ${k} is ${img.file} (seed ${img.seed}), expected ${variantFile(label, seed)}`);
+        const bytes = Buffer.from(img.png, 'base64');
+        const got = createHash('sha256').update(bytes).digest('hex');
+        if (got !== img.sha256) throw new Error(`${img.file}: bytes hash to ${got}, the worker claimed ${img.sha256}`);
+        if (bytes.length < 24 || PNG_SIGNATURE.some((b, i) => bytes[i] !== b)) throw new Error(`${img.file} is not a PNG`);
+        const w = bytes.readUInt32BE(16);
+        const h = bytes.readUInt32BE(20);
+        if (w !== width || h !== height) throw new Error(`${img.file} is ${w}×${h}, the generator renders ${width}×${height}`);
+      });
+      return r.images.length;
+    };
+    const accept = (unit: FarmUnit, r: VariantUnitResult) => {
+      const u = planOf.get(unit)!;
+      const label = recipe.settings[u.setting].label;
+      ready.push(r.images.map((img) => {
+        const bytes = Buffer.from(img.png, 'base64');
+        writeFileAtomic(join(out, img.file), bytes, { durable: false });
+        const png = recipe.seeds.indexOf(img.seed) < 8 ? decode(bytes) : null;
+        return { file: img.file, seed: img.seed, setting: label, sha256: img.sha256, thumb: png ? { width: png.width, height: png.height, data: new Uint8ClampedArray(png.data) } : undefined };
+      }));
+    };
+    const run = farm.run({
+      kind: 'variants', label: `variants ${recipe.name}`, units, schema: variantUnitResultSchema, check,
+      model: { fingerprint: gen.info.fingerprint, files: gen.info.files, path: o.modelPath, mappingPath: o.mappingPath }, publish: o.publish, isCancelled: o.isCancelled,
+    }, accept);
+    for await (const p of run) {
+      o.onProgress?.(p);
+      while (ready.length) yield ready.shift()!;
+    }
+    while (ready.length) yield ready.shift()!;
+  };
+}
+
+/** A variant set rendered on a farm: the same files, manifest and contact sheet as on this machine. */
+export async function* renderVariantsOnFarm(farm: Farm, gen: Generator, recipe: Recipe, directions: VariantDirection[], outFolder: string, o: FarmRunOptions & VariantOptions): AsyncGenerator<{ done: number; total: number; label: string }, VariantSetResult, void> {
+  // The same output-folder rule as on this machine (app/core/path-policy.ts).
+  const out = chosenOutputFolder(outFolder, 'the variant-set folder');
+  return yield* runVariantSet({ name: gen.info.name, fingerprint: gen.info.fingerprint, centreFromCard: !!gen.card?.truncation.centre }, recipe, directions, out, gen.batchSize * BATCHES_PER_VARIANT_UNIT, farmVariantRunner(farm, gen, recipe, directions, out, o), o);
+}

@@ -1,0 +1,110 @@
+// The sandboxed processor of a farm worker: BullMQ runs this file in a child process, so
+// inference never blocks the worker's event loop and its lock renewals. It loads a generator only
+// after its fingerprint checks out, renders one unit, and hands the result back to BullMQ; it
+// writes nothing except the generator files it fetches into the worker's scratch folder.
+import { hostname } from 'node:os';
+import { existsSync } from 'node:fs';
+import { join } from 'node:path';
+import { Redis } from 'ioredis';
+import { UnrecoverableError, type SandboxedJob } from 'bullmq';
+import { Generator, fingerprintModel } from '../generator.ts';
+import { PlumblineError } from '../../core/errors.ts';
+import { recipeSchema, synthesizeVariantUnit } from '../variants.ts';
+import { sharedPngWriter } from '../png-writer.ts';
+import { fetchModel } from './model-store.ts';
+import { auditUnit, isAuditUnit } from './audit-units.ts';
+import { keys, variantUnitDataSchema, type ModelRef, type VariantUnitResult } from './protocol.ts';
+import { parseFarmUrl, redisOptions } from './connection.ts';
+
+/** Set by the worker process before it starts the sandbox (see worker.ts). */
+export interface WorkerSettings {
+  name: string;
+  threads: number;
+  url: string;
+  password?: string;
+  scratch: string;
+  /** [from, to] path prefixes: the coordinator's path → this machine's path. */
+  pathMaps: [string, string][];
+}
+export const WORKER_SETTINGS_ENV = 'PLUMBLINE_FARM_WORKER';
+
+const settings: WorkerSettings = JSON.parse(process.env[WORKER_SETTINGS_ENV] ?? 'null') ?? { name: hostname(), threads: 1, url: '', scratch: '', pathMaps: [] };
+let redis: Redis | null = null;
+const connection = () => (redis ??= new Redis(redisOptions(parseFarmUrl(settings.url, settings.password), true)));
+let loaded: { fingerprint: string; gen: Generator } | null = null;
+
+export function mapPath(path: string, maps: [string, string][]): string {
+  for (const [from, to] of maps) if (path === from || path.startsWith(from.endsWith('/') ? from : `${from}/`)) return to + path.slice(from.length);
+  return path;
+}
+
+/** The run's generator, loaded only once its fingerprint equals the one the coordinator sent. */
+export async function generatorFor(model: ModelRef, runId: string): Promise<Generator> {
+  if (loaded?.fingerprint === model.fingerprint) return loaded.gen;
+  const local = mapPath(model.path, settings.pathMaps);
+  let entry: string;
+  let mapping = model.mappingPath ? mapPath(model.mappingPath, settings.pathMaps) : undefined;
+  if (existsSync(local)) entry = local;
+  else if (model.published) {
+    entry = await fetchModel(connection(), runId, join(settings.scratch, 'models', model.fingerprint), settings.name);
+    mapping = undefined;
+  } else throw new PlumblineError('farm', `worker ${settings.name}: cannot reach the generator at ${local}${local !== model.path ? ` (mapped from ${model.path})` : ''} and the coordinator did not publish it`);
+  const found = fingerprintModel(entry, mapping).fingerprint;
+  if (found !== model.fingerprint) throw new PlumblineError('farm', `worker ${settings.name} refused ${entry}: expected generator fingerprint ${model.fingerprint}, found ${found}`);
+  if (loaded) await loaded.gen.dispose();
+  loaded = null;
+  const gen = await Generator.open(entry, { threads: settings.threads, mappingPath: mapping });
+  // Checked again on the loaded model: the files could have changed between the two reads.
+  if (gen.info.fingerprint !== model.fingerprint) {
+    await gen.dispose();
+    throw new PlumblineError('farm', `worker ${settings.name} refused ${entry}: expected generator fingerprint ${model.fingerprint}, found ${gen.info.fingerprint}`);
+  }
+  loaded = { fingerprint: model.fingerprint, gen };
+  return gen;
+}
+
+/** Throws when the run was cancelled; called before every batch. */
+export async function checkCancelled(runId: string): Promise<void> {
+  if (await connection().exists(keys.cancel(runId))) throw new UnrecoverableError(`run ${runId} was cancelled`);
+}
+
+async function variantUnit(job: SandboxedJob): Promise<VariantUnitResult> {
+  const data = variantUnitDataSchema.parse(job.data);
+  const recipe = recipeSchema.parse(data.recipe);
+  const started = performance.now();
+  await checkCancelled(data.runId);
+  const gen = await generatorFor(data.model, data.runId);
+  gen.batchSize = data.batch;
+  const directions = data.directions.map((d) => ({ ...d, vector: Float32Array.from(d.vector) }));
+  // Batch by batch, as one machine renders the same seeds; each batch's conversion and PNG
+  // encoding run on a thread while the next batch renders.
+  const pool = sharedPngWriter();
+  const encoded: Promise<VariantUnitResult['images'][number]>[] = [];
+  try {
+    for (let at = 0; at < data.unit.seeds.length; at += data.batch) {
+      if (at > 0) await checkCancelled(data.runId);
+      const r = await synthesizeVariantUnit(gen, recipe, directions, { setting: data.unit.setting, seeds: data.unit.seeds.slice(at, at + data.batch) });
+      encoded.push(...r.seeds.map(async (seed, k) => {
+        const e = await pool.encodeFloat(gen.floatImage(r.images, k));
+        // Farm units hold seeds only (a recipe with references renders on one machine).
+        return { file: r.files[k], seed: seed!, sha256: e.sha256, png: Buffer.from(e.png.buffer, e.png.byteOffset, e.png.byteLength).toString('base64') };
+      }));
+      await job.updateProgress({ worker: settings.name, done: Math.min(data.unit.seeds.length, at + data.batch), total: data.unit.seeds.length });
+    }
+    const images = await Promise.all(encoded);
+    return { kind: 'variants', worker: settings.name, seconds: (performance.now() - started) / 1000, images };
+  } finally {
+    await Promise.allSettled(encoded);
+  }
+}
+
+export default async function processUnit(job: SandboxedJob): Promise<unknown> {
+  try {
+    if (isAuditUnit(job.data)) return await auditUnit(job, settings.name, (data) => generatorFor(data.model, data.runId), checkCancelled);
+    return await variantUnit(job);
+  } catch (err) {
+    if (err instanceof UnrecoverableError) throw err;
+    // The message names the unit and this worker, so a run that fails says where and why.
+    throw new Error(`unit ${(job.data as { unitName?: string }).unitName ?? job.id} on worker ${settings.name}: ${(err as Error).message}`);
+  }
+}

@@ -1,0 +1,86 @@
+// The PNG writer pool: files written on worker threads hold exactly encodePng's bytes, decode to
+// the same pixels with an independent decoder (fast-png), float images converted there match the
+// render thread's conversion, and failures name the file (or the generator, for bad values).
+import { test } from 'node:test';
+import assert from 'node:assert/strict';
+import { readFileSync, writeFileSync, mkdirSync } from 'node:fs';
+import { join } from 'node:path';
+import { createHash } from 'node:crypto';
+import { decode } from 'fast-png';
+import { encodePng, type RgbaImage } from '../../app/core/image.ts';
+import { PngWriterPool } from '../../app/engine/png-writer.ts';
+import { Random } from '../../app/core/random.ts';
+import { tempDir } from '../helpers/models.ts';
+import { Generator } from '../../app/engine/generator.ts';
+import { demoCardPath } from '../../app/engine/workspace.ts';
+
+function noise(width: number, height: number, seed: number): RgbaImage {
+  const rng = new Random(seed);
+  const data = new Uint8ClampedArray(width * height * 4);
+  for (let i = 0; i < data.length; i++) data[i] = i % 4 === 3 ? 255 : Math.floor(rng.uniform() * 256);
+  return { width, height, data };
+}
+
+test('images written by the pool are byte-identical to encodePng and decode to the same pixels', async () => {
+  const dir = tempDir();
+  const pool = new PngWriterPool(2);
+  try {
+    const images = Array.from({ length: 12 }, (_, k) => noise(17 + k, 9 + 2 * k, k));
+    const expected = images.map((img) => encodePng(img));
+    const pixels = images.map((img) => img.data.slice());
+    const written = await Promise.all(images.map((img, k) => pool.write(img, join(dir, 'sub', `i${k}.png`))));
+    written.forEach((w, k) => {
+      const bytes = readFileSync(w.file);
+      assert.deepEqual(new Uint8Array(bytes), expected[k], `image ${k}: same bytes as the main-thread encoder`);
+      assert.equal(w.sha256, createHash('sha256').update(bytes).digest('hex'));
+      assert.equal(w.bytes, bytes.length);
+      // Outside check: fast-png (an independent PNG decoder) reads back the original pixels.
+      const back = decode(bytes);
+      assert.equal(back.width, images[k].width);
+      assert.deepEqual(new Uint8ClampedArray(back.data), pixels[k]);
+    });
+  } finally {
+    await pool.close();
+  }
+});
+
+test('a write that cannot happen is rejected with the file named', async () => {
+  const dir = tempDir();
+  writeFileSync(join(dir, 'blocker'), 'a file, not a folder');
+  mkdirSync(join(dir, 'ok'));
+  const pool = new PngWriterPool(1);
+  try {
+    await assert.rejects(pool.write(noise(4, 4, 1), join(dir, 'blocker', 'x.png')), (err: Error & { code?: string }) => err.code === 'write-failed' && err.message.includes(join(dir, 'blocker', 'x.png')));
+    // The pool keeps working after a failed write.
+    const w = await pool.write(noise(4, 4, 2), join(dir, 'ok', 'y.png'));
+    assert.ok(readFileSync(w.file).length > 0);
+  } finally {
+    await pool.close();
+  }
+});
+
+test('float images converted on the pool write the same bytes as toRgba + encodePng on the render thread; bad values keep their error codes', async () => {
+  const dir = tempDir();
+  const pool = new PngWriterPool(2);
+  const gen = await Generator.open(demoCardPath(), { threads: 1 });
+  try {
+    const r = await gen.renderSeeds([5, 6, 7], 0.7, []);
+    for (let i = 0; i < 3; i++) {
+      const rgba = gen.toRgba(r.images, i);
+      const w = await pool.writeFloat(gen.floatImage(r.images, i), join(dir, `f${i}.png`), { keepPixels: true });
+      assert.deepEqual(new Uint8Array(readFileSync(w.file)), encodePng(rgba), `image ${i}: same bytes`);
+      assert.deepEqual(w.pixels?.data, rgba.data, `image ${i}: the pixels sent back are toRgba's`);
+      // Outside check: fast-png reads back toRgba's pixels.
+      assert.deepEqual(new Uint8ClampedArray(decode(readFileSync(w.file)).data), rgba.data);
+    }
+    const bad = gen.floatImage(r.images, 0);
+    bad.values[17] = Number.NaN;
+    await assert.rejects(pool.writeFloat(bad, join(dir, 'nan.png')), (err: Error & { code?: string }) => err.code === 'output-not-finite' && err.message.includes(bad.origin));
+    const far = gen.floatImage(r.images, 1);
+    far.values[3] = 1e6;
+    await assert.rejects(pool.writeFloat(far, join(dir, 'far.png')), (err: Error & { code?: string }) => err.code === 'output-out-of-range');
+  } finally {
+    await gen.dispose();
+    await pool.close();
+  }
+});

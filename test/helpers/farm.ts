@@ -1,0 +1,63 @@
+// Farm workers for tests: `plumbline worker` processes in their own process groups (so a test can
+// kill one with its sandbox, as a crash would), with short lock and stall-check times.
+import { spawn, type ChildProcess } from 'node:child_process';
+import { join } from 'node:path';
+
+const root = join(import.meta.dirname, '..', '..');
+
+/** Short enough to see a killed worker's unit come back within seconds; long enough not to stall a live one. */
+export const TEST_LOCK_MS = 3000;
+export const TEST_STALLED_CHECK_MS = 1000;
+
+export interface TestWorker {
+  name: string;
+  child: ChildProcess;
+  log: () => string;
+  /** SIGKILL to the worker and its sandbox processes (its process group). */
+  kill(): Promise<void>;
+  /** SIGTERM: finish the unit in hand, then stop. */
+  stop(): Promise<void>;
+}
+
+export async function startWorker(url: string, name: string, extra: string[] = [], env: Record<string, string> = {}): Promise<TestWorker> {
+  const child = spawn(process.execPath, [join(root, 'app', 'cli', 'bin.js'), 'worker', '--farm', url, '--name', name, '--threads', '1', ...extra], {
+    detached: true,
+    stdio: ['ignore', 'pipe', 'pipe'],
+    env: { ...process.env, PLUMBLINE_FARM_LOCK_MS: String(TEST_LOCK_MS), PLUMBLINE_FARM_STALLED_CHECK_MS: String(TEST_STALLED_CHECK_MS), ...env },
+  });
+  let out = '';
+  child.stdout!.on('data', (b) => (out += b));
+  child.stderr!.on('data', (b) => (out += b));
+  const exited = () => child.exitCode !== null || child.signalCode !== null;
+  await new Promise<void>((done, fail) => {
+    const t = setInterval(() => {
+      if (out.includes(`worker ${name} ready`)) {
+        clearInterval(t);
+        done();
+      } else if (exited()) {
+        clearInterval(t);
+        fail(new Error(`worker ${name} exited before it was ready:\n${out}`));
+      }
+    }, 50);
+  });
+  const waitExit = () => new Promise<void>((done) => (exited() ? done() : child.once('exit', () => done())));
+  return {
+    name, child, log: () => out,
+    kill: async () => {
+      if (exited()) return;
+      process.kill(-child.pid!, 'SIGKILL');
+      await waitExit();
+    },
+    stop: async () => {
+      if (exited()) return;
+      child.kill('SIGTERM');
+      await waitExit();
+      // Its sandbox children share the group; make sure none outlive it.
+      try {
+        process.kill(-child.pid!, 'SIGKILL');
+      } catch {
+        // already gone
+      }
+    },
+  };
+}
