@@ -121,7 +121,7 @@ export function auditTable(report: AuditReport): string {
   if (report.directions.some((d) => d.targetChosen)) out.push('', '* no target named: the attribute the direction moves most');
   const first = report.directions[0];
   if (first) out.push('', `leakage: largest mean |Δ|/σ of a non-target attribute (attribute dependency); path length in ${first.pathLength.units}, ε = ${first.pathLength.epsilon} σ, 1st/99th-percentile filtered`);
-  if (report.nullBaseline) out.push(`null pct: percentile of target effect / leak / path length among ${report.nullBaseline.directions} random directions per layer rule (${report.nullBaseline.rules.join('; ')})`);
+  if (report.nullBaseline) out.push(`null pct: percentile of target effect / leak / end-point path length (at strength 0, the published end-point form) among ${report.nullBaseline.directions} random directions per layer rule (${report.nullBaseline.rules.join('; ')})`);
   if (report.referencePathLength) {
     const r = report.referencePathLength;
     out.push(`generator reference: ${r.form}: ${r.value.toPrecision(4)} [${r.low.toPrecision(4)}–${r.high.toPrecision(4)}] ${r.units} over ${r.samples} pairs`);
@@ -189,6 +189,7 @@ export function addLabCommands(program: Command, ctx: CliContext, number: (n: st
     .option('-m, --model <file>', 'model card or .onnx; default: the bundled demo')
     .requiredOption('-d, --directions <file>', 'directions (.npy with optional .json sidecar)')
     .option('--only <names>', 'audit only these directions (comma-separated)')
+    .option('--target <direction=attribute,…>', "audit a direction against another target for this audit only, e.g. crest_size=subject_radius (the direction file's own target otherwise)")
     .option('--probes <n>', `random probe latents, ${PROBE_LIMITS.min}–${PROBE_LIMITS.max} (with the --pin seeds at least ${PROBE_LIMITS.minTotal} in all; 0 only with --pin)`, integer('--probes', PROBE_LIMITS.min, PROBE_LIMITS.max), 64)
     .option('--pin <seeds>', 'pinned probe seeds, e.g. 3,17,40-42')
     .option('--pin-latents <files>', 'latent .npy files pinned as probes beside the seeds, comma-separated (e.g. found.npy from plumbline locate, or a project\'s references/<name>.npy)')
@@ -229,7 +230,16 @@ export function addLabCommands(program: Command, ctx: CliContext, number: (n: st
         for (const c of o.scorer as string[]) scorers.push(await ScorerModel.open(c, { threads: o.threads }));
         const features = o.featureScorer ? await ScorerModel.open(o.featureScorer, { threads: o.threads }) : undefined;
         if (features) scorers.push(features);
-        const dirs = loadDirections(workspace, o.directions, o.only ? String(o.only).split(',') : undefined);
+        const loaded = loadDirections(workspace, o.directions, o.only ? String(o.only).split(',') : undefined);
+        // --target crest_size=subject_radius,turn=orientation: targets for this audit only.
+        const targets = new Map<string, string>();
+        for (const pair of o.target ? String(o.target).split(',').filter(Boolean) : []) {
+          const m = /^([^=]+)=([^=]+)$/.exec(pair.trim());
+          if (!m) throw ctx.usage(`--target '${pair}' must look like direction=attribute, e.g. crest_size=subject_radius`);
+          if (!loaded.some((d) => d.name === m[1])) throw ctx.usage(`--target names no audited direction '${m[1]}'; audited: ${loaded.map((d) => d.name).join(', ')}`);
+          targets.set(m[1], m[2]);
+        }
+        const dirs = loaded.map((d) => (targets.has(d.name) ? { ...d, target: targets.get(d.name)! } : d));
         const defined: DefinedAttribute[] = (o.defined as string[]).flatMap((p) => (p.endsWith('.json') ? [DefinedAttribute.load(p)] : loadProjectAttributes(p)));
         if (o.define) {
           const r = await defineFromTagsFile(workspace.requireGenerator(), o.define, { psi: o.psi, seed: o.seed });

@@ -64,3 +64,18 @@ test('audit --define refuses to audit with an attribute below the floor; a broke
   assert.equal(c.status, 2);
   assert.match(c.stderr, /bad\.json: not a valid tags file/);
 });
+
+test('audit --target audits a direction against another attribute for this audit only; a bad pair is named', () => {
+  const disc = join(root, 'resources', 'disc');
+  const out = join(tempDir(), 'target.json');
+  const base = ['--model', join(disc, 'disc.onnx'), '--directions', join(disc, 'disc-directions.npy'), '--attributes', 'image', '--only', 'sheen', '--probes', '4', '--nulls', '0', '--combinations', 'none'];
+  // sheen names a target nothing measures; pointed at subject_hue it is judged instead of "no measure".
+  const r = spawnSync(process.execPath, [join(root, 'app', 'cli', 'bin.js'), 'audit', ...base, '--target', 'sheen=subject_hue', '--json', out], { encoding: 'utf8' });
+  assert.equal(r.status, 0, r.stderr);
+  const report = JSON.parse(readFileSync(out, 'utf8'));
+  assert.equal(report.directions[0].target, 'subject_hue');
+  assert.notEqual(report.directions[0].verdict, 'no-measure');
+  const bad = spawnSync(process.execPath, [join(root, 'app', 'cli', 'bin.js'), 'audit', ...base, '--target', 'glint=subject_hue'], { encoding: 'utf8' });
+  assert.equal(bad.status, 2);
+  assert.match(bad.stderr, /--target names no audited direction 'glint'; audited: sheen/);
+});

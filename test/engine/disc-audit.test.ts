@@ -90,7 +90,7 @@ test('the instrument is calibrated in the report, and apparent leaks within it a
   assert.ok(c.measures.shape_roundness.noiseFloor > 0.3, `roundness floor ${c.measures.shape_roundness.noiseFloor}`);
   const grow = report.directions.find((x) => x.name === 'grow')!;
   assert.ok(grow.withinInstrument.length > 0);
-  assert.match(grow.reason, /not called leaks, being within what the instrument shows by itself/);
+  assert.match(grow.reason, /set aside as within the instrument's own noise floor or cross-talk/);
   assert.equal(report.noSubject?.probes, 0);
 });
 

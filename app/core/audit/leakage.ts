@@ -172,6 +172,13 @@ export function exceedance(plus: ChangeColumns, minus: ChangeColumns, target: nu
   return { threshold, probes, count, ...clopperPearson(count, probes, confidence) };
 }
 
+/**
+ * Path lengths below this (in the audit's distance per σ^p) are rendering noise, not change: an
+ * inert direction's path length is float32 rounding (1e-9 to 1e-7 on the demo and the Disc), a
+ * visible direction's 1e-3 and up. A "spike" between two noise values is not a break.
+ */
+export const PATH_LENGTH_FLOOR = 1e-6;
+
 export interface BreakPoint {
   strength: number;
   side: 'negative' | 'positive';
@@ -207,7 +214,7 @@ export function findBreaks(x: SafeRangeInput): { negative: BreakPoint | null; po
     const cleanStart = first !== null && first.high < x.leakPass;
     for (const [s, i] of order) {
       const p = x.pathLength[i];
-      if (Number.isFinite(p) && x.calmPathLength > 0 && p > x.spikeRatio * x.calmPathLength) {
+      if (Number.isFinite(p) && x.calmPathLength > 0 && p > PATH_LENGTH_FLOOR && p > x.spikeRatio * x.calmPathLength) {
         return { strength: s, side: sign > 0 ? 'positive' : 'negative', cause: `path length spikes ×${(p / x.calmPathLength).toFixed(1)}` };
       }
       const l = x.leaks[i];

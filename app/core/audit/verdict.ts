@@ -49,7 +49,8 @@ export function judgeDirection(stats: DirectionStatistics, x: { reference: numbe
     enoughProbes: !x.fewProbes,
   });
   const parts: string[] = [];
-  const pct = (v: number) => `${(v * 100).toFixed(v < 0.1 ? 1 : 0)}%`;
+  // One decimal always: the pass rule's 11.6% must not read as 12%.
+  const pct = (v: number) => `${(v * 100).toFixed(1)}%`;
   const E = stats.exceedance;
   const exceedText = `${E.count} of ${E.probes} probes leak ≥ ${fmt2(E.threshold)} σ (95% CI ${pct(E.low)}–${pct(E.high)} of probes)`;
   const leakText = `leaks into ${L.attribute}: ${fmt2(L.value)} σ at strength ${formatStrength(L.strength)} (95% CI ${fmt2(L.low)}–${fmt2(L.high)}) against the target's own ${fmt2(L.targetChange.value)} σ`;
@@ -66,14 +67,20 @@ export function judgeDirection(stats: DirectionStatistics, x: { reference: numbe
   else if (verdict === 'review' && L.high < S.leakPass && E.high > MAX_EXCEEDANCE_SHARE && covers) parts.push(`${E.probes} probes cannot rule out a leaking share above ${pct(MAX_EXCEEDANCE_SHARE)}`);
   if (stats.withinInstrument.length) {
     const shown = stats.withinInstrument.slice(0, 3).map((w) => `${w.attribute} ${fmt2(w.change)} σ${w.via ? ` (via ${w.via})` : ''}`).join(', ');
-    parts.push(`not called leaks, being within what the instrument shows by itself (its noise floor or cross-talk under exact transforms): ${shown}${stats.withinInstrument.length > 3 ? ` and ${stats.withinInstrument.length - 3} more` : ''}`);
+    parts.push(`set aside as within the instrument's own noise floor or cross-talk under exact transforms: ${shown}${stats.withinInstrument.length > 3 ? ` and ${stats.withinInstrument.length - 3} more` : ''}`);
   }
-  if (x.nulls) parts.push(`against ${x.nulls.count} random directions: target effect at the ${Math.round(x.nulls.targetEffect)}th percentile, leak ${Math.round(x.nulls.leakage)}th, path length ${Math.round(x.nulls.pathLength)}th`);
+  if (x.nulls) parts.push(`against ${x.nulls.count} random directions: target effect at the ${ordinal(x.nulls.targetEffect)} percentile, leak ${ordinal(x.nulls.leakage)}, end-point path length ${ordinal(x.nulls.pathLength)}`);
   if (stats.targetChosen) parts.push(`no target was named; took ${stats.target}, the attribute it moves most`);
   return { verdict, reason: parts.join('; '), decidedBy };
 }
 
 const fmt2 = (v: number) => v.toFixed(2);
+/** 81 → "81st", 63 → "63rd", 12 → "12th" (a percentile rounded to a whole number). */
+export function ordinal(v: number): string {
+  const n = Math.round(v);
+  const teen = n % 100 >= 11 && n % 100 <= 13;
+  return `${n}${teen ? 'th' : ['th', 'st', 'nd', 'rd'][n % 10] ?? 'th'}`;
+}
 
 export function judgeCombination(stats: CombinationStatistics): CombinationVerdict {
   return stats.attributeInteraction.high < ADDITIVE_LIMIT ? 'additive' : 'interacts';

@@ -12,3 +12,10 @@ export function formatTime(iso: string | number): string {
   const d = new Date(iso);
   return Number.isNaN(d.getTime()) ? String(iso) : new Intl.DateTimeFormat(undefined, { timeStyle: 'medium' }).format(d);
 }
+
+/** A whole-number rank as words read it: 81 → "81st", 63 → "63rd", 12 → "12th". */
+export function ordinal(v: number): string {
+  const n = Math.round(v);
+  const teen = n % 100 >= 11 && n % 100 <= 13;
+  return `${n}${teen ? 'th' : (['th', 'st', 'nd', 'rd'][n % 10] ?? 'th')}`;
+}
