@@ -190,7 +190,7 @@ export function addLabCommands(program: Command, ctx: CliContext, number: (n: st
     .requiredOption('-d, --directions <file>', 'directions (.npy with optional .json sidecar)')
     .option('--only <names>', 'audit only these directions (comma-separated)')
     .option('--target <direction=attribute,…>', "audit a direction against another target for this audit only, e.g. crest_size=subject_radius (the direction file's own target otherwise)")
-    .option('--probes <n>', `random probe latents, ${PROBE_LIMITS.min}–${PROBE_LIMITS.max} (with the --pin seeds at least ${PROBE_LIMITS.minTotal} in all; 0 only with --pin)`, integer('--probes', PROBE_LIMITS.min, PROBE_LIMITS.max), 64)
+    .option('--probes <n>', `random probe latents, ${PROBE_LIMITS.min}–${PROBE_LIMITS.max} (with the --pin seeds and --pin-latents at least ${PROBE_LIMITS.minTotal} in all; 0 only with either)`, integer('--probes', PROBE_LIMITS.min, PROBE_LIMITS.max), 64)
     .option('--pin <seeds>', 'pinned probe seeds, e.g. 3,17,40-42')
     .option('--pin-latents <files>', 'latent .npy files pinned as probes beside the seeds, comma-separated (e.g. found.npy from plumbline locate, or a project\'s references/<name>.npy)')
     .option('--psi <number>', 'truncation ψ of the probes', number('--psi', 0, 2), 0.7)
