@@ -8,6 +8,7 @@ import type { ErrorData } from '../protocol/errors.ts';
 import { Scheduler, type Settlement } from './scheduler.ts';
 import { Workspace } from './workspace.ts';
 import { handlers } from './handlers/index.ts';
+import { inSession } from './request-session.ts';
 import type { Handler, HandlerContext } from './handlers/context.ts';
 
 export { demoCardPath } from './workspace.ts';
@@ -57,7 +58,8 @@ export class EngineHost {
           event: (name, data) => port.post(event(name, data)),
           requestId: req.id,
         };
-        return Promise.resolve(handler(req.params as Params<typeof req.method>, ctx));
+        // The request's window travels with everything the handler awaits (project writes check it).
+        return inSession(req.session, () => Promise.resolve(handler(req.params as Params<typeof req.method>, ctx)));
       },
       settle: (outcome) => port.post(answer(req.id, lane === 'job', outcome)),
     });

@@ -17,6 +17,7 @@ import { homedir, hostname, tmpdir } from 'node:os';
 import { z } from 'zod';
 import { removeStaleTemps, writeFileAtomic } from '../core/atomic-write.ts';
 import { READ_LIMITS, projectFile, readRegularFile, readTextFile } from '../core/path-policy.ts';
+import { requestSession } from './request-session.ts';
 import { directionNameKey, directionNameProblem } from '../protocol/names.ts';
 import { encodePng } from '../core/image.ts';
 import { decode as decodePng } from 'fast-png';
@@ -219,23 +220,40 @@ export class Project {
     return p;
   }
 
-  /** Takes (or finds taken) the lock for a session; a project locked by another session becomes read-only. */
+  /**
+   * Takes (or finds taken) the lock for a session; a project locked by another session becomes
+   * read-only. An instance shared by several tabs of one engine changes hands only when the lock
+   * does: another tab finding the lock taken leaves the holder's instance as it was.
+   */
   lock(session: string): { readOnly: boolean; holder: LockHolder } {
     const r = acquireLock(this.dir, session);
-    this.readOnly = r.readOnly;
-    this.lockHolder = r.holder;
+    if (!r.readOnly || this.lockHolder === null || this.lockHolder.session === session) {
+      this.readOnly = r.readOnly;
+      this.lockHolder = r.holder;
+    }
     return r;
   }
 
-  #writable(): void {
-    if (this.readOnly) {
+  /**
+   * Whether a write now would be refused: the instance is read-only, or the request being handled
+   * comes from a session other than the lock holder's (another tab of the same web shell).
+   */
+  get readOnlyHere(): boolean {
+    if (this.readOnly) return true;
+    const session = requestSession();
+    return session !== undefined && this.lockHolder !== null && session !== this.lockHolder.session;
+  }
+
+  /** Throws the read-only error (naming the lock holder) when a write now would be refused. */
+  requireWritable(): void {
+    if (this.readOnlyHere) {
       const h = this.lockHolder;
       throw new PlumblineError('bad-request', `${this.dir}: opened read-only — another window${h ? ` (process ${h.pid} on ${h.host}, since ${h.at})` : ''} has this project open; close it there to edit here`, { file: this.dir });
     }
   }
 
   save(): void {
-    this.#writable();
+    this.requireWritable();
     this.doc.savedAt = new Date().toISOString();
     writeFileAtomic(join(this.dir, 'project.json'), JSON.stringify(this.doc, null, 2) + '\n');
   }
@@ -247,7 +265,7 @@ export class Project {
   }
 
   saveDirection(d: { name: string; target: string | null; layers: [number, number] | null; vector: Float32Array; notes: string; source: object }, space: 'z' | 'w' | 'w+'): void {
-    this.#writable();
+    this.requireWritable();
     const problem = directionNameProblem(d.name);
     if (problem) throw new PlumblineError('directions-invalid', `${join(this.dir, 'project.json')}: cannot save direction '${String(d.name).slice(0, 60)}': the name ${problem}`, { file: join(this.dir, 'project.json') });
     const clash = this.doc.directions.find((x) => x.name !== d.name && directionNameKey(x.name) === directionNameKey(d.name));
@@ -269,7 +287,7 @@ export class Project {
    * name, so a direction that has either keeps its name (a copy under the new name is the way).
    */
   renameDirection(from: string, to: string): void {
-    this.#writable();
+    this.requireWritable();
     const entry = this.doc.directions.find((x) => x.name === from);
     if (!entry) throw new PlumblineError('bad-request', `${this.dir}: no direction '${from}' in the project`);
     const problem = directionNameProblem(to);
@@ -302,7 +320,7 @@ export class Project {
    * stamp (nothing is destroyed); its review log and audits stay as history.
    */
   deleteDirection(name: string): void {
-    this.#writable();
+    this.requireWritable();
     const entry = this.doc.directions.find((x) => x.name === name);
     if (!entry) throw new PlumblineError('bad-request', `${this.dir}: no direction '${name}' in the project`);
     const stamp = new Date().toISOString().replace(/[:.]/g, '-');
@@ -320,7 +338,7 @@ export class Project {
    * until it is kept or discarded, so a reload or a crash does not lose it.
    */
   saveCandidate(key: string, d: { name: string; target: string | null; layers: [number, number] | null; vector: Float32Array; notes: string; source: object }, space: 'z' | 'w' | 'w+', strip: { seeds: number[]; strengths: number[]; images: { width: number; height: number; rgba: Uint8Array }[] }): void {
-    this.#writable();
+    this.requireWritable();
     if (!/^[A-Za-z0-9_-]{1,80}$/.test(key)) throw new PlumblineError('bad-request', `bad candidate key '${key}'`);
     writeDirections(projectFile(this.dir, `candidates/${key}.npy`), [d], space);
     projectFile(this.dir, `candidates/${key}.json`);
@@ -353,7 +371,7 @@ export class Project {
   }
 
   removeCandidate(key: string): void {
-    this.#writable();
+    this.requireWritable();
     for (const ext of ['.npy', '.json', '.strip.json']) rmSync(join(this.dir, 'candidates', `${basename(key)}${ext}`), { force: true });
   }
 
@@ -385,7 +403,7 @@ export class Project {
    * beside its result so sign-off can tell which version was audited.
    */
   saveAudit(report: { directions: { name: string }[] }, hashes: Record<string, string> = {}): string {
-    this.#writable();
+    this.requireWritable();
     const stamp = new Date().toISOString().replace(/[:.]/g, '-');
     let name = `audit-${stamp}.json`;
     for (let k = 2; existsSync(join(this.dir, 'audits', name)); k++) name = `audit-${stamp}-${k}.json`;
@@ -423,7 +441,7 @@ export class Project {
   }
 
   appendReview(entry: ReviewEntry): void {
-    this.#writable();
+    this.requireWritable();
     const file = join(this.dir, 'review-log.jsonl');
     appendFileSync(file, JSON.stringify(reviewEntrySchema.parse(entry)) + '\n', { flag: 'a' });
     const fd = openSync(file, 'r+');

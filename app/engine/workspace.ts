@@ -130,7 +130,7 @@ export class Workspace {
    * reload or a crash does not lose it (nothing is written into a read-only project).
    */
   saveCandidate(d: LoadedDirection, strip: { seeds: number[]; strengths: number[]; images: { width: number; height: number; rgba: Uint8Array }[] }): void {
-    if (!this.#project || this.#project.readOnly) return;
+    if (!this.#project || this.#project.readOnlyHere) return;
     const key = `${new Date().toISOString().replace(/[^0-9]/g, '')}-${this.#candidateKeys.size + 1}`;
     this.#project.saveCandidate(key, d, this.requireGenerator().layout.space, strip);
     this.#candidateKeys.set(d.id, key);
@@ -138,7 +138,7 @@ export class Workspace {
 
   #forgetCandidate(id: string): void {
     const key = this.#candidateKeys.get(id);
-    if (key && this.#project && !this.#project.readOnly) this.#project.removeCandidate(key);
+    if (key && this.#project && !this.#project.readOnlyHere) this.#project.removeCandidate(key);
     this.#candidateKeys.delete(id);
   }
 

@@ -371,8 +371,10 @@ export const requestSchema = z.object({
   id: z.number().int().nonnegative(),
   method: z.enum(Object.keys(requestSchemas) as [Method, ...Method[]]),
   params: z.unknown(),
+  /** The window the request came from, stamped by the web shell (app/engine/request-session.ts). */
+  session: z.string().min(1).max(200).optional(),
 });
-export type RequestMessage = { v: 1; type: 'request'; id: number; method: Method; params: unknown };
+export type RequestMessage = { v: 1; type: 'request'; id: number; method: Method; params: unknown; session?: string };
 
 export const responseSchema = z.discriminatedUnion('ok', [
   z.object({ v: z.literal(PROTOCOL_VERSION), type: z.literal('response'), id: z.number().int(), ok: z.literal(true), result: z.unknown() }),

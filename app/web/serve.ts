@@ -69,6 +69,12 @@ export interface WebShell {
 interface Client {
   ws: WebSocket;
   id: number;
+  /**
+   * The session this tab declared in project.open or project.lock. Every request the tab sends is
+   * stamped with it (or with a name of this connection before it declares one), so the engine can
+   * refuse project writes from a tab that does not hold the project's lock.
+   */
+  session?: string;
 }
 
 export async function startWebShell(options: WebShellOptions = {}): Promise<WebShell> {
@@ -270,7 +276,10 @@ export async function startWebShell(options: WebShellOptions = {}): Promise<WebS
         }
         const hostId = nextId++;
         routes.set(hostId, { client, id: m.id });
-        const forwarded: Message = { ...m, id: hostId };
+        const declared = (m.method === 'project.open' || m.method === 'project.lock') && (m.params as { session?: unknown }).session;
+        if (typeof declared === 'string' && declared) client.session = declared;
+        // Whatever the client put in the envelope, the shell decides which session it speaks for.
+        const forwarded: Message = { ...m, id: hostId, session: client.session ?? `web-connection-${client.id}` };
         if (m.method === 'job.cancel') {
           // The engine sees host-wide request ids: translate the client's.
           const target = (m.params as { requestId: number }).requestId;

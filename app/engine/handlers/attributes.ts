@@ -6,6 +6,8 @@ import { driveSteps, type AreaHandlers } from './context.ts';
 export const attributeHandlers: AreaHandlers<'attributes.define' | 'attributes.list'> = {
   'attributes.define': (p, ctx) => {
     const { workspace } = ctx;
+    // The attribute is saved into the open project: a read-only window cannot define one.
+    workspace.project?.requireWritable();
     return driveSteps(workspace.definedAttributes.define(workspace.requireGenerator(), workspace.project?.dir ?? null, p), ctx);
   },
   'attributes.list': (_p, { workspace }) => workspace.definedAttributes.list(workspace.project?.dir ?? null),

@@ -40,7 +40,7 @@ export const auditHandlers: AreaHandlers<'audit.run'> = {
       probes: p.probes, pinnedSeeds: p.pinnedSeeds, psi: p.psi, seed: p.seed, referenceStrength: p.referenceStrength, leakPass: p.leakPass, leakFail: p.leakFail, nullDirections: p.nullDirections, combinations: p.combinations,
     }, { defined, references, measure }), () => workers), ctx, AUDIT_PROGRESS_EVERY);
     // Kept as history with each direction's vector hash, so sign-off can tell which version passed.
-    const project = workspace.project && !workspace.project.readOnly ? workspace.project : null;
+    const project = workspace.project && !workspace.project.readOnlyHere ? workspace.project : null;
     const savedAs = project ? project.saveAudit(auditReportFile(report), Object.fromEntries(directions.map((d) => [d.name, vectorHash(d.vector, d.layers)]))) : null;
     const { report: wire, thumbnails, changeMaps } = auditReportWire(report);
     return { report: wire as never, thumbnails, changeMaps, savedAs };

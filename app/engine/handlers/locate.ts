@@ -17,6 +17,9 @@ export const locateHandlers: AreaHandlers<'locate.run' | 'reference.pin' | 'refe
     });
     return driveSteps(steps, ctx);
   },
-  'reference.pin': (p, { workspace }) => pinReference(workspace.project?.dir ?? null, p.name, lastLocate.get(workspace) ?? null),
+  'reference.pin': (p, { workspace }) => {
+    workspace.project?.requireWritable();
+    return pinReference(workspace.project?.dir ?? null, p.name, lastLocate.get(workspace) ?? null);
+  },
   'reference.list': (_p, { workspace }) => ({ references: referenceInfos(workspace.project?.dir ?? null) }),
 };
