@@ -28,6 +28,8 @@ const reason = z.string().max(4000);
 export const variantDraftSchema = z.object({
   name: z.string().max(80),
   seeds: z.string().max(400),
+  /** Named references of the project rendered beside the seeds. */
+  references: z.array(z.string().max(80)).max(1000).default([]),
   out: z.string().max(4096),
   settings: z.array(z.object({ label: z.string().max(60), strengths: z.record(z.string(), strength) })).max(200),
 });

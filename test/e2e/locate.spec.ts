@@ -100,5 +100,33 @@ test('drop an image, watch, cancel, run to the end, pin, move a slider on it', a
   await box.check();
   await expect(page.getByTestId('probes-error')).toHaveCount(0);
   await page.screenshot({ path: join(shots, 'locate-audit-reference-set.png') });
+
+  // The Variant sets screen renders the reference beside the seeds (issue 12 part 4), and the
+  // manifest names its latent and image by SHA-256.
+  await page.getByRole('button', { name: 'Variant sets', exact: true }).click();
+  const refs = page.getByTestId('variant-references');
+  await refs.getByRole('checkbox', { name: /hero_crest/ }).check();
+  await page.getByLabel('Setting name').fill('turned');
+  await page.getByRole('button', { name: 'Add current sliders as a setting' }).click();
+  await page.getByLabel('Variant seeds').fill('5');
+  const out = join(projectDir, 'renders', 'heroes');
+  await page.getByLabel('Output folder').fill(out);
+  await page.getByRole('button', { name: 'Render variant set' }).click();
+  // turn was never signed off: forced with a reason, as the use rules require.
+  await expect(page.getByTestId('variant-error')).toContainText('turn is not approved');
+  await page.getByLabel('Reason to force the variant set').fill('look-development on the hero piece');
+  await page.getByRole('button', { name: 'Force with this reason' }).click();
+  // Two settings (the screen's unedited "base" and "turned") × (seed 5 and the reference).
+  await expect(page.getByRole('status').filter({ hasText: '4 rendered, 0 kept' })).toBeVisible({ timeout: 60_000 });
+  for (const setting of ['base', 'turned']) expect(readdirSync(join(out, setting)).sort()).toEqual(['reference-hero_crest.png', 'seed-000005.png']);
+  const manifest = JSON.parse(readFileSync(join(out, 'manifest.json'), 'utf8'));
+  const pinned = JSON.parse(readFileSync(join(projectDir, 'references', 'hero_crest.json'), 'utf8'));
+  expect(JSON.stringify(manifest)).toContain(pinned.image.sha256);
+  await page.screenshot({ path: join(shots, 'locate-variant-reference.png') });
+  // The choice is kept with the project's variant settings across a reload.
+  await page.reload();
+  await expect(page.getByTestId('engine-state')).toHaveText('engine ready', { timeout: 30_000 });
+  await page.getByRole('button', { name: 'Variant sets', exact: true }).click();
+  await expect(page.getByTestId('variant-references').getByRole('checkbox', { name: /hero_crest/ })).toBeChecked({ timeout: 30_000 });
   expect(errors).toEqual([]);
 });

@@ -113,6 +113,8 @@ export class Lab {
 
   variantName = $state('variant_set');
   variantSeeds = $state('0-7');
+  /** Project references rendered beside the seeds (by name). */
+  variantReferences = $state<string[]>([]);
   variantOut = $state('');
   variantSettings = $state<{ label: string; strengths: Record<string, number> }[]>([{ label: 'base', strengths: {} }]);
   variantProgress = $state<JobProgress | null>(null);
@@ -258,7 +260,7 @@ export class Lab {
   variantDraft(): VariantDraft {
     const nameOf = Object.fromEntries(this.studio.directions.map((d) => [d.id, d.name]));
     return {
-      name: this.variantName.slice(0, 80), seeds: this.variantSeeds.slice(0, 400), out: this.variantOut.slice(0, 4096),
+      name: this.variantName.slice(0, 80), seeds: this.variantSeeds.slice(0, 400), references: this.variantReferences.slice(0, 1000), out: this.variantOut.slice(0, 4096),
       settings: this.variantSettings.map((s) => ({ label: s.label, strengths: Object.fromEntries(Object.entries(s.strengths).filter(([id]) => nameOf[id]).map(([id, v]) => [nameOf[id], v])) })),
     };
   }
@@ -267,6 +269,7 @@ export class Lab {
     const idOf = Object.fromEntries(this.studio.directions.map((d) => [d.name, d.id]));
     this.variantName = v.name || this.variantName;
     this.variantSeeds = v.seeds || this.variantSeeds;
+    this.variantReferences = v.references ?? [];
     this.variantOut = v.out;
     if (v.settings.length) this.variantSettings = v.settings.map((s) => ({ label: s.label, strengths: Object.fromEntries(Object.entries(s.strengths).filter(([n]) => idOf[n]).map(([n, x]) => [idOf[n], x])) }));
   }
@@ -530,7 +533,7 @@ export class Lab {
     this.variantProgress = { done: 0, total: 1, label: 'starting' };
     this.studio.busy = 'Rendering the variant set';
     try {
-      const pending = this.engine.request('variants.render', { name: this.variantName, seeds, psi: this.studio.psi, settings: this.variantSettings, out: this.variantOut, ...(force ? { forceReason: this.forceReason } : {}) }, (done, total, label, workers) => (this.variantProgress = { done, total, label, workers }));
+      const pending = this.engine.request('variants.render', { name: this.variantName, seeds, references: this.variantReferences, psi: this.studio.psi, settings: this.variantSettings, out: this.variantOut, ...(force ? { forceReason: this.forceReason } : {}) }, (done, total, label, workers) => (this.variantProgress = { done, total, label, workers }));
       this.#variantRequest = this.engine.lastRequestId;
       const r = await pending;
       if (r.cancelled) {
