@@ -320,3 +320,42 @@ export function percentileRank(sample: ArrayLike<number>, value: number): number
   }
   return (100 * (below + equal / 2)) / sample.length;
 }
+
+/** Median of the non-NaN values (quickselect on a copy; the mean of the two middle values for even counts). */
+export function median(xs: ArrayLike<number>): number {
+  const a = new Float64Array(xs.length);
+  let n = 0;
+  for (let i = 0; i < xs.length; i++) if (!Number.isNaN(xs[i])) a[n++] = xs[i];
+  if (n === 0) return NaN;
+  const hi = select(a, n, n >> 1);
+  if (n % 2) return hi;
+  let lo = -Infinity;
+  for (let i = 0; i < n >> 1; i++) if (a[i] > lo) lo = a[i];
+  return (lo + hi) / 2;
+}
+
+/** k-th smallest of a[0..n) (Hoare quickselect); leaves a[0..k) ≤ a[k]. */
+function select(a: Float64Array, n: number, k: number): number {
+  let l = 0;
+  let r = n - 1;
+  while (l < r) {
+    const pivot = a[(l + r) >> 1];
+    let i = l;
+    let j = r;
+    while (i <= j) {
+      while (a[i] < pivot) i++;
+      while (a[j] > pivot) j--;
+      if (i <= j) {
+        const t = a[i];
+        a[i] = a[j];
+        a[j] = t;
+        i++;
+        j--;
+      }
+    }
+    if (k <= j) r = j;
+    else if (k >= i) l = i;
+    else break;
+  }
+  return a[k];
+}

@@ -96,19 +96,28 @@ export function attributeChange(specs: AttributeSpec[], j: number, base: ArrayLi
   return attributeDelta(base[j], edit[j], s.period);
 }
 
+/**
+ * What the images themselves give: the built-in measures (when a spec needs them), each scorer
+ * model's outputs, and each defined attribute's scores — defined attributes reuse the measures
+ * just taken (their descriptor includes them).
+ */
+async function scoreFromImages(specs: AttributeSpec[], rgba: RgbaImage[]) {
+  const measures = specs.some((s) => s.source === 'image' || s.source === 'defined') ? rgba.map((img) => measureImage(img)) : [];
+  const byScorer = new Map<ScorerModel, Float64Array>();
+  for (const s of specs) if (s.scorer && !byScorer.has(s.scorer)) byScorer.set(s.scorer, await s.scorer.score(rgba));
+  const known = new WeakMap<RgbaImage, ArrayLike<number>>(rgba.map((img, i) => [img, measures[i]]));
+  const byDefined = new Map<DefinedAttribute, Float64Array>();
+  for (const s of specs) if (s.defined && !byDefined.has(s.defined)) byDefined.set(s.defined, s.defined.score(rgba, builtInMeasureSource(known)));
+  return { measures, byScorer, byDefined };
+}
+
 /** Scores a rendered batch: [n × K] in spec order. Checks every value for NaN. */
 export async function scoreBatch(gen: Generator, out: RenderOutput, specs: AttributeSpec[]): Promise<Float64Array> {
   const k = specs.length;
   const scores = new Float64Array(out.n * k);
   const needImages = specs.some((s) => s.source !== 'card');
   const rgba = needImages ? Array.from({ length: out.n }, (_, i) => gen.toRgba(out.images, i)) : [];
-  const measures = specs.some((s) => s.source === 'image' || s.source === 'defined') ? rgba.map((img) => measureImage(img)) : [];
-  const byScorer = new Map<ScorerModel, Float64Array>();
-  for (const s of specs) if (s.scorer && !byScorer.has(s.scorer)) byScorer.set(s.scorer, await s.scorer.score(rgba));
-  // Defined attributes reuse the measures just taken (the descriptor includes them).
-  const known = new WeakMap<RgbaImage, ArrayLike<number>>(rgba.map((img, i) => [img, measures[i]]));
-  const byDefined = new Map<DefinedAttribute, Float64Array>();
-  for (const s of specs) if (s.defined && !byDefined.has(s.defined)) byDefined.set(s.defined, s.defined.score(rgba, builtInMeasureSource(known)));
+  const { measures, byScorer, byDefined } = await scoreFromImages(specs, rgba);
   const cardWidth = out.attributes ? out.attributes.length / out.n : 0;
   for (let i = 0; i < out.n; i++) {
     for (let j = 0; j < k; j++) {
@@ -149,13 +158,8 @@ export function attributeDelta(a: number, b: number, period?: number): number {
 export async function scoreImages(specs: AttributeSpec[], rgba: RgbaImage[]): Promise<Float64Array> {
   const k = specs.length;
   const scores = new Float64Array(rgba.length * k).fill(NaN);
-  const measures = specs.some((s) => s.source === 'image' || s.source === 'defined') ? rgba.map((img) => measureImage(img)) : [];
-  const byScorer = new Map<ScorerModel, Float64Array>();
-  for (const s of specs) if (s.scorer && !byScorer.has(s.scorer)) byScorer.set(s.scorer, await s.scorer.score(rgba));
   // Defined attributes score from the image alone, so the instrument is calibrated for them too.
-  const known = new WeakMap<RgbaImage, ArrayLike<number>>(rgba.map((img, i) => [img, measures[i]]));
-  const byDefined = new Map<DefinedAttribute, Float64Array>();
-  for (const s of specs) if (s.defined && !byDefined.has(s.defined)) byDefined.set(s.defined, s.defined.score(rgba, builtInMeasureSource(known)));
+  const { measures, byScorer, byDefined } = await scoreFromImages(specs, rgba);
   for (let i = 0; i < rgba.length; i++)
     specs.forEach((s, j) => {
       if (s.source === 'image') scores[i * k + j] = measures[i][s.index];

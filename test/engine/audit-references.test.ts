@@ -16,26 +16,17 @@ import { runAudit, type AuditDirection, type AuditReport } from '../../app/engin
 import { referenceProbe } from '../../app/engine/audit/probes.ts';
 import { encodeNpy } from '../../app/core/npy.ts';
 import { tempDir } from '../helpers/models.ts';
+import { demoAuditDirections, drain } from '../helpers/demo-audit.ts';
 
 const root = join(import.meta.dirname, '..', '..');
 const demoDir = join(root, 'resources', 'demo');
 let host: Workspace;
 let directions: AuditDirection[];
 
-async function drain(job: AsyncGenerator<unknown, AuditReport, void>): Promise<AuditReport> {
-  for (;;) {
-    const s = await job.next();
-    if (s.done) return s.value;
-  }
-}
-
 before(async () => {
   host = new Workspace({ threads: 1 });
   await host.openModel(demoCardPath());
-  directions = host.openDirections(join(demoDir, 'sigil-directions.npy')).directions.map((d) => {
-    const x = host.direction(d.id);
-    return { name: x.name, target: x.target, layers: x.layers, vector: x.vector, sigma: x.sigma };
-  }).filter((d) => ['crest_size', 'outline_bold'].includes(d.name));
+  directions = demoAuditDirections(host, ['crest_size', 'outline_bold']);
 });
 after(async () => host.dispose());
 

@@ -14,6 +14,7 @@ import { decodeModel, initializerValues } from '../../app/core/onnx/inspect.ts';
 import { angleDegrees } from '../../app/core/discovery/linalg.ts';
 import { encodeNpy } from '../../app/core/npy.ts';
 import { cardGenerator, tempDir, write } from '../helpers/models.ts';
+import { demoAuditDirections, drain } from '../helpers/demo-audit.ts';
 
 const root = join(import.meta.dirname, '..', '..');
 const demoDir = join(root, 'resources', 'demo');
@@ -21,20 +22,10 @@ const truth = JSON.parse(readFileSync(join(demoDir, 'sigil-directions.json'), 'u
 let host: Workspace;
 let directions: AuditDirection[];
 
-async function drain(job: AsyncGenerator<unknown, AuditReport, void>): Promise<AuditReport> {
-  for (;;) {
-    const s = await job.next();
-    if (s.done) return s.value;
-  }
-}
-
 before(async () => {
   host = new Workspace({ threads: 1 });
   await host.openModel(demoCardPath());
-  directions = host.openDirections(join(demoDir, 'sigil-directions.npy')).directions.map((d) => {
-    const x = host.direction(d.id);
-    return { name: x.name, target: x.target, layers: x.layers, vector: x.vector, sigma: x.sigma };
-  });
+  directions = demoAuditDirections(host);
 });
 after(async () => host.dispose());
 

@@ -12,27 +12,12 @@ import { EngineHost } from '../../app/engine/host.ts';
 import { Generator } from '../../app/engine/generator.ts';
 import { demoCardPath } from '../../app/engine/workspace.ts';
 import { saveReference } from '../../app/engine/references.ts';
-import { parseResult, request, type Method, type Params } from '../../app/protocol/messages.ts';
+import type { Method, Params } from '../../app/protocol/messages.ts';
+import { callHostChecked } from '../helpers/host.ts';
 import { tempDir } from '../helpers/models.ts';
 
 let host: EngineHost;
-const inbox: any[] = [];
-let nextId = 1;
-
-async function call<M extends Method>(method: M, params: Params<M>) {
-  const id = nextId++;
-  host.receive(request(id, method, params), { post: (m: any) => inbox.push(m) });
-  const end = Date.now() + 300_000;
-  for (;;) {
-    const r = inbox.find((m) => m.type === 'response' && m.id === id);
-    if (r) {
-      if (!r.ok) throw Object.assign(new Error(r.error.message), { code: r.error.code });
-      return parseResult(method, r.result);
-    }
-    if (Date.now() > end) throw new Error(`timed out waiting for ${method}`);
-    await new Promise((res) => setTimeout(res, 10));
-  }
-}
+const call = <M extends Method>(method: M, params: Params<M>) => callHostChecked(host, method, params);
 
 const sha = (b: Uint8Array) => createHash('sha256').update(b).digest('hex');
 let project: string;

@@ -6,7 +6,8 @@ import assert from 'node:assert/strict';
 import { readFileSync, existsSync, writeFileSync } from 'node:fs';
 import { join } from 'node:path';
 import { EngineHost } from '../../app/engine/host.ts';
-import { parseResult, request, type Method, type Params } from '../../app/protocol/messages.ts';
+import { request, type Method, type Params } from '../../app/protocol/messages.ts';
+import { callHostChecked } from '../helpers/host.ts';
 import { tempDir } from '../helpers/models.ts';
 
 let host: EngineHost;
@@ -14,20 +15,7 @@ const inbox: any[] = [];
 const port = { post: (m: unknown) => inbox.push(m) };
 let nextId = 1;
 
-async function call<M extends Method>(method: M, params: Params<M>, onEvent?: (e: any) => void) {
-  const id = nextId++;
-  host.receive(request(id, method, params), { post: (m: any) => { if (m.type === 'event') onEvent?.(m); port.post(m); } });
-  const end = Date.now() + 120_000;
-  for (;;) {
-    const r = inbox.find((m) => m.type === 'response' && m.id === id);
-    if (r) {
-      if (!r.ok) throw Object.assign(new Error(r.error.message), { code: r.error.code });
-      return parseResult(method, r.result);
-    }
-    if (Date.now() > end) throw new Error(`timed out waiting for ${method}`);
-    await new Promise((res) => setTimeout(res, 10));
-  }
-}
+const call = <M extends Method>(method: M, params: Params<M>, onEvent?: (e: any) => void) => callHostChecked(host, method, params, onEvent, 120_000);
 
 before(async () => {
   host = new EngineHost({ threads: 1 });

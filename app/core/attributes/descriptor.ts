@@ -9,6 +9,7 @@
 // function (subjectMask) that can be swapped for the measures' own mask.
 import { SRGB8_TO_LINEAR, linearRgbToLab } from '../color.ts';
 import type { RgbaImage } from '../image.ts';
+import { median } from '../stats.ts';
 
 /**
  * HOG parameters (Dalal & Triggs 2005, "Histograms of Oriented Gradients for Human Detection",
@@ -143,41 +144,6 @@ export function labPlanes(img: RgbaImage): { L: Float64Array; a: Float64Array; b
   return { L, a, b };
 }
 
-/** Median by quickselect (Hoare's selection; expected linear time, unlike a full sort). */
-function median(xs: ArrayLike<number>): number {
-  const a = Float64Array.from(xs);
-  const select = (k: number): number => {
-    let lo = 0;
-    let hi = a.length - 1;
-    while (lo < hi) {
-      const pivot = a[(lo + hi) >> 1];
-      let i = lo;
-      let j = hi;
-      while (i <= j) {
-        while (a[i] < pivot) i++;
-        while (a[j] > pivot) j--;
-        if (i <= j) {
-          const t = a[i];
-          a[i] = a[j];
-          a[j] = t;
-          i++;
-          j--;
-        }
-      }
-      if (k <= j) hi = j;
-      else if (k >= i) lo = i;
-      else return a[k];
-    }
-    return a[k];
-  };
-  const mid = a.length >> 1;
-  if (a.length % 2) return select(mid);
-  const upper = select(mid);
-  // After selecting `mid`, everything left of it is ≤ a[mid]: the lower middle is their maximum.
-  let lower = -Infinity;
-  for (let i = 0; i < mid; i++) if (a[i] > lower) lower = a[i];
-  return (lower + upper) / 2;
-}
 
 /**
  * A hard subject mask: pixels whose ΔE*ab from the image's median CIELAB colour (its dominant

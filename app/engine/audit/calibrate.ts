@@ -6,7 +6,7 @@
 import { EXACT, INVISIBLE, calibrate, type Frame, type MeasureCalibration } from '../../core/audit/calibration.ts';
 import type { RgbaImage } from '../../core/image.ts';
 import { analyseImage, imageMoments } from '../../core/scorers/measures.ts';
-import { median } from '../../core/scorers/subject.ts';
+import { median } from '../../core/stats.ts';
 import { attributeChange, scoreImages, type AttributeSpec } from '../attributes.ts';
 
 export interface InstrumentCalibration {
