@@ -141,7 +141,7 @@ test('the verdict says only what the statistics support', () => {
   assert.equal(judgeDirection(clean, { reference: 2, settings: base.settings, fewProbes: false, pathLengthGrid: grid }).verdict, 'pass');
   const few = judgeDirection(clean, { reference: 2, settings: base.settings, fewProbes: true, pathLengthGrid: grid });
   assert.equal(few.verdict, 'review');
-  assert.match(few.reason, /too few probes to pass$/);
+  assert.match(few.reason, /too few probes to pass \(a pass needs at least 30, as does approval\)$/);
 });
 
 test('the report keeps thumbnails binary: data URIs in the file, a separate binary list on the wire', () => {

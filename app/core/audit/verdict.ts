@@ -1,7 +1,7 @@
 // Audit step 4, the verdict: turns one direction's statistics into pass / review / fail and a
 // reason in words that says only what the numbers support, and a pair's non-additivity into
 // additive / interacts. Pure; thresholds come from the audit settings.
-import type { AuditSettings } from './settings.ts';
+import { MIN_USEFUL_PROBES, type AuditSettings } from './settings.ts';
 import type { CombinationStatistics, DirectionStatistics } from './statistics.ts';
 import { MAX_EXCEEDANCE_SHARE, verdictFor } from './leakage.ts';
 
@@ -63,7 +63,7 @@ export function judgeDirection(stats: DirectionStatistics, x: { reference: numbe
   for (const b of [stats.breaks.negative, stats.breaks.positive]) if (b) parts.push(`breaks from ${formatStrength(b.strength)} (${b.side} side): ${b.cause}`);
   const covers = stats.safeRange[0] <= -ref && stats.safeRange[1] >= ref;
   if (!covers) parts.push(`safe range ${formatStrength(stats.safeRange[0])} to ${formatStrength(stats.safeRange[1])}`);
-  if (verdict === 'review' && x.fewProbes && L.high < S.leakPass) parts.push('too few probes to pass');
+  if (verdict === 'review' && x.fewProbes && L.high < S.leakPass) parts.push(`too few probes to pass (a pass needs at least ${MIN_USEFUL_PROBES}, as does approval)`);
   else if (verdict === 'review' && L.high < S.leakPass && E.high > MAX_EXCEEDANCE_SHARE && covers) parts.push(`${E.probes} probes cannot rule out a leaking share above ${pct(MAX_EXCEEDANCE_SHARE)}`);
   if (stats.withinInstrument.length) {
     const shown = stats.withinInstrument.slice(0, 3).map((w) => `${w.attribute} ${fmt2(w.change)} σ${w.via ? ` (via ${w.via})` : ''}`).join(', ');
