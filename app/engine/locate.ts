@@ -105,9 +105,21 @@ function planesToRgba(p: Planes): RgbaImage {
   return { width: p.w, height: p.h, data };
 }
 
-/** The W prior of a generator: its own samples' covariance when it has a mapping network, N(0, I) otherwise. */
+/** Priors already built, per open generator (read-only once built). */
+const priors = new WeakMap<Generator, LatentPrior>();
+
+/**
+ * The W prior of a generator: its own samples' covariance when it has a mapping network, N(0, I)
+ * otherwise. Built once per open generator: for a 512-dimensional W the covariance and its
+ * eigendecomposition take seconds, which every search after the first would otherwise repeat.
+ */
 export function priorFor(gen: Generator): LatentPrior {
-  return gen.info.hasMapping && gen.centredSamples.length > 0 ? LatentPrior.fromCentredSamples(gen.centre, gen.centredSamples) : LatentPrior.standard(gen.centre);
+  let prior = priors.get(gen);
+  if (!prior) {
+    prior = gen.info.hasMapping && gen.centredSamples.length > 0 ? LatentPrior.fromCentredSamples(gen.centre, gen.centredSamples) : LatentPrior.standard(gen.centre);
+    priors.set(gen, prior);
+  }
+  return prior;
 }
 
 export async function* locate(gen: Generator, reference: FloatImage, options: LocateOptions = {}): AsyncGenerator<LocateProgress, LocateResult, void> {
