@@ -12,7 +12,7 @@ import { ERROR_CATALOGUE, PlumblineError } from '../core/errors.ts';
 import { Generator } from '../engine/generator.ts';
 import { demoCardPath } from '../engine/workspace.ts';
 import { buildPack, renderStrip, verifyPack, type VerifyResult } from '../engine/pack-ops.ts';
-import { Project } from '../engine/project.ts';
+import { Project, directionUses } from '../engine/project.ts';
 import { parseSeeds } from './seeds.ts';
 import { runCliJob } from './jobs.ts';
 import { parseRecipe, renderVariants, resolveRecipeReferences, type VariantDirection } from '../engine/variants.ts';
@@ -212,17 +212,19 @@ export function addPackCommands(program: Command, ctx: CliContext): void {
     .description('render a variant set from a recipe: PNGs, a reproducing manifest and a labelled contact sheet (resumable)')
     .option('-m, --model <file>', 'the generator; default: the bundled demo')
     .requiredOption('--recipe <file>', 'variant recipe (.json, docs/variant-recipe.md)')
-    .option('-d, --directions <file>', 'directions (.npy with .json sidecar)')
+    .option('-d, --directions <file>', 'directions (.npy with .json sidecar); with --project, judged by its sign-off')
     .option('--pack <file>', 'a preset pack instead of --directions (its safe ranges are enforced)')
-    .option('--force', 'allow strengths outside a pack’s safe range (needs --reason; recorded in the manifest)')
+    .option('--force', 'render unapproved or rejected directions, or strengths outside the safe range (needs --reason; recorded in the manifest)')
     .option('--reason <text>', 'why --force is needed; recorded in the manifest')
     .option('--trust <key.pem>', 'with --pack: require a signature by this Ed25519 public key (PEM); repeatable', collect, [] as string[])
-    .option('--project <dir>', "the project whose named references the recipe's references name (.npy entries need none)")
+    .option('--project <dir>', "the project whose sign-off and audited safe ranges apply (as in the app), whose directions are used when no --directions or --pack is given, and whose named references the recipe may name")
     .requiredOption('-o, --out <dir>', 'output folder; rerun the same command to resume')
     .option('--farm <url>', 'render on a farm: redis://[user:password@]host:port (workers: plumbline worker)')
     .option('--no-publish-model', 'on a farm, do not publish the generator files through Redis (workers read them from shared storage)')
     .action(async (o) => withPackErrors(async () => {
-      if (!o.directions === !o.pack) throw ctx.usage('give exactly one of --directions or --pack');
+      if (o.directions && o.pack) throw ctx.usage('give one of --directions or --pack, not both');
+      if (!o.directions && !o.pack && !o.project) throw ctx.usage('give --directions, --pack, or --project (to use its directions)');
+      if (o.pack && o.project) throw ctx.usage('--pack carries its own sign-off; leave out --project');
       const recipeFile = resolve(o.recipe);
       const recipe = parseRecipe(readTextFile(recipeFile, 'recipe'), recipeFile);
       const workspace = await openWorkspace(o.model, undefined);
@@ -230,7 +232,18 @@ export function addPackCommands(program: Command, ctx: CliContext): void {
         const gen = workspace.requireGenerator();
         let dirs: VariantDirection[];
         if (o.pack) dirs = (await verifyPack(readFile(o.pack), resolve(o.pack), gen, { trust: trusted(o.trust) })).directions.map((d) => ({ ...d, status: 'approved' as const }));
-        else dirs = loadDirections(workspace, o.directions);
+        else if (o.project) {
+          // The same rules as the app with this project open (app/core/signoff-rules.ts): each
+          // direction's sign-off for its vector as given, and the safe range of its passing audit.
+          const opened = workspace.openProject({ path: resolve(o.project), create: false });
+          if (!opened.generatorMatches) process.stderr.write(`warning: ${opened.path} was made with another generator (fingerprint ${opened.generatorFingerprint?.slice(0, 12)}…); its sign-off may not hold for ${gen.info.name}\n`);
+          const loaded = o.directions ? loadDirections(workspace, o.directions) : workspace.kept();
+          const uses = directionUses(workspace.project, loaded);
+          dirs = loaded.map((d, i) => ({ ...d, status: uses[i].status, safeRange: uses[i].safeRange ?? undefined }));
+        } else {
+          dirs = loadDirections(workspace, o.directions);
+          process.stderr.write(`warning: no sign-off or safe range to check: ${o.directions} is not part of a project or pack; pass --project <dir> to apply its sign-off, or use --pack\n`);
+        }
         const farm = o.farm ? await Farm.connect(o.farm, farmPassword()) : null;
         let progress: RunProgress | null = null;
         try {

@@ -9,7 +9,7 @@ import type { Direction } from '../core/directions.ts';
 import { directionNameKey } from '../protocol/names.ts';
 import { readDirectionSet } from './direction-sources.ts';
 import { directionEdit, type EditVector } from '../core/latent.ts';
-import type { DirectionInfo, Params, Outcome } from '../protocol/messages.ts';
+import { holderForWire, type DirectionInfo, type Params, type Outcome } from '../protocol/messages.ts';
 import { Generator } from './generator.ts';
 import { defaultThreads } from './sessions.ts';
 import { Project, vectorHash } from './project.ts';
@@ -245,7 +245,7 @@ export class Workspace {
       ui: project.doc.ui,
       refused: [...project.refused],
       readOnly: lock?.readOnly ?? false,
-      lockHolder: lock?.holder ?? null,
+      lockHolder: holderForWire(lock?.holder ?? null),
       candidates,
     };
   }

@@ -218,6 +218,14 @@ const uiStateSchema = z.object({
 /** Who holds a project's lock: process, machine, session and when it last renewed. */
 export const lockHolderSchema = z.object({ pid: z.number().int(), host: z.string(), session: z.string(), at: z.string() });
 export type LockHolder = z.infer<typeof lockHolderSchema>;
+/**
+ * The holder as a window is told it: never its session id, which would let another tab speak for
+ * the holder (the web shell binds each connection to the one session it declares).
+ */
+export const lockHolderWireSchema = lockHolderSchema.omit({ session: true });
+export type LockHolderWire = z.infer<typeof lockHolderWireSchema>;
+/** A holder without its session id, for the wire. */
+export const holderForWire = (h: LockHolder | null): LockHolderWire | null => (h ? { pid: h.pid, host: h.host, at: h.at } : null);
 const candidateSchema = z.object({ direction: directionInfoSchema, strip: z.array(imageSchema), stripSeeds: z.array(seed), stripStrengths: z.array(z.number()) });
 /** A render farm as the engine sees it (the password never comes back). */
 const farmWorkerSchema = z.object({ name: z.string(), host: z.string(), threads: z.number().int(), fingerprint: z.string().nullable(), imagesPerSecond: z.number().nullable(), units: z.number().int(), busy: z.string().nullable(), since: z.string() });
@@ -307,12 +315,12 @@ export const methods = {
       refused: z.array(z.string()).optional(),
       /** True when another window or tab holds the project's lock: this one may look but not write. */
       readOnly: z.boolean().default(false),
-      lockHolder: lockHolderSchema.nullable().default(null),
+      lockHolder: lockHolderWireSchema.nullable().default(null),
       /** Discovery candidates not yet kept or discarded, as left in the project. */
       candidates: z.array(candidateSchema).default([]),
     })),
   /** Renews (or, once free, takes) this session's lock on the open project; releases it with release. */
-  'project.lock': declare('control', z.object({ session, release: z.boolean().default(false) }), z.object({ readOnly: z.boolean(), lockHolder: lockHolderSchema.nullable() })),
+  'project.lock': declare('control', z.object({ session, release: z.boolean().default(false) }), z.object({ readOnly: z.boolean(), lockHolder: lockHolderWireSchema.nullable() })),
   /** Every stored audit of the open project merged: the newest result per direction, with history. */
   'audit.history': declare('control', z.object({}), z.object({ report: auditWireSchema.nullable(), thumbnails: z.array(thumbnailSchema), changeMaps: z.array(changeMapPngSchema).default([]), files: z.array(z.string()) })),
   /** Full-size images of probes before and after a direction's edit (enlarged worst probes; repair before/after). */

@@ -277,7 +277,16 @@ export async function startWebShell(options: WebShellOptions = {}): Promise<WebS
         const hostId = nextId++;
         routes.set(hostId, { client, id: m.id });
         const declared = (m.method === 'project.open' || m.method === 'project.lock') && (m.params as { session?: unknown }).session;
-        if (typeof declared === 'string' && declared) client.session = declared;
+        if (typeof declared === 'string' && declared) {
+          // A connection speaks for one session for its whole life: a tab cannot switch to another
+          // tab's session (a reload opens a new connection and declares its own again).
+          if (client.session !== undefined && client.session !== declared) {
+            routes.delete(hostId);
+            send(client, { v: PROTOCOL_VERSION, type: 'response', id: m.id, ok: false, error: { code: 'bad-request', message: 'this window already has a session; it cannot take another window\'s' } });
+            return;
+          }
+          client.session = declared;
+        }
         // Whatever the client put in the envelope, the shell decides which session it speaks for.
         const forwarded: Message = { ...m, id: hostId, session: client.session ?? `web-connection-${client.id}` };
         if (m.method === 'job.cancel') {

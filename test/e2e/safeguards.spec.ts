@@ -215,6 +215,13 @@ test('sign-off gates, variant rules, a second tab read-only, and everything back
   await expect(second.getByRole('button', { name: /^Approve / })).toHaveCount(0);
   await shoot(second, 'safeguards-second-tab-read-only');
   await second.close();
+  // A copy of this tab (window.open of its address: the browser copies its sessionStorage, as
+  // "Duplicate tab" does) is another window too, not a second writer.
+  const [copy] = await Promise.all([context.waitForEvent('page'), page.evaluate(() => void window.open(location.href))]);
+  await ready(copy);
+  await expect(copy.getByText('◆ crests')).toBeVisible({ timeout: 30_000 });
+  await expect(copy.getByTestId('read-only')).toBeVisible();
+  await copy.close();
 
   // Reload: audits (with the repair), variant settings, sliders, ψ and the pinned seed come back.
   await page.waitForTimeout(1_500); // autosave settles within a second

@@ -14,6 +14,7 @@ import { createHash } from 'node:crypto';
 import { Generator } from '../../app/engine/generator.ts';
 import { demoCardPath } from '../../app/engine/workspace.ts';
 import { saveReference } from '../../app/engine/references.ts';
+import { Project } from '../../app/engine/project.ts';
 import { encodeNpy } from '../../app/core/npy.ts';
 import { tempDir } from '../helpers/models.ts';
 
@@ -25,8 +26,9 @@ const sha = (b: Uint8Array) => createHash('sha256').update(b).digest('hex');
 test('a recipe with a project reference and a .npy latent renders them like the seed they equal; the manifest names them', async () => {
   const dir = tempDir('plumbline-variant-refs-');
   const project = join(dir, 'project');
-  mkdirSync(project);
   const gen = await Generator.open(demoCardPath(), { threads: 1 });
+  // A project of this generator holding the reference (and, so far, no signed-off directions).
+  Project.open(project, true, { name: gen.info.name, fingerprint: gen.info.fingerprint });
   const { layers, size } = gen.layout;
   const imageSha = sha(new TextEncoder().encode('the hero image'));
   try {
@@ -45,10 +47,16 @@ test('a recipe with a project reference and a .npy latent renders them like the 
   const recipeFile = join(dir, 'recipe.json');
   writeFileSync(recipeFile, JSON.stringify(recipe));
   const out = join(dir, 'out');
-  const r = cli('variants', '--recipe', recipeFile, '-d', directions, '--project', project, '--out', out);
+  // The project has signed off neither direction: as in the app, rendering them needs a reason.
+  const refused = cli('variants', '--recipe', recipeFile, '-d', directions, '--project', project, '--out', out);
+  assert.equal(refused.status, 2, refused.stderr);
+  assert.match(refused.stderr, /crest_size is not approved \(draft\)/);
+  const r = cli('variants', '--recipe', recipeFile, '-d', directions, '--project', project, '--out', out, '--force', '--reason', 'reference look-development only');
   assert.equal(r.status, 0, r.stderr);
   assert.match(r.stdout, /8 rendered/);
   const manifest = JSON.parse(readFileSync(join(out, 'manifest.json'), 'utf8'));
+  assert.equal(manifest.forced.reason, 'reference look-development only');
+  assert.deepEqual(manifest.forced.settings.map((v: { direction: string; kind: string }) => `${v.direction}:${v.kind}`).sort(), ['crest_size:unapproved', 'hue_shift:unapproved']);
   const npyBytes = readFileSync(join(dir, 'latents', 'w7.npy'));
   const heroBytes = readFileSync(join(project, 'references', 'hero.npy'));
   const dataOf = (b: Buffer, values: number) => b.subarray(b.length - values * 4);
@@ -70,7 +78,7 @@ test('a recipe with a project reference and a .npy latent renders them like the 
     assert.notEqual(sha(readFileSync(join(out, setting, 'seed-000009.png'))), sha(seedPng));
   }
   // Resume: nothing changes, nothing is rendered again.
-  const again = cli('variants', '--recipe', recipeFile, '-d', directions, '--project', project, '--out', out);
+  const again = cli('variants', '--recipe', recipeFile, '-d', directions, '--project', project, '--out', out, '--force', '--reason', 'reference look-development only');
   assert.equal(again.status, 0, again.stderr);
   assert.match(again.stdout, /0 rendered, 8 kept/);
 

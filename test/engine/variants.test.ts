@@ -13,6 +13,7 @@ import { decodeNpy } from '../../app/core/npy.ts';
 import { applyEdits } from '../../app/core/latent.ts';
 import { encodePng } from '../../app/core/image.ts';
 import { tempDir } from '../helpers/models.ts';
+import { Project, vectorHash } from '../../app/engine/project.ts';
 
 const root = join(import.meta.dirname, '..', '..');
 const cli = (...args: string[]) => spawnSync(process.execPath, [join(root, 'app', 'cli', 'bin.js'), ...args], { encoding: 'utf8' });
@@ -77,4 +78,37 @@ test('bad recipes are refused with the file and the problem', () => {
   const r2 = cli('variants', '--recipe', bad, '-d', directions, '--out', join(dir, 'o'));
   assert.equal(r2.status, 2);
   assert.match(r2.stderr, /bad\.json: invalid variant recipe/);
+});
+
+test('with --project the CLI applies the project\'s sign-off as the app does; without one it says nothing is checked', async () => {
+  const dir = tempDir();
+  const project = join(dir, 'project');
+  const gen = await Generator.open(demoCardPath(), { threads: 1 });
+  let p: Project;
+  try {
+    p = Project.open(project, true, { name: gen.info.name, fingerprint: gen.info.fingerprint });
+    const demo = decodeNpy(readFileSync(directions));
+    const names = JSON.parse(readFileSync(directions.replace(/\.npy$/, '.json'), 'utf8')).directions.map((d: { name: string }) => d.name) as string[];
+    const k = names.indexOf('axis_07');
+    const size = demo.shape[demo.shape.length - 1];
+    const vector = Float32Array.from(demo.data.subarray(k * size, (k + 1) * size) as Float32Array);
+    p.saveDirection({ name: 'axis_07', target: null, layers: null, vector, notes: '', source: {} }, gen.layout.space);
+    p.review('axis_07', vectorHash(vector, null), { status: 'rejected', reviewer: 'lead', note: 'leaks into orientation' });
+  } finally {
+    await gen.dispose();
+  }
+  const recipeFile = join(dir, 'recipe.json');
+  writeFileSync(recipeFile, JSON.stringify({ format: 'plumbline.variant-recipe', version: 1, name: 'tilt', seeds: [1], psi: 0.7, settings: [{ label: 'tilted', strengths: { axis_07: 1 } }] }));
+  // The project's own directions (no --directions): refused, naming the sign-off, nothing written.
+  const own = cli('variants', '--recipe', recipeFile, '--project', project, '--out', join(dir, 'own'));
+  assert.equal(own.status, 2, own.stderr);
+  assert.match(own.stderr, /axis_07 was rejected at sign-off/);
+  // The same vector from the demo file, judged by that project: refused the same way.
+  const fromFile = cli('variants', '--recipe', recipeFile, '-d', directions, '--project', project, '--out', join(dir, 'file'));
+  assert.equal(fromFile.status, 2, fromFile.stderr);
+  assert.match(fromFile.stderr, /axis_07 was rejected at sign-off/);
+  // A bare file with no project or pack has no sign-off to check: it renders, and says so.
+  const bare = cli('variants', '--recipe', recipeFile, '-d', directions, '--out', join(dir, 'bare'));
+  assert.equal(bare.status, 0, bare.stderr);
+  assert.match(bare.stderr, /no sign-off or safe range to check/);
 });

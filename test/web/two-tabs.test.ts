@@ -67,7 +67,11 @@ test('the second tab is read-only in the engine, not only on screen; the lock ca
     const openedB = await b.call('project.open', { path: project, create: false, session: 'tab-bbbb' });
     assert.ok(openedB.ok, JSON.stringify(openedB.error));
     assert.equal(openedB.result.readOnly, true);
-    assert.equal(openedB.result.lockHolder.session, 'tab-aaaa');
+    // The holder is named by process, machine and time — never by its session id, which would let
+    // another tab speak for it.
+    assert.equal(typeof openedB.result.lockHolder.pid, 'number');
+    assert.equal('session' in openedB.result.lockHolder, false);
+    assert.doesNotMatch(JSON.stringify(openedB.result), /tab-aaaa/);
 
     // The holder writes; the second tab's write is refused by the engine and nothing changes on disk.
     assert.ok((await a.call('project.saveUi', ui(11))).ok);
@@ -87,6 +91,13 @@ test('the second tab is read-only in the engine, not only on screen; the lock ca
     const review = await b.call('project.review', { direction: direction.id, status: 'in-review', reviewer: 'B', note: '' });
     assert.equal(review.ok, false);
     assert.match(review.error.message, /read-only/);
+    assert.equal(savedSeed(project), 11);
+
+    // Nor can it switch its connection to the holder's session once it has declared its own.
+    const switched = await b.call('project.lock', { session: 'tab-aaaa', release: false });
+    assert.equal(switched.ok, false);
+    assert.match(switched.error.message, /already has a session/);
+    assert.equal((await b.call('project.saveUi', ui(35))).ok, false);
     assert.equal(savedSeed(project), 11);
 
     // A third connection that never declared a session cannot write either.

@@ -3,6 +3,7 @@
 import { PlumblineError } from '../../core/errors.ts';
 import { mergedAuditHistory, releaseLock, vectorHash } from '../project.ts';
 import type { AreaHandlers } from './context.ts';
+import { holderForWire } from '../../protocol/messages.ts';
 import { requestPath } from '../request-paths.ts';
 
 export const projectHandlers: AreaHandlers<'project.open' | 'project.saveUi' | 'project.review' | 'project.lock' | 'audit.history'> = {
@@ -13,7 +14,7 @@ export const projectHandlers: AreaHandlers<'project.open' | 'project.saveUi' | '
       return { readOnly: true, lockHolder: null };
     }
     const r = project.lock(p.session);
-    return { readOnly: r.readOnly, lockHolder: r.holder };
+    return { readOnly: r.readOnly, lockHolder: holderForWire(r.holder) };
   },
   // Every stored audit merged: the newest result of each kept direction.
   'audit.history': (_p, { workspace }) => (workspace.project ? mergedAuditHistory(workspace.project, workspace.kept().map((d) => d.name)) : { report: null, thumbnails: [], files: [] }) as never,

@@ -1,7 +1,7 @@
 // State and intents of the lab screens: project, discovery, audit, repair and sign-off. Works
 // through the same engine client as the workbench (Studio) and keeps Studio's direction list
 // in step with the engine's.
-import { APP_NULL_DIRECTIONS, PROBE_LIMITS, type AuditWire, type DefinedAttributeInfo, type DirectionInfo, type EventData, type LockHolder, type Params, type Result, type VariantDraft, type WireImage } from '../../../app/protocol/messages.ts';
+import { APP_NULL_DIRECTIONS, PROBE_LIMITS, type AuditWire, type DefinedAttributeInfo, type DirectionInfo, type EventData, type LockHolderWire, type Params, type Result, type VariantDraft, type WireImage } from '../../../app/protocol/messages.ts';
 import { EngineRequestError } from './engine.ts';
 import { desktop } from './bridge.ts';
 import { reportHtml } from './report.ts';
@@ -35,10 +35,16 @@ const SESSION_KEY = 'plumbline.session';
 /** How often an open project's lock is renewed; the engine treats one silent for 90 s as stale. */
 const LOCK_RENEW_MS = 20_000;
 
-/** This tab's session id: sessionStorage keeps it across a reload of the tab, a new tab gets its own. */
+/**
+ * This tab's session id. sessionStorage keeps it across a reload of the tab, but a browser copies
+ * sessionStorage into a duplicated tab or a window opened from this one — which must not become a
+ * second writer of the same project — so the stored id is reused only when this page load is a
+ * reload; any other navigation starts a new session.
+ */
 function sessionId(): string {
   const store = globalThis.sessionStorage;
-  let id = store?.getItem(SESSION_KEY);
+  const navigation = globalThis.performance?.getEntriesByType?.('navigation')[0] as PerformanceNavigationTiming | undefined;
+  let id = navigation?.type === 'reload' ? store?.getItem(SESSION_KEY) : null;
   if (!id || !/^[A-Za-z0-9_-]{8,64}$/.test(id)) {
     id = Array.from(globalThis.crypto.getRandomValues(new Uint8Array(12)), (b) => b.toString(16).padStart(2, '0')).join('');
     store?.setItem(SESSION_KEY, id);
@@ -83,7 +89,7 @@ export class Lab {
   recentGenerators = $state<string[]>(readRecent(RECENT_GENERATORS_KEY));
   /** Another window or tab holds this project's lock: look, do not write. */
   readOnly = $state(false);
-  lockHolder = $state.raw<LockHolder | null>(null);
+  lockHolder = $state.raw<LockHolderWire | null>(null);
   readonly session = sessionId();
   #lockTimer: ReturnType<typeof setInterval> | null = null;
 
