@@ -30,20 +30,32 @@ process.on('SIGINT', () => {
   process.stderr.write('\ncancelling after the current batch… (Ctrl+C again to stop now)\n');
 });
 
-function number(name: string, lo: number, hi: number) {
-  return (v: string) => {
+/** Option parsers carry the range they accept, so --help states exactly what is accepted. */
+type RangedParser = ((v: string) => number) & { accepts: string };
+
+function number(name: string, lo: number, hi: number): RangedParser {
+  return Object.assign((v: string) => {
     const n = Number(v);
     if (!Number.isFinite(n) || n < lo || n > hi) throw new InvalidArgumentError(`${name} must be a number in [${lo}, ${hi}], got '${v}'`);
     return n;
-  };
+  }, { accepts: `a number in [${lo}, ${hi}]` });
 }
 
-function integer(name: string, lo: number, hi: number) {
-  return (v: string) => {
+function integer(name: string, lo: number, hi: number): RangedParser {
+  return Object.assign((v: string) => {
     const n = Number(v);
     if (!Number.isInteger(n) || n < lo || n > hi) throw new InvalidArgumentError(`${name} must be an integer in [${lo}, ${hi}], got '${v}'`);
     return n;
-  };
+  }, { accepts: `an integer in [${lo}, ${hi}]` });
+}
+
+/** Appends each ranged option's accepted range to its help text (every command, once). */
+function stateRanges(command: Command): void {
+  for (const option of command.options) {
+    const accepts = (option.parseArg as Partial<RangedParser> | undefined)?.accepts;
+    if (accepts && !option.description.includes(accepts)) option.description = `${option.description} (${accepts})`;
+  }
+  for (const sub of command.commands) stateRanges(sub);
 }
 
 function progressBar(total: number, label: string) {
@@ -135,10 +147,11 @@ export function buildProgram(): Command {
     });
   const ctx = { progressBar, interrupt: interrupt.signal, usage: (m: string) => new UsageError(m) };
   addLabCommands(program, ctx, number, integer);
-  addPackCommands(program, ctx);
+  addPackCommands(program, ctx, number);
   addLocateCommand(program, ctx, integer);
   addDefineCommand(program, ctx, integer, number);
   addFarmCommands(program, ctx, integer);
+  stateRanges(program);
   return program;
 }
 

@@ -4,6 +4,7 @@ import { dirname, join, resolve } from 'node:path';
 import { createHash, createPrivateKey, createPublicKey, type KeyObject } from 'node:crypto';
 import { READ_LIMITS, chosenOutputFile, readRegularFile, readTextFile } from '../core/path-policy.ts';
 import { DIRECTION_NAME_RULE, isDirectionName } from '../protocol/names.ts';
+import { MAX_STRENGTH } from '../protocol/messages.ts';
 import { writeFileAtomic } from '../core/atomic-write.ts';
 import { applyEdits, broadcastLayers, directionEdit } from '../core/latent.ts';
 import { decodeNpy } from '../core/npy.ts';
@@ -89,7 +90,7 @@ function readLatents(file: string, gen: Generator): { n: number; codes: Float32A
   return { n, codes, sha256: createHash('sha256').update(bytes).digest('hex') };
 }
 
-export function addPackCommands(program: Command, ctx: CliContext): void {
+export function addPackCommands(program: Command, ctx: CliContext, number: (n: string, lo: number, hi: number) => (v: string) => number): void {
   program
     .command('pack')
     .description("bundle a project's approved, audited directions into a preset pack (.plpack)")
@@ -133,7 +134,7 @@ export function addPackCommands(program: Command, ctx: CliContext): void {
     .option('-s, --seeds <list>', 'seeds to render, e.g. 0-3')
     .option('--latents <file.npy>', 'render from latent codes instead of seeds ([N, size] or [N, layers, size], e.g. from plumbline locate); used as they are, without truncation')
     .option('--set <name=strength>', 'a direction and its strength in σ; repeatable', (v: string, prev: string[]) => [...prev, v], [] as string[])
-    .option('--psi <number>', 'truncation ψ (default: the generator card’s)')
+    .option('--psi <number>', 'truncation ψ (default: the generator card’s)', number('--psi', 0, 2))
     .option('--preview <name>', "re-render a direction's pack preview exactly, for comparison")
     .option('--force', 'allow strengths outside the audited safe range (needs --reason; recorded in the manifest)')
     .option('--reason <text>', 'why --force is needed; recorded in the manifest')
@@ -154,14 +155,22 @@ export function addPackCommands(program: Command, ctx: CliContext): void {
       }
       if (!o.seeds === !o.latents) throw ctx.usage('apply needs exactly one of --seeds or --latents (or --preview <name>)');
       const latents = o.latents ? readLatents(resolve(o.latents), gen) : null;
-      const seeds = latents ? Array.from({ length: latents.n }, (_, i) => i) : parseSeeds(o.seeds);
+      let seeds: number[];
+      try {
+        seeds = latents ? Array.from({ length: latents.n }, (_, i) => i) : parseSeeds(o.seeds);
+      } catch (err) {
+        throw ctx.usage(`--seeds: ${(err as Error).message}`);
+      }
       const sets = (o.set as string[]).map((s) => {
-        const m = /^([A-Za-z0-9_.-]+)=(-?\d+(?:\.\d+)?)$/.exec(s);
+        const m = /^([A-Za-z0-9_.-]+)=(.*)$/.exec(s);
         if (!m) throw ctx.usage(`--set '${s}' must look like name=strength, e.g. crest_size=1.5`);
+        const strength = Number(m[2]);
+        // The engine's strength limits (app/protocol/messages.ts): beyond them no audit says anything.
+        if (m[2].trim() === '' || !Number.isFinite(strength) || Math.abs(strength) > MAX_STRENGTH) throw ctx.usage(`--set '${s}': the strength must be a number in [-${MAX_STRENGTH}, ${MAX_STRENGTH}] σ, got '${m[2]}'`);
         if (!isDirectionName(m[1])) throw ctx.usage(`--set '${s}': '${m[1]}' is not a direction name (${DIRECTION_NAME_RULE})`);
         const d = v.directions.find((x) => x.name === m[1]);
         if (!d) throw ctx.usage(`--set: the pack has no direction '${m[1]}'; it holds ${v.directions.map((x) => x.name).join(', ')}`);
-        return { d, strength: Number(m[2]) };
+        return { d, strength };
       });
       // The rules shared with variant sets and the app (app/core/signoff-rules.ts); a pack holds approved directions only.
       let decision;
@@ -175,7 +184,7 @@ export function addPackCommands(program: Command, ctx: CliContext): void {
         throw ctx.usage((err as Error).message);
       }
       if (decision.forced.length) process.stderr.write(`warning: forced outside the safe range: ${decision.forced.map((f) => `${f.direction}=${f.strength}`).join(', ')} (reason: ${decision.reason})\n`);
-      const psi = o.psi === undefined ? gen.info.defaultPsi : Number(o.psi);
+      const psi: number = o.psi ?? gen.info.defaultPsi;
       const images: (({ seed: number } | { latent: number }) & { file: string; sha256: string })[] = [];
       // Conversion to 8 bits, encoding and writing run on worker threads while the next batch renders.
       const pool = sharedPngWriter();

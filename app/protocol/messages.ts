@@ -14,7 +14,9 @@ export type WireError = ErrorData;
 const bytes = z.custom<Uint8Array>((v) => v instanceof Uint8Array, { message: "expected binary bytes (Uint8Array)" });
 const seed = z.number().int().min(0).max(0xffffffff);
 const psi = z.number().min(0).max(2);
-const strength = z.number().finite().min(-50).max(50);
+/** Largest edit strength (σ) any request may carry. */
+export const MAX_STRENGTH = 50;
+const strength = z.number().finite().min(-MAX_STRENGTH).max(MAX_STRENGTH);
 /** A named reference (a located latent pinned in the project); same rule as app/engine/references.ts. */
 const referenceName = /^[A-Za-z0-9_-][A-Za-z0-9_.-]{0,119}$/;
 

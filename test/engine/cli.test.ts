@@ -59,3 +59,18 @@ test('audit --probes: the range --help states is the range accepted (issue 11: i
   assert.equal(negative.status, 2);
   assert.match(negative.stderr, /--probes must be an integer in \[0, 100000\], got '-5'/);
 });
+
+test('every ranged option states in --help the range it accepts, and refuses just past it (issue 11)', () => {
+  const dirs = join(root, 'resources', 'demo', 'sigil-directions.npy');
+  const help = spawnSync(process.execPath, [cli, 'audit', '--help'], { encoding: 'utf8' }).stdout.replace(/\s+/g, ' ');
+  const stated = [...help.matchAll(/(--[a-z-]+) <[a-z]+> (?:(?! --[a-z]).)*?\(an? (integer|number) in \[(-?[\d.e]+), (-?[\d.e]+)\]\)/g)].map((m) => ({ option: m[1], hi: Number(m[4]), integer: m[2] === 'integer' }));
+  // The limits the tryout found unstated, among the rest.
+  for (const o of ['--psi', '--seed', '--reference', '--nulls', '--resamples', '--threads']) assert.ok(stated.some((s) => s.option === o), `${o} states its range in audit --help`);
+  for (const s of stated) {
+    const past = s.integer ? s.hi + 1 : s.hi * 1.5 + 1;
+    const r = spawnSync(process.execPath, [cli, 'audit', '--directions', dirs, s.option, String(past)], { encoding: 'utf8' });
+    assert.equal(r.status, 2, `${s.option} ${past}: ${r.stderr}`);
+    assert.match(r.stderr, new RegExp(`${s.option} must be an? (integer|number) in`), s.option);
+  }
+});
+

@@ -112,6 +112,25 @@ test('apply reproduces the pack previews bit for bit and guards the safe range',
   const manifest = JSON.parse(readFileSync(join(out, 'forced', 'manifest.json'), 'utf8'));
   assert.equal(manifest.settings[0].forced, true);
   assert.equal(manifest.forceReason, 'client wants the oversized crest');
+  // Bad input is refused as input (exit 2, naming the option and what it accepts), never reaching
+  // the generator and never as an unexpected error — the same limits as the other commands.
+  const badInput: [string[], RegExp][] = [
+    [['--psi', 'abc'], /--psi must be a number in \[0, 2\], got 'abc'/],
+    [['--psi', '1e9'], /--psi must be a number in \[0, 2\]/],
+    [['--psi', '-5'], /--psi must be a number in \[0, 2\]/],
+    [['--seeds', 'abc'], /--seeds: 'abc' is not a seed or a seed range/],
+    [['--seeds', '3-1'], /--seeds: seed range '3-1' runs backwards/],
+    [['--seeds', '4294967296'], /--seeds: seed 4294967296 is above 4294967295/],
+    [['--seeds', '0', '--set', 'turn=1e9'], /--set 'turn=1e9': the strength must be a number in \[-50, 50\] σ/],
+    [['--seeds', '0', '--set', 'turn=abc'], /--set 'turn=abc': the strength must be a number/],
+  ];
+  for (const [args, message] of badInput) {
+    const r = cli('apply', '--pack', packFile, ...(args.includes('--seeds') ? [] : ['--seeds', '0']), ...args, '--out', join(out, 'bad'));
+    assert.equal(r.status, 2, `${args.join(' ')}: ${r.stderr}`);
+    assert.match(r.stderr, message, args.join(' '));
+    assert.doesNotMatch(r.stderr, /unexpected error|    at /, args.join(' '));
+  }
+  assert.equal(existsSync(join(out, 'bad')), false);
 });
 
 test('apply --latents renders stored codes exactly as the same codes from seeds (W+ [N, 3, 32] and W [N, 32])', async () => {
