@@ -9,6 +9,7 @@ import { exceedance, leakAtReference, leakAtStrength, type BreakPoint, type Leak
 import { filteredMean, percentileFilterBounds } from './path-length.ts';
 import type { AuditSettings } from './settings.ts';
 import { safeRangeFromCurves } from './safe-range.ts';
+import { blindness, type BlindMeasure } from './detection.ts';
 
 export interface Interval {
   value: number;
@@ -90,6 +91,12 @@ export interface DirectionStatistics {
   notMeasurable: Record<string, number>;
   /** Apparent leaks no larger than the instrument shows by itself, largest first: not counted. */
   withinInstrument: WithinInstrument[];
+  /**
+   * Judged non-target measures this audit of the direction cannot see a leak into at a verdict
+   * threshold (detection.ts): their allowance at ±reference — the smallest leak that registers at
+   * either sign — is at or above leakPass or leakFail. Largest limit first.
+   */
+  blind: BlindMeasure[];
 }
 
 /**
@@ -171,7 +178,7 @@ export function leakScreen(attributes: string[], candidate: boolean[] | undefine
     }
     return out.sort((a, b) => b.change - a.change);
   };
-  return { screen, allowance: (means: ArrayLike<number>, t: number) => terms(means, t).allowance, explain };
+  return { screen, allowance: (means: ArrayLike<number>, t: number) => terms(means, t).allowance, terms, explain };
 }
 
 /** What a random direction is compared on: see nullSummary. */
@@ -270,7 +277,7 @@ export function directionStatistics(m: DirectionMeasurements, plan: StatisticsGr
   // The leak at ±reference, with sign, worst attribute and (when none is declared) the target
   // chosen inside every resample.
   const declared = declaredTarget ? attributes.indexOf(declaredTarget) : -1;
-  const { screen, allowance, explain } = leakScreen(attributes, leak, instrument);
+  const { screen, allowance, terms, explain } = leakScreen(attributes, leak, instrument);
   const atRef = leakAtReference(bootstrap, plusRows, minusRows, declared >= 0 ? declared : null, ref, screen, attributes.map((_, j) => leak?.[j] !== false));
   const target = atRef.targetIndex;
   const targetChosen = declared < 0;
@@ -329,6 +336,20 @@ export function directionStatistics(m: DirectionMeasurements, plan: StatisticsGr
   }
   worst.sort((a, b) => b.leakage - a.leakage);
 
+  // What this audit of the direction cannot see: per judged non-target attribute, the smallest leak
+  // that registers at either reference sign (its allowance there, and what set it), when that
+  // reaches a verdict threshold.
+  const sides = [terms(plusMeans, target), terms(minusMeans, target)];
+  const blind: BlindMeasure[] = [];
+  for (let j = 0; j < K; j++) {
+    if (j === target || Number.isNaN(sides[0].allowance[j])) continue;
+    const side = sides[1].allowance[j] < sides[0].allowance[j] ? sides[1] : sides[0];
+    const limit = side.allowance[j];
+    const blindTo = blindness(limit, settings);
+    if (blindTo) blind.push({ attribute: attributes[j], limit: significant(limit), blindTo, ...(side.source[j] >= 0 ? { via: attributes[side.source[j]] } : {}) });
+  }
+  blind.sort((a, b) => b.limit - a.limit);
+
   const curves: DirectionStatistics['curves'] = { strengths: grid, attributes: {} };
   attributes.forEach((name, j) => {
     const mean: number[] = [];
@@ -370,6 +391,7 @@ export function directionStatistics(m: DirectionMeasurements, plan: StatisticsGr
         .filter(([, c]) => c > 0),
     ),
     withinInstrument: explain(worseSign === 0 ? plusMeans : minusMeans, target),
+    blind,
   };
 }
 
