@@ -1,7 +1,7 @@
 // Chart data mapping: audit values to heatmap cells and curve rows with their CI bands.
 import { test } from 'node:test';
 import assert from 'node:assert/strict';
-import { ATTRIBUTE_PALETTE, attributeColors, curveRows, heatDomain, heatmapCells, leadingAttributes, logTicks, niceMax, pathRows, tickLabel } from '../../renderer/src/lib/charts.ts';
+import { ATTRIBUTE_PALETTE, attributeColors, curveRows, heatDomain, heatmapCells, leadingAttributes, logTicks, niceMax, pathRows, tickLabel, worstProbeCaption } from '../../renderer/src/lib/charts.ts';
 import type { AuditWire } from '../../app/protocol/messages.ts';
 
 const iv = (value: number, low: number, high: number) => ({ value, low, high });
@@ -87,4 +87,27 @@ test('log-axis ticks: every one a 1-2-5 value inside the range, each labelled', 
   assert.deepEqual(logTicks(0.0011, 0.0019), [0.0011, 0.0019]);
   assert.deepEqual(logTicks(1e-5, 10), [1e-5, 1e-4, 0.001, 0.01, 0.1, 1, 10]);
   for (const v of logTicks(0.0031, 0.024)) assert.notEqual(tickLabel(v), '');
+});
+
+/** The fixture audited with a calibrated instrument: hue set aside as within it, a composite reported but not judged. */
+const calibrated = {
+  ...report,
+  attributes: [...report.attributes, { name: 'colourfulness', unit: '', source: 'image', sigma: 1, judged: false }],
+  calibration: { probes: 24, operations: { invisible: [], exact: [] }, measures: {}, floorMultiple: 2, crossTalkMultiple: 1.5 },
+  directions: [{
+    ...report.directions[0],
+    dependency: { ...report.directions[0].dependency, hue: iv(3.1, 2.9, 3.3), colourfulness: iv(4.4, 4, 4.8) },
+    withinInstrument: [{ attribute: 'hue', change: 3.1, ratio: 1.55, noiseFloor: 1.8, crossTalk: 0.02 }],
+    blind: [{ attribute: 'hue', limit: 3.6, blindTo: 'fail' }],
+  }],
+} as unknown as AuditWire;
+
+test('worst-probe captions name only an attribute that counts beyond the instrument, else say nothing does', () => {
+  assert.deepEqual(worstProbeCaption(calibrated, 'bold', { attribute: 'backdrop', leakage: 0.456 }), { attribute: 'backdrop', text: 'backdrop 0.46 σ' });
+  // A set-aside attribute, an unjudged one, or none: nothing beyond the instrument.
+  for (const probe of [{ attribute: 'hue', leakage: 0.8 }, { attribute: 'colourfulness', leakage: 1.2 }, { attribute: 'none', leakage: 0 }, { attribute: 'backdrop', leakage: 0 }]) {
+    assert.deepEqual(worstProbeCaption(calibrated, 'bold', probe), { attribute: null, text: 'nothing beyond the instrument' }, probe.attribute);
+  }
+  // Without a calibrated instrument there is no "beyond": no leak.
+  assert.deepEqual(worstProbeCaption(report, 'bold', { attribute: 'none', leakage: 0 }), { attribute: null, text: 'no leak' });
 });

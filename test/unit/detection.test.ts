@@ -2,7 +2,7 @@
 // smallest leak beyond the instrument, floorMultiple × its noise floor (more where an exact
 // operation's cross-talk adds to a direction's allowance), and a limit at or above a verdict
 // threshold hides a leak that large. Worked examples by hand, then the same facts as the leak
-// screen, the verdict reason and the report state them.
+// screen, the verdict reason, the worst probes and the report state them.
 import { test } from 'node:test';
 import assert from 'node:assert/strict';
 import { blindMeasures, blindness, blindnessClauses, blindnessSentences, detectionLimit, formatLimit, measureDetection } from '../../app/core/audit/detection.ts';
@@ -110,4 +110,21 @@ test('a leak as large as the fail threshold into a blind measure reads as none �
   const p = directionStatistics(past, PLAN, ATTRIBUTES, seedsOf(n), 'size', new ProbeBootstrap(n, 200, 1), undefined, INSTRUMENT);
   assert.equal(p.leakage.attribute, 'detail');
   assert.ok(Math.abs(p.leakage.value - 0.3) < 1e-9);
+});
+
+test('worst probes name only an attribute that counts beyond the instrument, or none', () => {
+  const n = 40;
+  // hue: mean 0.08 σ (within 2 × 0.05) with one probe at 0.9 σ — that measure's own scatter, set aside.
+  const hue = Float64Array.from({ length: n }, (_, p) => (p === 7 ? 0.9 : (0.08 * n - 0.9) / (n - 1)));
+  const clean = measurements([constant(n, 2), hue, constant(n, 0), constant(n, 0)], [constant(n, -2), hue, constant(n, 0), constant(n, 0)]);
+  const a = directionStatistics(clean, PLAN, ATTRIBUTES, seedsOf(n), 'size', new ProbeBootstrap(n, 200, 1), undefined, INSTRUMENT);
+  assert.ok(a.withinInstrument.some((w) => w.attribute === 'hue'));
+  // Before: probe 7 was captioned "hue 0.80" (its 0.9 σ less the 0.1 allowance), a set-aside attribute.
+  assert.ok(a.worstProbes.length > 0);
+  for (const w of a.worstProbes) assert.deepEqual([w.attribute, w.leakage], ['none', 0]);
+  // A real backdrop leak (0.6 σ, 0.3 σ beyond its allowance) names backdrop, each probe by its share beyond: 0.6 × 0.3 / 0.6.
+  const leaky = measurements([constant(n, 2), hue, constant(n, 0.6), constant(n, 0)], [constant(n, -2), hue, constant(n, 0.6), constant(n, 0)]);
+  const b = directionStatistics(leaky, PLAN, ATTRIBUTES, seedsOf(n), 'size', new ProbeBootstrap(n, 200, 1), undefined, INSTRUMENT);
+  assert.equal(b.worstProbes[0].attribute, 'backdrop');
+  assert.ok(Math.abs(b.worstProbes[0].leakage - 0.3) < 1e-9, `worst probe leaks ${b.worstProbes[0].leakage}`);
 });

@@ -19,7 +19,9 @@ export interface WorstProbe {
   seed: number | null;
   reference?: string;
   strength: number;
+  /** The attribute of the probe's own leak beyond the instrument; 'none' when nothing moves beyond it. */
   attribute: string;
+  /** That leak, σ of the attribute (as the exceedance counts it). */
   leakage: number;
   /** PNG of the unedited probe. */
   before: Uint8Array;

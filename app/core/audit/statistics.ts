@@ -46,7 +46,9 @@ export interface WorstProbeChoice {
   index: number;
   seed: number;
   strength: number;
+  /** The attribute of the probe's own leak beyond the instrument; 'none' when nothing moves beyond it. */
   attribute: string;
+  /** That leak in σ of the attribute (its change × the share of the attribute's mean change beyond the instrument). */
   leakage: number;
 }
 
@@ -320,19 +322,27 @@ export function directionStatistics(m: DirectionMeasurements, plan: StatisticsGr
   /** Share of each attribute's mean change beyond its allowance (1 with none; NaN: never a leak). */
   const beyondShare = (means: number[], allowance: Float64Array) => means.map((m, j) => (Number.isNaN(allowance[j]) ? NaN : allowance[j] === 0 ? 1 : m > 0 ? Math.max(0, m - allowance[j]) / m : 0));
 
-  // Worst probes at the worse reference sign: the largest own leak beyond its allowance among the
-  // attributes that can leak, in σ of the leaked attribute (a probe where none is measurable is left out).
+  // Worst probes at the worse reference sign: each probe's own leak as the exceedance counts it —
+  // its change in each attribute that can leak, discounted by the share of that attribute's mean
+  // change beyond the instrument (beyondShare), in σ of the leaked attribute. An attribute the
+  // instrument explains on average (set aside) never names a probe's leak: one probe's scatter of
+  // a noisy measure is not a leak. When nothing counts on a probe its attribute is 'none' (the
+  // caption then says nothing moved beyond the instrument). A probe where none is measurable is left out.
+  const worseShare = beyondShare(worseSign === 0 ? plusMeans : minusMeans, worseAllowance);
   const others = attributes.map((_, j) => j).filter((j) => j !== target && !Number.isNaN(worseAllowance[j]));
   const worst: WorstProbeChoice[] = [];
   for (let p = 0; p < n && others.length; p++) {
     let bj = -1;
     let bv = -Infinity;
+    let measurable = false;
     for (const j of others) {
-      const v = Math.abs(worseRows[j][p]) - worseAllowance[j];
-      if (!Number.isNaN(v) && v > bv) (bj = j), (bv = v);
+      const v = Math.abs(worseRows[j][p]) * worseShare[j];
+      if (Number.isNaN(v)) continue;
+      measurable = true;
+      if (v > bv) (bj = j), (bv = v);
     }
-    if (bj < 0) continue;
-    worst.push({ seed: seeds[p], strength: atRef.strength, attribute: attributes[bj], leakage: Math.max(0, bv), index: p });
+    if (!measurable) continue;
+    worst.push({ seed: seeds[p], strength: atRef.strength, attribute: bv > 0 ? attributes[bj] : 'none', leakage: Math.max(0, bv), index: p });
   }
   worst.sort((a, b) => b.leakage - a.leakage);
 

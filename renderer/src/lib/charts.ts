@@ -38,6 +38,20 @@ export function heatmapCells(report: AuditWire): HeatCell[] {
   });
 }
 
+/**
+ * A worst probe's caption: the attribute its leak counts in — beyond the instrument, judged, not
+ * set aside for the direction — with that leak in σ of the attribute, or that nothing counts.
+ * (Reports made before worst probes were chosen this way could name a set-aside or unjudged
+ * attribute; those read as nothing beyond the instrument too.)
+ */
+export function worstProbeCaption(report: AuditWire, direction: string, probe: { attribute: string; leakage: number }): { attribute: string | null; text: string } {
+  const d = report.directions.find((x) => x.name === direction);
+  const judged = report.attributes.find((a) => a.name === probe.attribute)?.judged !== false;
+  const setAside = d?.withinInstrument?.some((w) => w.attribute === probe.attribute) ?? false;
+  if (probe.attribute !== 'none' && probe.leakage > 0 && judged && !setAside) return { attribute: probe.attribute, text: `${probe.attribute} ${probe.leakage.toFixed(2)} σ` };
+  return { attribute: null, text: report.calibration ? 'nothing beyond the instrument' : 'no leak' };
+}
+
 export interface CurveRow {
   attribute: string;
   strength: number;

@@ -3,7 +3,7 @@
 // PDF. Built from what the studio shows: every direction's newest audit, its sign-off status and
 // history, overrides spelled out.
 import type { AuditWire, DirectionInfo } from '../../../app/protocol/messages.ts';
-import { attributeColors, heatDomain, heatmapCells, VERDICT_LABEL } from './charts.ts';
+import { attributeColors, heatDomain, heatmapCells, worstProbeCaption, VERDICT_LABEL } from './charts.ts';
 import { formatDate } from './format.ts';
 
 export interface ReportInput {
@@ -55,7 +55,7 @@ ${audit.directions.map((d) => `<tr><th>${esc(d.name)}</th>${audit.attributes.map
 ${a ? `<p><b class="v-${esc(a.verdict)}">${esc(VERDICT_LABEL[a.verdict])}</b> — ${esc(a.reason)}</p>
 <p class="muted">leakage ${a.leakage.value?.toFixed(3)} [${a.leakage.low?.toFixed(3)}–${a.leakage.high?.toFixed(3)}] into ${esc(a.leakage.attribute)} · path length ${a.pathLength.value?.toPrecision(3)} (${esc(a.pathLength.distance)} per σ²) · safe range ${a.safeRange[0]} to ${a.safeRange[1]} σ${typeof a.auditedAt === 'string' ? ` · audited ${esc(formatDate(a.auditedAt))}` : ''}</p>` : '<p class="muted">No audit on record.</p>'}
 ${s?.gate ? `<p class="muted">Approval gate: ${esc(s.gate.explanation)}.</p>` : ''}
-${thumbs.length ? `<div class="thumbs">${thumbs.map((t) => ({ ...t, probe: t.reference ? `reference ${esc(t.reference)}` : `seed ${t.seed}` })).map((t) => `<figure><img alt="${t.probe} before" src="${pngDataUri(t.before)}"><img alt="${t.probe} at ${t.strength} σ" src="${pngDataUri(t.after)}"><figcaption>${t.probe}: <span class="sw" style="background:${colours[t.attribute] ?? '#888'}"></span>${esc(t.attribute)} ${t.leakage.toFixed(2)}</figcaption></figure>`).join('')}</div>` : ''}
+${thumbs.length ? `<div class="thumbs">${thumbs.map((t) => ({ ...t, probe: t.reference ? `reference ${esc(t.reference)}` : `seed ${t.seed}`, caption: audit ? worstProbeCaption(audit, d.name, t) : { attribute: null, text: `${t.attribute} ${t.leakage.toFixed(2)}` } })).map((t) => `<figure><img alt="${t.probe} before" src="${pngDataUri(t.before)}"><img alt="${t.probe} at ${t.strength} σ" src="${pngDataUri(t.after)}"><figcaption>${t.probe}: ${t.caption.attribute ? `<span class="sw" style="background:${colours[t.caption.attribute] ?? '#888'}"></span>` : ''}${esc(t.caption.text)}</figcaption></figure>`).join('')}</div>` : ''}
 ${history ? `<ol class="hist">${history}</ol>` : ''}</section>`;
   }).join('\n');
   return `<!doctype html><html lang="en"><head><meta charset="utf-8"><meta http-equiv="Content-Security-Policy" content="default-src 'none'; img-src data:; style-src 'unsafe-inline'"><title>${esc(r.project)} — audit and sign-off</title>
