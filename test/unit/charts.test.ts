@@ -102,6 +102,17 @@ const calibrated = {
   }],
 } as unknown as AuditWire;
 
+test('heatmap: set-aside and unjudged cells are grey kinds of their own, say why, and never stretch the colour scale', () => {
+  const cells = heatmapCells(calibrated);
+  const kind = (a: string) => cells.find((c) => c.attribute === a)!;
+  assert.deepEqual(['size', 'backdrop', 'hue', 'colourfulness'].map((a) => kind(a).kind), ['target', 'counted', 'set-aside', 'unjudged']);
+  assert.match(kind('hue').label, /bold → hue: 3\.10 σ \(95% CI 2\.90–3\.30\) · set aside, not counted as a leak: within the instrument's own noise floor \(1\.80 σ\) or cross-talk \(0\.02 σ per σ\) · cannot detect a leak below 3\.60 σ here$/);
+  assert.match(kind('colourfulness').label, /· reported, not judged: a composite or descriptor, never taken as a leak$/);
+  assert.match(kind('backdrop').label, /· 0\.50 of the target$/);
+  // Before: the legend ran to 5 (colourfulness 4.4 σ) and backdrop's real 1 σ leak looked faint beside the grey cells.
+  assert.deepEqual(heatDomain(cells), [0, 1]);
+});
+
 test('worst-probe captions name only an attribute that counts beyond the instrument, else say nothing does', () => {
   assert.deepEqual(worstProbeCaption(calibrated, 'bold', { attribute: 'backdrop', leakage: 0.456 }), { attribute: 'backdrop', text: 'backdrop 0.46 σ' });
   // A set-aside attribute, an unjudged one, or none: nothing beyond the instrument.
