@@ -1,7 +1,8 @@
 // Chart data mapping: audit values to heatmap cells and curve rows with their CI bands.
 import { test } from 'node:test';
 import assert from 'node:assert/strict';
-import { ATTRIBUTE_PALETTE, attributeColors, curveRows, heatDomain, heatmapCells, leadingAttributes, logTicks, niceMax, pathRows, tickLabel, worstProbeCaption } from '../../renderer/src/lib/charts.ts';
+import { ATTRIBUTE_PALETTE, attributeColors, changeMapLevel, curveRows, heatDomain, heatmapCells, leadingAttributes, logTicks, niceMax, pathRows, tickLabel, worstProbeCaption } from '../../renderer/src/lib/charts.ts';
+import { changeMapImage } from '../../app/core/audit/change-map.ts';
 import type { AuditWire } from '../../app/protocol/messages.ts';
 
 const iv = (value: number, low: number, high: number) => ({ value, low, high });
@@ -121,4 +122,18 @@ test('worst-probe captions name only an attribute that counts beyond the instrum
   }
   // Without a calibrated instrument there is no "beyond": no leak.
   assert.deepEqual(worstProbeCaption(report, 'bold', { attribute: 'none', leakage: 0 }), { attribute: null, text: 'no leak' });
+});
+
+test('the change map overlay reads its level back from the PNG exactly as the core drew it: linear in ΔE00 up to full scale', () => {
+  const full = 20;
+  const deltaE = Float32Array.from({ length: 201 }, (_, i) => (i * full * 1.2) / 200);
+  const img = changeMapImage(deltaE, deltaE.length, 1, full);
+  deltaE.forEach((d, p) => {
+    const level = changeMapLevel(img.data[p * 4], img.data[p * 4 + 1], img.data[p * 4 + 2]);
+    // 8-bit codes: within 1/255 of the true level (d / full, clipped at 1) — a 0.08 ΔE00 step at full scale 20.
+    assert.ok(Math.abs(level - Math.min(1, d / full)) <= 1 / 255 + 1e-9, `ΔE00 ${d}: level ${level}`);
+  });
+  // Before, the overlay took the red channel alone, which saturates at half scale (ΔE00 10 drew as full colour).
+  const half = changeMapImage(Float32Array.from([full / 2]), 1, 1, full);
+  assert.ok(Math.abs(changeMapLevel(half.data[0], half.data[1], half.data[2]) - 0.5) < 1 / 255);
 });

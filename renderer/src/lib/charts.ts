@@ -74,6 +74,18 @@ export function worstProbeCaption(report: AuditWire, direction: string, probe: {
   return { attribute: null, text: report.calibration ? 'nothing beyond the instrument' : 'no leak' };
 }
 
+/**
+ * The change map's level, 0–1 of its full scale (ΔE00 ÷ fullScale, clipped), read back from one
+ * pixel of its PNG: the inverse of changeMapImage in app/core/audit/change-map.ts (black → red →
+ * yellow → white: red rises over the first half, green from 0.3, blue from 0.7), so an overlay
+ * drawn from it is linear in ΔE00 up to full scale, as its colour scale says.
+ */
+export function changeMapLevel(r: number, g: number, b: number): number {
+  if (r < 255) return r / 510;
+  if (b > 0) return 0.7 + (0.3 * b) / 255;
+  return Math.min(1, (1.4 * (g / 255) ** 1.25 + 0.6) / 2);
+}
+
 export interface CurveRow {
   attribute: string;
   strength: number;

@@ -1,7 +1,7 @@
 // In-app help: what each discovery method does, what each measure means and what each verdict
 // says (and does not say). Plain words, our own.
 
-export type HelpTopic = 'sefa' | 'pca' | 'boundary' | 'means' | 'leakage' | 'path-length' | 'safe-range' | 'probes' | 'verdicts' | 'heatmap' | 'detection-limit' | 'cross-talk';
+export type HelpTopic = 'sefa' | 'pca' | 'boundary' | 'means' | 'leakage' | 'path-length' | 'safe-range' | 'probes' | 'verdicts' | 'heatmap' | 'detection-limit' | 'cross-talk' | 'change-map';
 
 export const HELP: Record<HelpTopic, { title: string; body: string[] }> = {
   sefa: { title: 'Closed-form factorization', body: ['Reads the generator’s first weights acting on the latent and takes the directions they stretch most (eigenvectors of WᵀW). Needs no sampling and no labels.', 'Finds what the network is most sensitive to; the names are yours to give after looking at the strips.'] },
@@ -16,4 +16,5 @@ export const HELP: Record<HelpTopic, { title: string; body: string[] }> = {
   heatmap: { title: 'Dependency heatmap', body: ['Rows: directions; columns: attributes. Each cell is the mean change of the attribute, in its own σ, at the reference strength. The colour scale covers the largest coloured value.', 'Grey cells are not leaks: hatched ones are set aside as within the instrument (no larger than its noise floor or cross-talk), plain ones with a dashed outline are reported but never judged. Hover a cell for why.'] },
   'detection-limit': { title: 'Detection limit', body: ['The smallest leak into a measure the audit can register on this generator: twice its noise floor, in σ of the measure. A leak no larger reads as none; a larger one reads as its excess over the limit.', 'At or above the fail threshold the measure cannot see a failing leak; at or above the pass threshold it cannot tell pass from review. A pass says nothing about a leak into such a measure.'] },
   'cross-talk': { title: 'Cross-talk', body: ['How much this measure moves under an exact image operation that by construction changes something else (a translation, a scaling about the subject, a turn of the subject’s hue…), per unit of what the operation moves.', 'Unit: σ of this measure per σ of the operation’s own measure. A direction’s apparent leak within 1.5× this, times its change in that measure, is set aside as the instrument’s own.'] },
+  'change-map': { title: 'Change map', body: ['Where the direction acts: the mean CIEDE2000 colour difference (ΔE00) between each kept probe and its edit at +reference, per pixel, drawn as a red tint over the preview.', 'Clear where nothing changed; the tint deepens linearly to full colour at the map’s full scale, and stays full beyond it.'] },
 };
