@@ -120,6 +120,8 @@ test('worst-probe captions name only an attribute that counts beyond the instrum
   for (const probe of [{ attribute: 'hue', leakage: 0.8 }, { attribute: 'colourfulness', leakage: 1.2 }, { attribute: 'none', leakage: 0 }, { attribute: 'backdrop', leakage: 0 }]) {
     assert.deepEqual(worstProbeCaption(calibrated, 'bold', probe), { attribute: null, text: 'nothing beyond the instrument' }, probe.attribute);
   }
+  // A leak that would print as 0.00 σ points at no attribute.
+  assert.deepEqual(worstProbeCaption(calibrated, 'bold', { attribute: 'backdrop', leakage: 0.003 }), { attribute: null, text: 'under 0.01 σ beyond the instrument' });
   // Without a calibrated instrument there is no "beyond": no leak.
   assert.deepEqual(worstProbeCaption(report, 'bold', { attribute: 'none', leakage: 0 }), { attribute: null, text: 'no leak' });
 });

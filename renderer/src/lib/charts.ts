@@ -70,7 +70,10 @@ export function worstProbeCaption(report: AuditWire, direction: string, probe: {
   const d = report.directions.find((x) => x.name === direction);
   const judged = report.attributes.find((a) => a.name === probe.attribute)?.judged !== false;
   const setAside = d?.withinInstrument?.some((w) => w.attribute === probe.attribute) ?? false;
-  if (probe.attribute !== 'none' && probe.leakage > 0 && judged && !setAside) return { attribute: probe.attribute, text: `${probe.attribute} ${probe.leakage.toFixed(2)} σ` };
+  const counts = probe.attribute !== 'none' && probe.leakage > 0 && judged && !setAside;
+  // A leak that would print as 0.00 σ is said as under 0.01 σ, without an attribute to point at.
+  if (counts && probe.leakage < 0.005) return { attribute: null, text: `under 0.01 σ ${report.calibration ? 'beyond the instrument' : 'of leak'}` };
+  if (counts) return { attribute: probe.attribute, text: `${probe.attribute} ${probe.leakage.toFixed(2)} σ` };
   return { attribute: null, text: report.calibration ? 'nothing beyond the instrument' : 'no leak' };
 }
 
