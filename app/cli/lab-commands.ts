@@ -6,6 +6,7 @@ import { writeDirections } from '../core/direction-files.ts';
 import { PlumblineError } from '../core/errors.ts';
 import { runAudit, type AuditReport } from '../engine/audit/run.ts';
 import { auditReportFile } from '../core/audit/report.ts';
+import { detectionWords, formatLimit } from '../core/audit/detection.ts';
 import { Workspace, demoCardPath } from '../engine/workspace.ts';
 import { discover } from '../engine/lab.ts';
 import { driveSteps } from '../engine/handlers/context.ts';
@@ -92,6 +93,45 @@ const f2 = (v: number) => (Number.isFinite(v) ? v.toFixed(2) : '—');
 const sgn = (v: number) => (v > 0 ? `+${v}` : `${v}`);
 const pc = (v: number) => `${(v * 100).toFixed(1)}%`;
 
+/**
+ * The instrument as calibrated in this audit, after the verdicts: per measure its noise floor, its
+ * detection limit (the smallest leak the audit can register in it, app/core/audit/detection.ts)
+ * and what that lets it see at this audit's thresholds, and its largest cross-talk with the exact
+ * operation showing it; then the probes on which no subject separated, when the built-in measures ran.
+ */
+export function instrumentTable(report: AuditReport): string[] {
+  const out: string[] = [];
+  const c = report.calibration;
+  if (c) {
+    out.push('', `instrument (calibrated on ${c.probes} probes): a leak counts only beyond its detection limit (${c.floorMultiple}× the noise floor) and ${c.crossTalkMultiple}× the cross-talk into it; a smaller leak reads as none, a larger one as its excess`);
+    const judged = (name: string) => report.attributes.find((a) => a.name === name)?.judged !== false;
+    const rows = Object.entries(c.measures).map(([name, m]) => {
+      let worst: { op: string; value: number } | null = null;
+      for (const [op, v] of Object.entries(m.crossTalk)) if (typeof v === 'number' && Number.isFinite(v) && v > 0 && (!worst || v > worst.value)) worst = { op, value: v };
+      // null where the operation owns the measure (it moves it by construction).
+      const owned = Object.values(m.crossTalk).some((v) => v === null);
+      return [
+        judged(name) ? name : `${name} (reported, not judged)`,
+        Number.isFinite(m.noiseFloor) ? m.noiseFloor.toFixed(3) : '—',
+        formatLimit(m.detectionLimit),
+        judged(name) ? detectionWords(m.blindTo, report.settings) : 'not judged',
+        worst ? f2(worst.value) : '—',
+        worst?.op ?? (owned ? 'unmoved by every other exact operation' : 'unmoved by every exact operation'),
+      ];
+    });
+    const head = ['measure', 'noise floor σ', 'detection limit σ', 'can it see a leak?', 'largest cross-talk σ/σ', 'under'];
+    const widths = head.map((h, k) => Math.max(h.length, ...rows.map((r) => r[k].length)));
+    const line = (r: string[]) => r.map((cell, k) => pad(cell, widths[k])).join('  ').trimEnd();
+    out.push(line(head), widths.map((w) => '─'.repeat(w)).join('  '), ...rows.map(line));
+    out.push(`cross-talk: σ of the measure per σ of the measure the operation owns (e.g. per σ of subject_x under a translation)`);
+  }
+  if (report.noSubject) {
+    const { probes, of } = report.noSubject;
+    out.push(probes > 0 ? `no-subject probes: ${probes} of ${of} — no subject separated from the background; subject measures leave those out` : `no-subject probes: 0 of ${of} — a subject separated on every probe`);
+  }
+  return out;
+}
+
 export function auditTable(report: AuditReport): string {
   // A direction with no measure for its target was judged on nothing: its leak columns stay empty
   // rather than show numbers read against whichever measure moved most.
@@ -113,6 +153,7 @@ export function auditTable(report: AuditReport): string {
   const line = (r: string[]) => r.map((c, k) => pad(c, widths[k])).join('  ');
   const out = [line(head), widths.map((w) => '─'.repeat(w)).join('  '), ...rows.map(line), ''];
   for (const d of report.directions) out.push(`${d.name}: ${d.verdict} — ${d.reason}`);
+  out.push(...instrumentTable(report));
   const flagged = report.combinations.filter((c) => c.verdict !== 'additive');
   if (report.combinations.length) {
     out.push('', `combinations: ${report.combinations.length - flagged.length} of ${report.combinations.length} pairs combine additively`);

@@ -146,11 +146,19 @@ const changeMapPngSchema = z.object({ direction: z.string(), png: bytes });
 const changeMapWireSchema = z.object({ width: z.number(), height: z.number(), probes: z.number(), fullScale: z.number(), meanDeltaE: z.number(), shares: regionShares });
 /** An apparent leak no larger than the instrument's own noise floor or cross-talk, set aside. */
 const withinInstrumentSchema = z.object({ attribute: z.string(), change: reading, ratio: reading, noiseFloor: reading, crossTalk: reading, via: z.string().optional() });
-/** The instrument calibrated on this probe set: per measure, its noise floor and its cross-talk under each exact operation. */
+/** Which verdict threshold a measure's detection limit hides: 'fail' (cannot see a failing leak), 'review' (cannot tell pass from review), null (sees one at the pass threshold). */
+const blindToSchema = z.enum(['fail', 'review']);
+/** A measure blind at a threshold in one direction's audit: its detection limit (σ), and the attribute whose exact operation's cross-talk set it (absent: its noise floor). */
+const blindMeasureSchema = z.object({ attribute: z.string(), limit: reading, blindTo: blindToSchema, via: z.string().optional() });
+/**
+ * The instrument calibrated on this probe set: per measure, its noise floor, its cross-talk under
+ * each exact operation and its detection limit at the audit's thresholds (absent in reports made
+ * before the limit was reported).
+ */
 const calibrationWireSchema = z.object({
   probes: z.number(),
   operations: z.object({ invisible: z.array(z.string()), exact: z.array(z.string()) }),
-  measures: z.record(z.string(), z.object({ noiseFloor: reading, crossTalk: z.record(z.string(), reading) })),
+  measures: z.record(z.string(), z.object({ noiseFloor: reading, crossTalk: z.record(z.string(), reading), detectionLimit: reading.optional(), blindTo: blindToSchema.nullable().optional() })),
   floorMultiple: z.number(),
   crossTalkMultiple: z.number(),
 });
@@ -184,6 +192,7 @@ export const auditWireSchema = z.object({
     leakageCurve: z.array(z.number().nullable()),
     pathLengthCurve: z.object({ strengths: z.array(z.number()), mean: z.array(z.number()), low: z.array(z.number()), high: z.array(z.number()) }),
     withinInstrument: z.array(withinInstrumentSchema).optional(),
+    blind: z.array(blindMeasureSchema).optional(),
     notMeasurable: z.record(z.string(), z.number()).optional(),
     changeMap: changeMapWireSchema.nullable().optional(),
     consistency: z.object({ probes: z.number(), median: reading, mean: reading, coefficientOfVariation: reading, flipShare: reading }).optional(),

@@ -132,6 +132,31 @@ test('audited from its images alone: change maps over the preview, the instrumen
   // A composite is reported but never judged (Hasler & Süsstrunk colourfulness grows with subject area).
   await expect(calibration.getByTestId('calibration-colourfulness')).toContainText('reported, not judged');
   await expect(calibration.getByTestId('calibration-subject_radius')).not.toContainText('reported, not judged');
+  // What it cannot see, said plainly: the stamp has no texture, so subject_detail's noise floor is
+  // many of its σ and its detection limit (2 × the floor) is far above the fail threshold; subject_x
+  // sees a leak at the pass threshold. A pass is not read as clean for the blind measure.
+  await expect(calibration.getByTestId('calibration-subject_detail')).toContainText('cannot see a failing leak');
+  await expect(calibration.getByTestId('calibration-subject_x')).toContainText('sees a 0.2 σ leak');
+  await expect(page.getByTestId('blind-measures')).toContainText(/subject_detail (cannot detect a leak )?below \d+(\.\d+)? σ/);
+  await expect(page.getByTestId('reason-slide')).toContainText('clean within ±2 in the measures that can see a leak');
+  await expect(page.getByTestId('reason-slide')).toContainText(/cannot see a failing leak \(0\.5 σ\) into [a-z_, ]*subject_detail/);
+  // Cross-talk with its unit; no measure reads "none of the exact operations moves it".
+  await expect(calibration.locator('thead')).toContainText('largest cross-talk (σ per σ)');
+  await expect(calibration).not.toContainText('none of the exact operations');
+
+  // The heatmap greys what is not a leak: swell's apparent leaks set aside as within the instrument
+  // (hatched) and the unjudged composites (dashed), with a legend entry for each; the tooltip says why.
+  const heat = page.getByRole('figure', { name: /Heatmap of attribute dependency/ });
+  await expect(page.getByTestId('heatmap-legend')).toContainText('set aside: within the instrument’s noise floor or cross-talk, not counted');
+  await expect(page.getByTestId('heatmap-legend')).toContainText('reported, not judged');
+  expect(await heat.locator('g[aria-description="set aside"] rect').count()).toBeGreaterThan(0);
+  expect(await heat.locator('g[aria-description="not judged"] rect').count()).toBeGreaterThanOrEqual(3);
+  // The value labels lie over the cells; Plot's tip follows the pointer over the whole chart.
+  await page.getByRole('heading', { name: /Attribute dependency/ }).evaluate((el) => el.scrollIntoView({ block: 'start' }));
+  await heat.locator('g[aria-description="set aside"] rect').first().hover({ force: true, timeout: 30_000 });
+  // One tip per mark; the one showing has content (Plot wraps its lines at zero-width spaces).
+  await expect(heat.locator('g[aria-label="tip"]:not(:empty)')).toContainText(/set aside, not counted as a[\s\u200b]*leak/);
+  await page.screenshot({ path: join(shots, 'audit-heatmap-tip.png') });
 
   // swell: its change map drawn over the preview, with most of the change outside the subject's
   // interior (it grows the stamp and shifts the background), and what was set aside as instrument.
@@ -144,6 +169,27 @@ test('audited from its images alone: change maps over the preview, the instrumen
   await expect(shares).toContainText(/edge\s*\d+%/);
   await expect(shares).toContainText(/background\s*\d+%/);
   await expect(page.getByTestId('set-aside-swell')).toContainText(/set aside as within the instrument/);
+  // The change map has a labelled colour scale: what the colour means, its unit and its range.
+  const scale = page.getByTestId('change-map-scale-swell');
+  await expect(scale).toContainText('mean colour difference per pixel, ΔE00 (CIEDE2000)');
+  await expect(scale).toContainText('≥ 20');
+  await expect(scale).toContainText('clear: unchanged');
+  // Worst probes are captioned by the attribute that counts beyond the instrument — never a set-aside
+  // or unjudged one; swell's by its leak into background_lightness.
+  const captions = page.getByTestId('worst-caption');
+  await expect(captions.first()).toBeVisible();
+  /** Every worst-probe caption of the focused direction names an attribute that counts (never one set aside or unjudged), or says nothing does. */
+  const captionsCount = async (direction: string) => {
+    const setAside = (await page.getByTestId(`set-aside-${direction}`).innerText()).split('\n').slice(1).map((l) => l.split(':')[0].trim()).filter(Boolean);
+    const texts = await captions.allInnerTexts();
+    expect(texts.length).toBeGreaterThan(0);
+    for (const text of texts) {
+      expect(text).toMatch(/: ([a-z_]+ \d+\.\d\d σ|nothing beyond the instrument|under 0\.01 σ beyond the instrument)$/);
+      for (const a of ['colourfulness', 'shape_fold', ...setAside]) expect(text).not.toContain(`${a} `);
+    }
+    return texts;
+  };
+  expect((await captionsCount('swell')).some((t) => t.includes('background_lightness'))).toBe(true);
   await page.getByLabel('Show change map').uncheck();
   await expect(overlay).toBeHidden();
   await page.getByLabel('Show change map').check();
@@ -156,6 +202,19 @@ test('audited from its images alone: change maps over the preview, the instrumen
     await page.screenshot({ path: join(shots, `audit-change-map-${width}.png`) });
     await page.getByTestId('set-aside-swell').scrollIntoViewIfNeeded();
     await page.screenshot({ path: join(shots, `audit-instrument-${width}.png`) });
+    await page.getByTestId('calibration').scrollIntoViewIfNeeded({ timeout: 30_000 });
+    await page.screenshot({ path: join(shots, `audit-calibration-table-${width}.png`) });
+    await page.getByTestId('heatmap-legend').scrollIntoViewIfNeeded({ timeout: 30_000 });
+    await page.screenshot({ path: join(shots, `audit-heatmap-${width}.png`) });
+    await page.getByRole('heading', { name: /Worst probes for swell/ }).scrollIntoViewIfNeeded({ timeout: 30_000 });
+    await page.screenshot({ path: join(shots, `audit-worst-probes-${width}.png`) });
   }
+  // A clean direction's worst probes: its apparent leaks (shape measures among them) are set aside, so no caption names one.
+  await page.getByRole('button', { name: 'Show slide' }).click();
+  await expect(page.getByRole('heading', { name: /Worst probes for slide/ })).toBeVisible();
+  await expect(page.getByTestId('set-aside-slide')).toContainText(/set aside as within the instrument/);
+  await captionsCount('slide');
+  await page.getByRole('heading', { name: /Worst probes for slide/ }).scrollIntoViewIfNeeded({ timeout: 30_000 });
+  await page.screenshot({ path: join(shots, 'audit-worst-probes-clean.png') });
   expect(errors).toEqual([]);
 });

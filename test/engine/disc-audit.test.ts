@@ -107,3 +107,23 @@ test('change maps say where each direction acts, and the target effect is consis
     assert.ok(c.coefficientOfVariation < 0.5, `${name} cv ${c.coefficientOfVariation}`);
   }
 });
+
+test('the report says which measures cannot see a leak on this generator; a pass names them; worst probes never name a set-aside one', () => {
+  const c = report.calibration!;
+  // A texture-free stamp: subject_detail barely varies, so its noise floor is many of its σ and its
+  // detection limit (floorMultiple × floor) is far above the fail threshold. Position sees 0.2 σ.
+  const detail = c.measures.subject_detail;
+  assert.ok(Math.abs(detail.detectionLimit - c.floorMultiple * detail.noiseFloor) <= 1e-5 * detail.detectionLimit);
+  assert.equal(detail.blindTo, 'fail');
+  assert.equal(c.measures.subject_x.blindTo, null);
+  assert.ok(report.warnings.some((w) => /^blind measures: .*subject_detail cannot detect a leak below [\d.]+ σ.* on this generator — at or above the fail threshold \(0\.5 σ\)/.test(w)), report.warnings.join('\n'));
+  const slide = report.directions.find((x) => x.name === 'slide')!;
+  assert.equal(slide.verdict, 'pass');
+  assert.ok(slide.blind.some((b) => b.attribute === 'subject_detail' && b.blindTo === 'fail'));
+  assert.match(slide.reason, /^clean within ±2 in the measures that can see a leak: .*; cannot see a failing leak \(0\.5 σ\) into [a-z_, ]*subject_detail/);
+  for (const d of report.directions)
+    for (const w of d.worstProbes) {
+      assert.ok(!d.withinInstrument.some((x) => x.attribute === w.attribute), `${d.name}: worst probe names set-aside ${w.attribute}`);
+      assert.ok(!['colourfulness', 'shape_fold'].includes(w.attribute), `${d.name}: worst probe names unjudged ${w.attribute}`);
+    }
+});

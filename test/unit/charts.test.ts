@@ -1,7 +1,8 @@
 // Chart data mapping: audit values to heatmap cells and curve rows with their CI bands.
 import { test } from 'node:test';
 import assert from 'node:assert/strict';
-import { ATTRIBUTE_PALETTE, attributeColors, curveRows, heatDomain, heatmapCells, leadingAttributes, logTicks, niceMax, pathRows, tickLabel } from '../../renderer/src/lib/charts.ts';
+import { ATTRIBUTE_PALETTE, attributeColors, changeMapLevel, curveRows, heatDomain, heatmapCells, leadingAttributes, logTicks, niceMax, pathRows, tickLabel, worstProbeCaption } from '../../renderer/src/lib/charts.ts';
+import { changeMapImage } from '../../app/core/audit/change-map.ts';
 import type { AuditWire } from '../../app/protocol/messages.ts';
 
 const iv = (value: number, low: number, high: number) => ({ value, low, high });
@@ -87,4 +88,54 @@ test('log-axis ticks: every one a 1-2-5 value inside the range, each labelled', 
   assert.deepEqual(logTicks(0.0011, 0.0019), [0.0011, 0.0019]);
   assert.deepEqual(logTicks(1e-5, 10), [1e-5, 1e-4, 0.001, 0.01, 0.1, 1, 10]);
   for (const v of logTicks(0.0031, 0.024)) assert.notEqual(tickLabel(v), '');
+});
+
+/** The fixture audited with a calibrated instrument: hue set aside as within it, a composite reported but not judged. */
+const calibrated = {
+  ...report,
+  attributes: [...report.attributes, { name: 'colourfulness', unit: '', source: 'image', sigma: 1, judged: false }],
+  calibration: { probes: 24, operations: { invisible: [], exact: [] }, measures: {}, floorMultiple: 2, crossTalkMultiple: 1.5 },
+  directions: [{
+    ...report.directions[0],
+    dependency: { ...report.directions[0].dependency, hue: iv(3.1, 2.9, 3.3), colourfulness: iv(4.4, 4, 4.8) },
+    withinInstrument: [{ attribute: 'hue', change: 3.1, ratio: 1.55, noiseFloor: 1.8, crossTalk: 0.02 }],
+    blind: [{ attribute: 'hue', limit: 3.6, blindTo: 'fail' }],
+  }],
+} as unknown as AuditWire;
+
+test('heatmap: set-aside and unjudged cells are grey kinds of their own, say why, and never stretch the colour scale', () => {
+  const cells = heatmapCells(calibrated);
+  const kind = (a: string) => cells.find((c) => c.attribute === a)!;
+  assert.deepEqual(['size', 'backdrop', 'hue', 'colourfulness'].map((a) => kind(a).kind), ['target', 'counted', 'set-aside', 'unjudged']);
+  assert.match(kind('hue').label, /bold → hue: 3\.10 σ \(95% CI 2\.90–3\.30\) · set aside, not counted as a leak: within the instrument's own noise floor \(1\.80 σ\) or cross-talk \(0\.02 σ per σ\) · cannot detect a leak below 3\.60 σ here$/);
+  assert.match(kind('colourfulness').label, /· reported, not judged: a composite or descriptor, never taken as a leak$/);
+  assert.match(kind('backdrop').label, /· 0\.50 of the target$/);
+  // Before: the legend ran to 5 (colourfulness 4.4 σ) and backdrop's real 1 σ leak looked faint beside the grey cells.
+  assert.deepEqual(heatDomain(cells), [0, 1]);
+});
+
+test('worst-probe captions name only an attribute that counts beyond the instrument, else say nothing does', () => {
+  assert.deepEqual(worstProbeCaption(calibrated, 'bold', { attribute: 'backdrop', leakage: 0.456 }), { attribute: 'backdrop', text: 'backdrop 0.46 σ' });
+  // A set-aside attribute, an unjudged one, or none: nothing beyond the instrument.
+  for (const probe of [{ attribute: 'hue', leakage: 0.8 }, { attribute: 'colourfulness', leakage: 1.2 }, { attribute: 'none', leakage: 0 }, { attribute: 'backdrop', leakage: 0 }]) {
+    assert.deepEqual(worstProbeCaption(calibrated, 'bold', probe), { attribute: null, text: 'nothing beyond the instrument' }, probe.attribute);
+  }
+  // A leak that would print as 0.00 σ points at no attribute.
+  assert.deepEqual(worstProbeCaption(calibrated, 'bold', { attribute: 'backdrop', leakage: 0.003 }), { attribute: null, text: 'under 0.01 σ beyond the instrument' });
+  // Without a calibrated instrument there is no "beyond": no leak.
+  assert.deepEqual(worstProbeCaption(report, 'bold', { attribute: 'none', leakage: 0 }), { attribute: null, text: 'no leak' });
+});
+
+test('the change map overlay reads its level back from the PNG exactly as the core drew it: linear in ΔE00 up to full scale', () => {
+  const full = 20;
+  const deltaE = Float32Array.from({ length: 201 }, (_, i) => (i * full * 1.2) / 200);
+  const img = changeMapImage(deltaE, deltaE.length, 1, full);
+  deltaE.forEach((d, p) => {
+    const level = changeMapLevel(img.data[p * 4], img.data[p * 4 + 1], img.data[p * 4 + 2]);
+    // 8-bit codes: within 1/255 of the true level (d / full, clipped at 1) — a 0.08 ΔE00 step at full scale 20.
+    assert.ok(Math.abs(level - Math.min(1, d / full)) <= 1 / 255 + 1e-9, `ΔE00 ${d}: level ${level}`);
+  });
+  // Before, the overlay took the red channel alone, which saturates at half scale (ΔE00 10 drew as full colour).
+  const half = changeMapImage(Float32Array.from([full / 2]), 1, 1, full);
+  assert.ok(Math.abs(changeMapLevel(half.data[0], half.data[1], half.data[2]) - 0.5) < 1 / 255);
 });

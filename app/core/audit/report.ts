@@ -9,6 +9,7 @@ import type { CombinationVerdict, DirectionVerdict, NullPercentiles } from './ve
 import { VERDICT_RULE } from './leakage.ts';
 import { pathLengthUnits } from './path-length.ts';
 import type { MeasureCalibration } from './calibration.ts';
+import { blindMeasures, blindnessSentences, measureDetection, type BlindMeasure, type LeakThresholds, type MeasureDetection } from './detection.ts';
 import type { Consistency, RegionShares } from './change-map.ts';
 
 export type { Interval } from './statistics.ts';
@@ -18,7 +19,9 @@ export interface WorstProbe {
   seed: number | null;
   reference?: string;
   strength: number;
+  /** The attribute of the probe's own leak beyond the instrument; 'none' when nothing moves beyond it. */
   attribute: string;
+  /** That leak, σ of the attribute (as the exceedance counts it). */
   leakage: number;
   /** PNG of the unedited probe. */
   before: Uint8Array;
@@ -52,6 +55,8 @@ export interface DirectionReport {
   worstProbes: WorstProbe[];
   /** Apparent leaks no larger than the instrument's noise floor or cross-talk: not counted as leaks. */
   withinInstrument: WithinInstrument[];
+  /** Judged measures in which this audit cannot see a leak at a verdict threshold (detection.ts). */
+  blind: BlindMeasure[];
   /** Per attribute, probes left out at +reference because it was not measurable there. */
   notMeasurable: Record<string, number>;
   /** Where the direction acts (METHODS §9.3), or null when no probe images were kept. */
@@ -74,9 +79,33 @@ export interface ChangeMapReport {
 export interface InstrumentCalibrationReport {
   probes: number;
   operations: { invisible: string[]; exact: string[] };
-  measures: Record<string, MeasureCalibration>;
+  /** Per measure: noise floor and cross-talk, and the detection limit they give at this audit's thresholds. */
+  measures: Record<string, MeasureCalibration & MeasureDetection>;
   floorMultiple: number;
   crossTalkMultiple: number;
+}
+
+/** The calibration as the report states it: each measure with its detection limit (floorMultiple × floor) and what that hides at these thresholds. */
+export function instrumentCalibrationReport(c: { probes: number; operations: { invisible: string[]; exact: string[] }; measures: Record<string, MeasureCalibration> }, floorMultiple: number, crossTalkMultiple: number, thresholds: LeakThresholds): InstrumentCalibrationReport {
+  const measures = Object.fromEntries(Object.entries(c.measures).map(([name, m]) => {
+    const d = measureDetection(m.noiseFloor, floorMultiple, thresholds);
+    return [name, { ...m, detectionLimit: significant(d.detectionLimit), blindTo: d.blindTo }];
+  }));
+  return { probes: c.probes, operations: c.operations, measures, floorMultiple, crossTalkMultiple };
+}
+
+/**
+ * The report's warning about measures blind on this generator (none when every judged measure
+ * can see a leak at the pass threshold): a pass says nothing about them.
+ */
+export function blindnessWarnings(calibration: InstrumentCalibrationReport | null, attributes: { name: string; judged?: boolean }[], thresholds: LeakThresholds): string[] {
+  if (!calibration) return [];
+  const judged = (name: string) => attributes.find((a) => a.name === name)?.judged !== false;
+  const blind = blindMeasures(calibration.measures, calibration.floorMultiple, thresholds, judged);
+  return (['fail', 'review'] as const).flatMap((level) => {
+    const group = blind.filter((b) => b.blindTo === level);
+    return blindnessSentences(group, thresholds).map((s) => `blind measures: ${s}; a pass does not clear ${group.length === 1 ? 'it' : 'them'}`);
+  });
 }
 
 /** The generator's path length in the published form (Karras et al. 2019), as a reference row. */
@@ -183,6 +212,7 @@ export function directionReport(
     pathLengthCurve: stats.pathLengthCurve,
     worstProbes,
     withinInstrument: stats.withinInstrument ?? [],
+    blind: stats.blind ?? [],
     notMeasurable: stats.notMeasurable ?? {},
     changeMap: extra.changeMap ?? null,
     consistency: extra.consistency ?? { probes: 0, median: NaN, mean: NaN, coefficientOfVariation: NaN, flipShare: NaN },
@@ -222,7 +252,7 @@ export function assembleReport(x: {
     settings,
     probes: { count: plan.probeCount, pinned: settings.pinnedSeeds, firstSeed: plan.seeds[settings.pinnedSeeds.length] ?? plan.seeds[0] ?? null, psi: settings.psi, references: plan.references.map((r) => ({ name: r.name, imageSha256: r.imageSha256, latentSha256: r.latentSha256 })) },
     attributes: x.attributes.map((a) => ({ name: a.name, unit: a.unit, source: a.source, sigma: significant(a.sigma, 6), ...(a.judged === false ? { judged: false } : {}), ...(a.accuracy ? { accuracy: a.accuracy } : {}) })),
-    warnings: [...plan.warnings, ...x.warnings],
+    warnings: [...plan.warnings, ...x.warnings, ...blindnessWarnings(x.calibration ?? null, x.attributes, settings)],
     caution: AUDIT_CAUTION,
     directions: x.directions,
     combinations: x.combinations,

@@ -9,6 +9,7 @@ import { exceedance, leakAtReference, leakAtStrength, type BreakPoint, type Leak
 import { filteredMean, percentileFilterBounds } from './path-length.ts';
 import type { AuditSettings } from './settings.ts';
 import { safeRangeFromCurves } from './safe-range.ts';
+import { blindness, type BlindMeasure } from './detection.ts';
 
 export interface Interval {
   value: number;
@@ -45,7 +46,9 @@ export interface WorstProbeChoice {
   index: number;
   seed: number;
   strength: number;
+  /** The attribute of the probe's own leak beyond the instrument; 'none' when nothing moves beyond it. */
   attribute: string;
+  /** That leak in σ of the attribute (its change × the share of the attribute's mean change beyond the instrument). */
   leakage: number;
 }
 
@@ -90,6 +93,12 @@ export interface DirectionStatistics {
   notMeasurable: Record<string, number>;
   /** Apparent leaks no larger than the instrument shows by itself, largest first: not counted. */
   withinInstrument: WithinInstrument[];
+  /**
+   * Judged non-target measures this audit of the direction cannot see a leak into at a verdict
+   * threshold (detection.ts): their allowance at ±reference — the smallest leak that registers at
+   * either sign — is at or above leakPass or leakFail. Largest limit first.
+   */
+  blind: BlindMeasure[];
 }
 
 /**
@@ -171,7 +180,7 @@ export function leakScreen(attributes: string[], candidate: boolean[] | undefine
     }
     return out.sort((a, b) => b.change - a.change);
   };
-  return { screen, allowance: (means: ArrayLike<number>, t: number) => terms(means, t).allowance, explain };
+  return { screen, allowance: (means: ArrayLike<number>, t: number) => terms(means, t).allowance, terms, explain };
 }
 
 /** What a random direction is compared on: see nullSummary. */
@@ -270,7 +279,7 @@ export function directionStatistics(m: DirectionMeasurements, plan: StatisticsGr
   // The leak at ±reference, with sign, worst attribute and (when none is declared) the target
   // chosen inside every resample.
   const declared = declaredTarget ? attributes.indexOf(declaredTarget) : -1;
-  const { screen, allowance, explain } = leakScreen(attributes, leak, instrument);
+  const { screen, allowance, terms, explain } = leakScreen(attributes, leak, instrument);
   const atRef = leakAtReference(bootstrap, plusRows, minusRows, declared >= 0 ? declared : null, ref, screen, attributes.map((_, j) => leak?.[j] !== false));
   const target = atRef.targetIndex;
   const targetChosen = declared < 0;
@@ -313,21 +322,43 @@ export function directionStatistics(m: DirectionMeasurements, plan: StatisticsGr
   /** Share of each attribute's mean change beyond its allowance (1 with none; NaN: never a leak). */
   const beyondShare = (means: number[], allowance: Float64Array) => means.map((m, j) => (Number.isNaN(allowance[j]) ? NaN : allowance[j] === 0 ? 1 : m > 0 ? Math.max(0, m - allowance[j]) / m : 0));
 
-  // Worst probes at the worse reference sign: the largest own leak beyond its allowance among the
-  // attributes that can leak, in σ of the leaked attribute (a probe where none is measurable is left out).
+  // Worst probes at the worse reference sign: each probe's own leak as the exceedance counts it —
+  // its change in each attribute that can leak, discounted by the share of that attribute's mean
+  // change beyond the instrument (beyondShare), in σ of the leaked attribute. An attribute the
+  // instrument explains on average (set aside) never names a probe's leak: one probe's scatter of
+  // a noisy measure is not a leak. When nothing counts on a probe its attribute is 'none' (the
+  // caption then says nothing moved beyond the instrument). A probe where none is measurable is left out.
+  const worseShare = beyondShare(worseSign === 0 ? plusMeans : minusMeans, worseAllowance);
   const others = attributes.map((_, j) => j).filter((j) => j !== target && !Number.isNaN(worseAllowance[j]));
   const worst: WorstProbeChoice[] = [];
   for (let p = 0; p < n && others.length; p++) {
     let bj = -1;
     let bv = -Infinity;
+    let measurable = false;
     for (const j of others) {
-      const v = Math.abs(worseRows[j][p]) - worseAllowance[j];
-      if (!Number.isNaN(v) && v > bv) (bj = j), (bv = v);
+      const v = Math.abs(worseRows[j][p]) * worseShare[j];
+      if (Number.isNaN(v)) continue;
+      measurable = true;
+      if (v > bv) (bj = j), (bv = v);
     }
-    if (bj < 0) continue;
-    worst.push({ seed: seeds[p], strength: atRef.strength, attribute: attributes[bj], leakage: Math.max(0, bv), index: p });
+    if (!measurable) continue;
+    worst.push({ seed: seeds[p], strength: atRef.strength, attribute: bv > 0 ? attributes[bj] : 'none', leakage: Math.max(0, bv), index: p });
   }
   worst.sort((a, b) => b.leakage - a.leakage);
+
+  // What this audit of the direction cannot see: per judged non-target attribute, the smallest leak
+  // that registers at either reference sign (its allowance there, and what set it), when that
+  // reaches a verdict threshold.
+  const sides = [terms(plusMeans, target), terms(minusMeans, target)];
+  const blind: BlindMeasure[] = [];
+  for (let j = 0; j < K; j++) {
+    if (j === target || Number.isNaN(sides[0].allowance[j])) continue;
+    const side = sides[1].allowance[j] < sides[0].allowance[j] ? sides[1] : sides[0];
+    const limit = side.allowance[j];
+    const blindTo = blindness(limit, settings);
+    if (blindTo) blind.push({ attribute: attributes[j], limit: significant(limit), blindTo, ...(side.source[j] >= 0 ? { via: attributes[side.source[j]] } : {}) });
+  }
+  blind.sort((a, b) => b.limit - a.limit);
 
   const curves: DirectionStatistics['curves'] = { strengths: grid, attributes: {} };
   attributes.forEach((name, j) => {
@@ -370,6 +401,7 @@ export function directionStatistics(m: DirectionMeasurements, plan: StatisticsGr
         .filter(([, c]) => c > 0),
     ),
     withinInstrument: explain(worseSign === 0 ? plusMeans : minusMeans, target),
+    blind,
   };
 }
 

@@ -4,6 +4,7 @@
 import { MIN_USEFUL_PROBES, type AuditSettings } from './settings.ts';
 import type { CombinationStatistics, DirectionStatistics } from './statistics.ts';
 import { MAX_EXCEEDANCE_SHARE, verdictFor } from './leakage.ts';
+import { blindnessClauses } from './detection.ts';
 
 /** 'no-measure': the direction's target has no measure in this audit, so nothing can be judged. */
 export type DirectionVerdict = 'pass' | 'review' | 'fail' | 'no-measure';
@@ -54,12 +55,18 @@ export function judgeDirection(stats: DirectionStatistics, x: { reference: numbe
   const E = stats.exceedance;
   const exceedText = `${E.count} of ${E.probes} probes leak ≥ ${fmt2(E.threshold)} σ (95% CI ${pct(E.low)}–${pct(E.high)} of probes)`;
   const leakText = `leaks into ${L.attribute}: ${fmt2(L.value)} σ at strength ${formatStrength(L.strength)} (95% CI ${fmt2(L.low)}–${fmt2(L.high)}) against the target's own ${fmt2(L.targetChange.value)} σ`;
+  // A pass is clean only where the instrument can see a leak: measures blind at a threshold (their
+  // detection limit at or above it, detection.ts) are named right after, so it never reads as clean for them.
+  const blind = stats.blind ?? [];
+  const clean = `clean within ±${ref}${blind.length ? ' in the measures that can see a leak' : ''}`;
   if (decidedBy === 'target barely moves') parts.push(`barely moves its target ${stats.target} (${fmt2(stats.targetEffect.value)} σ at ${formatStrength(ref)})`);
-  else if (verdict === 'pass' && L.attribute === 'none') parts.push(`clean within ±${ref}: no other attribute moves beyond what the instrument shows by itself (its noise floor and cross-talk)`);
-  else if (verdict === 'pass') parts.push(`clean within ±${ref}: largest leak ${fmt2(L.value)} σ (${L.attribute}, 95% CI up to ${fmt2(L.high)}) against the target's ${fmt2(L.targetChange.value)} σ`);
+  else if (verdict === 'pass' && L.attribute === 'none') parts.push(`${clean}: no other attribute moves beyond what the instrument shows by itself (its noise floor and cross-talk)`);
+  else if (verdict === 'pass') parts.push(`${clean}: largest leak ${fmt2(L.value)} σ (${L.attribute}, 95% CI up to ${fmt2(L.high)}) against the target's ${fmt2(L.targetChange.value)} σ`);
   else if (L.high < S.leakPass) parts.push(`largest leak ${fmt2(L.value)} σ (${L.attribute}, 95% CI up to ${fmt2(L.high)}) against the target's ${fmt2(L.targetChange.value)} σ`);
   else parts.push(leakText);
   parts.push(exceedText);
+  // Limits set by the noise floor hold on this generator; one set by cross-talk holds for this direction's change.
+  parts.push(...blindnessClauses(blind, S));
   for (const b of [stats.breaks.negative, stats.breaks.positive]) if (b) parts.push(`breaks from ${formatStrength(b.strength)} (${b.side} side): ${b.cause}`);
   const covers = stats.safeRange[0] <= -ref && stats.safeRange[1] >= ref;
   if (!covers) parts.push(`safe range ${formatStrength(stats.safeRange[0])} to ${formatStrength(stats.safeRange[1])}`);

@@ -6,7 +6,7 @@ import { planAudit, auditWorkUnits, type AuditDirection, type AuditProgress, typ
 import type { AuditSettings } from '../../core/audit/settings.ts';
 import { directionStatistics, combinationAllowance, combinationStatistics, nullPercentiles, nullSummary, significant, type DirectionStatistics, type InstrumentAllowance, type NullSummary } from '../../core/audit/statistics.ts';
 import { judgeDirection, judgeCombination } from '../../core/audit/verdict.ts';
-import { assembleReport, combinationReport, directionReport, tooFewProbes, type AuditReport, type CombinationReport, type DirectionReport } from '../../core/audit/report.ts';
+import { assembleReport, combinationReport, directionReport, instrumentCalibrationReport, tooFewProbes, type AuditReport, type CombinationReport, type DirectionReport } from '../../core/audit/report.ts';
 import { ProbeBootstrap } from '../../core/stats.ts';
 import { Random } from '../../core/random.ts';
 import { directionSigma } from '../../core/latent.ts';
@@ -171,7 +171,7 @@ export async function* runAudit(gen: Generator, directions: AuditDirection[], ra
       groundTruth,
       nullBaseline: K > 0 ? { directions: K, rules: [...nulls.keys()], seed: plan.settings.seed } : null,
       referencePathLength,
-      calibration: calibration && { ...calibration, floorMultiple: FLOOR_MULTIPLE, crossTalkMultiple: CROSSTALK_MULTIPLE },
+      calibration: calibration && instrumentCalibrationReport(calibration, FLOOR_MULTIPLE, CROSSTALK_MULTIPLE, plan.settings),
       noSubject,
     });
   } finally {

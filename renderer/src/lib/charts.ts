@@ -2,6 +2,14 @@
 // hand these rows to the charting library.
 import type { AuditWire } from '../../../app/protocol/messages.ts';
 
+/**
+ * How a heatmap cell is drawn: 'target' (the direction's own target, outlined), 'counted' (an
+ * attribute that can leak, coloured by its change), 'set-aside' (an apparent leak within the
+ * instrument's own noise floor or cross-talk: not counted, grey and hatched) or 'unjudged' (a
+ * composite or descriptor reported but never taken as a leak, e.g. colourfulness: plain grey).
+ */
+export type HeatKind = 'target' | 'counted' | 'set-aside' | 'unjudged';
+
 export interface HeatCell {
   direction: string;
   attribute: string;
@@ -10,12 +18,15 @@ export interface HeatCell {
   low: number;
   high: number;
   isTarget: boolean;
-  /** Dependency relative to the target's: what the leakage threshold is applied to. */
+  kind: HeatKind;
+  /** Dependency relative to the target's: a readout beside the value. */
   relative: number;
+  /** The tooltip: the value with its interval, and why a grey cell is grey. */
   label: string;
 }
 
 const n = (v: number | null | undefined) => (typeof v === 'number' && Number.isFinite(v) ? v : 0);
+const f2 = (v: number | null | undefined) => (typeof v === 'number' && Number.isFinite(v) ? v.toFixed(2) : '—');
 
 export function heatmapCells(report: AuditWire): HeatCell[] {
   return report.directions.flatMap((d) => {
@@ -24,18 +35,58 @@ export function heatmapCells(report: AuditWire): HeatCell[] {
       const dep = d.dependency[a.name];
       const value = n(dep?.value);
       const relative = t > 0 ? value / t : 0;
+      const isTarget = a.name === d.target;
+      const within = d.withinInstrument?.find((w) => w.attribute === a.name);
+      const blind = d.blind?.find((b) => b.attribute === a.name);
+      const kind: HeatKind = isTarget ? 'target' : a.judged === false ? 'unjudged' : within ? 'set-aside' : 'counted';
+      const why =
+        kind === 'target' ? ' · target'
+        : kind === 'unjudged' ? ' · reported, not judged: a composite or descriptor, never taken as a leak'
+        : kind === 'set-aside' ? ` · set aside, not counted as a leak: within the instrument's own noise floor (${f2(within!.noiseFloor)} σ) or cross-talk (${f2(within!.crossTalk)} σ per σ)${within!.via ? `, explained by the leak into ${within!.via}` : ''}`
+        : ` · ${relative.toFixed(2)} of the target`;
+      const blindText = blind && kind !== 'unjudged' ? ` · cannot detect a leak below ${f2(blind.limit)} σ here` : '';
       return {
         direction: d.name,
         attribute: a.name,
         value,
         low: n(dep?.low),
         high: n(dep?.high),
-        isTarget: a.name === d.target,
+        isTarget,
+        kind,
         relative,
-        label: `${d.name} → ${a.name}: ${value.toFixed(2)} σ (95% CI ${n(dep?.low).toFixed(2)}–${n(dep?.high).toFixed(2)})${a.name === d.target ? ' · target' : ` · ${relative.toFixed(2)} of the target`}`,
+        label: `${d.name} → ${a.name}: ${value.toFixed(2)} σ (95% CI ${n(dep?.low).toFixed(2)}–${n(dep?.high).toFixed(2)})${why}${blindText}`,
       };
     });
   });
+}
+
+/**
+ * A worst probe's caption: the attribute its leak counts in — beyond the instrument, judged, not
+ * set aside for the direction — with that leak in σ of the attribute, or that nothing counts.
+ * (Reports made before worst probes were chosen this way could name a set-aside or unjudged
+ * attribute; those read as nothing beyond the instrument too.)
+ */
+export function worstProbeCaption(report: AuditWire, direction: string, probe: { attribute: string; leakage: number }): { attribute: string | null; text: string } {
+  const d = report.directions.find((x) => x.name === direction);
+  const judged = report.attributes.find((a) => a.name === probe.attribute)?.judged !== false;
+  const setAside = d?.withinInstrument?.some((w) => w.attribute === probe.attribute) ?? false;
+  const counts = probe.attribute !== 'none' && probe.leakage > 0 && judged && !setAside;
+  // A leak that would print as 0.00 σ is said as under 0.01 σ, without an attribute to point at.
+  if (counts && probe.leakage < 0.005) return { attribute: null, text: `under 0.01 σ ${report.calibration ? 'beyond the instrument' : 'of leak'}` };
+  if (counts) return { attribute: probe.attribute, text: `${probe.attribute} ${probe.leakage.toFixed(2)} σ` };
+  return { attribute: null, text: report.calibration ? 'nothing beyond the instrument' : 'no leak' };
+}
+
+/**
+ * The change map's level, 0–1 of its full scale (ΔE00 ÷ fullScale, clipped), read back from one
+ * pixel of its PNG: the inverse of changeMapImage in app/core/audit/change-map.ts (black → red →
+ * yellow → white: red rises over the first half, green from 0.3, blue from 0.7), so an overlay
+ * drawn from it is linear in ΔE00 up to full scale, as its colour scale says.
+ */
+export function changeMapLevel(r: number, g: number, b: number): number {
+  if (r < 255) return r / 510;
+  if (b > 0) return 0.7 + (0.3 * b) / 255;
+  return Math.min(1, (1.4 * (g / 255) ** 1.25 + 0.6) / 2);
 }
 
 export interface CurveRow {
@@ -88,9 +139,9 @@ export function niceMax(max: number, count = 10): number {
   return Number((Math.ceil(max / step - 1e-9) * step).toPrecision(12));
 }
 
-/** Colour domain of the heatmap: from 0 to a nice value at or above the largest coloured cell. */
+/** Colour domain of the heatmap: from 0 to a nice value at or above the largest coloured (counted) cell; grey cells do not stretch it. */
 export function heatDomain(cells: HeatCell[]): [number, number] {
-  return [0, niceMax(Math.max(0, ...cells.filter((c) => !c.isTarget).map((c) => c.value)))];
+  return [0, niceMax(Math.max(0, ...cells.filter((c) => c.kind === 'counted').map((c) => c.value)))];
 }
 
 /**
