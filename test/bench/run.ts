@@ -417,11 +417,17 @@ async function runLocate(gen: Generator, ref: FloatImage, options: Parameters<ty
 }
 
 /** Search evaluations/s against bare session.run at the search's batch (λ of CMA-ES in W) and threads. */
-async function locateThroughput(label: string, card: string, budget: number, rounds = 3) {
+/**
+ * `budget` 'whole-batches' uses 4λ evaluations: the random starts (a quarter of the budget) are
+ * then exactly one batch of λ and every CMA-ES generation another, so every render on the search
+ * side runs at the same batch as bare — like with like.
+ */
+async function locateThroughput(label: string, card: string, budgetOrRule: number | 'whole-batches', rounds = 3) {
   const gen = await Generator.open(card, { threads: THREADS });
   try {
     const lambda = defaultParameters(gen.layout.size).lambda;
     gen.batchSize = lambda;
+    const budget = budgetOrRule === 'whole-batches' ? 4 * lambda : budgetOrRule;
     const c = JSON.parse(readFileSync(card, 'utf8'));
     const bare = await ort.InferenceSession.create(join(card, '..', c.synthesis.file), { intraOpNumThreads: THREADS, interOpNumThreads: 1, executionMode: 'sequential', graphOptimizationLevel: 'all' });
     const codes = await gen.codesForSeeds(Array.from({ length: lambda }, (_, i) => i), 0.7);
@@ -563,7 +569,7 @@ if (want('throughput') || want('variants') || want('farm') || want('locate')) {
     if (want('locate')) {
       // Where locate is meant to run: a generator whose render costs far more than the match
       // distance (about 2 ms per candidate at the compare size, whatever the generator's size).
-      await locateThroughput(label, large.card, 100, 3);
+      await locateThroughput(label, large.card, 'whole-batches', 3);
       await locateLarge(large.card, 220);
     }
     if (want('variants')) await variantRow('realistic 256²', large.card, Array.from({ length: 8 }, (_, i) => i + 1), 2, 4, (await bestBare(large.card, [1, 2, 4, 8], 8, 2)).text);
