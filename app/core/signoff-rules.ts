@@ -159,7 +159,7 @@ export function useViolations(settings: readonly { label: string; strengths: Rec
 export function checkUse(violations: readonly Violation[], force: Override | null, how: string): { forced: Violation[]; reason: string | null } {
   if (violations.length === 0) return { forced: [], reason: null };
   const list = violations.map((v) => `setting '${v.setting}': ${v.message}`).join('; ');
-  if (!force) throw new PlumblineError('bad-request', `refusing ${list}; ${how}`);
-  if (!reasonOk(force)) throw new PlumblineError('bad-request', `forcing ${list} needs a written reason of at least ${MIN_REASON_LENGTH} characters; ${how}`);
+  if (!force) throw new PlumblineError('use-refused', `refusing ${list}; ${how}`);
+  if (!reasonOk(force)) throw new PlumblineError('use-refused', `forcing ${list} needs a written reason of at least ${MIN_REASON_LENGTH} characters; ${how}`);
   return { forced: [...violations], reason: force.reason.trim() };
 }

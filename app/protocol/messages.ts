@@ -12,7 +12,9 @@ import { errorDataSchema, type ErrorData } from './errors.ts';
 export type WireError = ErrorData;
 
 const bytes = z.custom<Uint8Array>((v) => v instanceof Uint8Array, { message: "expected binary bytes (Uint8Array)" });
-const seed = z.number().int().min(0).max(0xffffffff);
+/** The largest seed the engine accepts (seeds are unsigned 32-bit integers). */
+export const SEED_MAX = 0xffffffff;
+const seed = z.number().int().min(0).max(SEED_MAX);
 const psi = z.number().min(0).max(2);
 const strength = z.number().finite().min(-50).max(50);
 /** A named reference (a located latent pinned in the project); same rule as app/engine/references.ts. */
@@ -260,7 +262,7 @@ export const methods = {
     method: z.enum(['pca', 'sefa', 'boundary', 'means']),
     components: z.number().int().min(1).max(64).default(6),
     samples: z.number().int().min(64).max(200_000).default(3000),
-    seed: z.number().int().min(0).max(0xffffffff).default(1),
+    seed: z.number().int().min(0).max(SEED_MAX).default(1),
     layers: z.tuple([z.number().int().min(0), z.number().int().min(1)]).nullable().default(null),
     attribute: z.string().min(1).optional(),
     positive: z.array(seed).max(10_000).default([]),
@@ -277,7 +279,7 @@ export const methods = {
     /** Named references of the open project added to the probes after the seeds (their latents as stored, no truncation). */
     references: z.array(z.string().regex(referenceName)).max(1000).optional(),
     psi: psi.default(0.7),
-    seed: z.number().int().min(0).max(0xffffffff).default(1),
+    seed: z.number().int().min(0).max(SEED_MAX).default(1),
     referenceStrength: z.number().positive().max(10).default(2),
     /** Leak thresholds in σ of the leaked attribute (see VERDICT_RULE in app/protocol/verdict-rule.ts). */
     leakPass: z.number().positive().max(10).default(0.2),

@@ -1,10 +1,11 @@
 // State and intents of the lab screens: project, discovery, audit, repair and sign-off. Works
 // through the same engine client as the workbench (Studio) and keeps Studio's direction list
 // in step with the engine's.
-import { APP_NULL_DIRECTIONS, PROBE_LIMITS, type AuditWire, type DefinedAttributeInfo, type DirectionInfo, type EventData, type LockHolder, type Params, type Result, type VariantDraft, type WireImage } from '../../../app/protocol/messages.ts';
+import { APP_NULL_DIRECTIONS, type AuditWire, type DefinedAttributeInfo, type DirectionInfo, type EventData, type LockHolder, type Params, type Result, type VariantDraft, type WireImage } from '../../../app/protocol/messages.ts';
 import { EngineRequestError } from './engine.ts';
 import { desktop } from './bridge.ts';
 import { reportHtml } from './report.ts';
+import { parseSeedList, probesProblem, seedListProblem, wholeProblem } from './fields.ts';
 import type { Studio } from './studio.svelte.ts';
 
 export type View = 'workbench' | 'discover' | 'audit' | 'signoff' | 'variants';
@@ -46,32 +47,7 @@ function sessionId(): string {
   return id;
 }
 
-/** The message for a probe count, or null when it is acceptable (same limits as the engine's schema). */
-export function probesProblem(value: unknown, pinned: number): string | null {
-  if (typeof value !== 'number' || !Number.isFinite(value)) return 'Enter a whole number of probes.';
-  if (!Number.isInteger(value)) return 'Probes must be a whole number.';
-  if (value < PROBE_LIMITS.min) return `Probes cannot be negative (0–${PROBE_LIMITS.max.toLocaleString()}).`;
-  if (value > PROBE_LIMITS.max) return `At most ${PROBE_LIMITS.max.toLocaleString()} probes.`;
-  if (value + pinned < PROBE_LIMITS.minTotal) return `An audit needs at least ${PROBE_LIMITS.minTotal} probes in all (random plus ${pinned} pinned seeds and references).`;
-  return null;
-}
-
-/** The message for a whole number field with inclusive limits, or null. */
-export function wholeProblem(value: unknown, min: number, max: number, what: string): string | null {
-  if (typeof value !== 'number' || !Number.isFinite(value) || !Number.isInteger(value)) return `${what}: enter a whole number from ${min} to ${max}.`;
-  if (value < min || value > max) return `${what} must be from ${min} to ${max}.`;
-  return null;
-}
-
-/** The message for a seed list like "0-7,12", or null. */
-export function seedListProblem(text: string): string | null {
-  try {
-    parseSeedList(text);
-    return null;
-  } catch (err) {
-    return (err as Error).message;
-  }
-}
+export { parseSeedList, probesProblem, seedListProblem, wholeProblem } from './fields.ts';
 
 export class Lab {
   view = $state<View>('workbench');
@@ -123,6 +99,8 @@ export class Lab {
   #variantRequest = 0;
   /** The engine's refusal of the last variant render (shown beside the button), and a reason to force it. */
   variantError = $state<string | null>(null);
+  /** The last variant render's failure that is not a use-rule refusal (nothing to force). */
+  variantFailure = $state<string | null>(null);
   forceReason = $state('');
 
   /** A worst probe shown large (rendered at full size on request). */
@@ -530,6 +508,7 @@ export class Lab {
     const seeds = parseSeedList(this.variantSeeds);
     this.studio.scheduleSave();
     this.variantError = null;
+    this.variantFailure = null;
     this.variantProgress = { done: 0, total: 1, label: 'starting' };
     this.studio.busy = 'Rendering the variant set';
     try {
@@ -543,8 +522,10 @@ export class Lab {
       this.contactSheet = this.thumbUrl(r.contactSheet);
       this.variantSummary = `${r.rendered} rendered, ${r.reused} kept from an earlier run, in ${r.out}${force ? ` (forced: ${this.forceReason})` : ''}`;
     } catch (err) {
-      // Refusals by the use rules are shown beside the button, with the way to force them.
-      this.variantError = (err as Error).message;
+      // Refusals by the use rules are shown beside the button with the way to force them; any
+      // other refusal or failure is shown there too, but nothing about it can be forced.
+      if (err instanceof EngineRequestError && err.code === 'use-refused') this.variantError = (err as Error).message;
+      else this.variantFailure = `The variant set was not rendered: ${(err as Error).message}`;
     } finally {
       this.#variantRequest = 0;
       this.variantProgress = null;
@@ -623,19 +604,4 @@ export function mergeReports(older: AuditWire | null, newer: AuditWire): AuditWi
   const names = new Set(newer.directions.map((d) => d.name));
   const attributes = [...newer.attributes, ...older.attributes.filter((a) => !newer.attributes.some((b) => b.name === a.name))];
   return { ...newer, attributes, directions: [...older.directions.filter((d) => !names.has(d.name)), ...newer.directions] };
-}
-
-/** "0-7,12" → [0..7, 12]. */
-export function parseSeedList(text: string): number[] {
-  const out: number[] = [];
-  for (const part of text.split(',').map((x) => x.trim()).filter(Boolean)) {
-    const m = /^(\d+)(?:-(\d+))?$/.exec(part);
-    if (!m) throw new Error(`'${part}' is not a seed or a range like 0-7`);
-    const a = Number(m[1]);
-    const b = m[2] === undefined ? a : Number(m[2]);
-    if (b < a || b - a > 10_000) throw new Error(`seed range '${part}' is backwards or too long`);
-    for (let s = a; s <= b; s++) out.push(s);
-  }
-  if (!out.length) throw new Error('no seeds given');
-  return out;
 }
