@@ -22,6 +22,8 @@ const referenceName = /^[A-Za-z0-9_-][A-Za-z0-9_.-]{0,119}$/;
 
 /** Random probe latents an audit accepts; with pinned seeds the set must still hold at least 2 (an interval needs 2). */
 export const PROBE_LIMITS = { min: 0, max: 100_000, minTotal: 2 } as const;
+/** Evaluations a locate search accepts (app/engine/locate.ts: fewer than 50 leave no room past the random starts). */
+export const LOCATE_BUDGET = { min: 50, max: 1_000_000 } as const;
 /** Per-tab session id: names the holder of a project's lock (kept in sessionStorage, so a reload keeps it). */
 const session = z.string().regex(/^[A-Za-z0-9_-]{8,64}$/);
 /** A written reason for an override or a forced render (the rule module sets the minimum length). */
@@ -343,7 +345,7 @@ export const methods = {
   /** `out` is the absolute path the user chose; an existing file is replaced only with `overwrite`. */
   'pack.build': declare('control', z.object({ out: z.string().min(1), overwrite: z.boolean().optional() }), z.object({ file: z.string(), directions: z.array(z.string()), skipped: z.array(z.string()), bytes: z.number() })),
   /** Finds the latent of a reference image (docs/locate.md); progress plus locate.preview events. */
-  'locate.run': declare('job', z.object({ image: bytes, fileName: z.string().min(1).max(1000), budget: z.number().int().min(50).max(1_000_000).default(3000), space: z.enum(['w', 'w+']).default('w'), seed: seed.default(1) }), z.object({
+  'locate.run': declare('job', z.object({ image: bytes, fileName: z.string().min(1).max(1000), budget: z.number().int().min(LOCATE_BUDGET.min).max(LOCATE_BUDGET.max).default(3000), space: z.enum(['w', 'w+']).default('w'), seed: seed.default(1) }), z.object({
     found: z.boolean(), ssim: z.number(), deltaE: z.number(), message: z.string(), evaluations: z.number().int(), budget: z.number().int(),
     imageSha256: z.string(), notes: z.array(z.string()), reference: imageSchema, match: imageSchema, difference: imageSchema, caution: z.string(),
   })),

@@ -2,7 +2,7 @@
 // schemas would refuse, so nothing the engine refuses is ever sent.
 import { test } from 'node:test';
 import assert from 'node:assert/strict';
-import { GRID_PAGE, gridPageStart, LAST_PAGE_START, MAX_SEED, parseSeedList, seedListProblem, seedProblem } from '../../renderer/src/lib/fields.ts';
+import { budgetProblem, GRID_PAGE, gridPageStart, LAST_PAGE_START, MAX_SEED, parseSeedList, seedListProblem, seedProblem } from '../../renderer/src/lib/fields.ts';
 import { methods, SEED_MAX } from '../../app/protocol/messages.ts';
 
 test('the largest seed is the last one of the last grid page the engine accepts whole', () => {
@@ -35,4 +35,15 @@ test('seed lists stop at the same largest seed, so variants.render never gets a 
   assert.match(seedListProblem('0-x')!, /'0-x' is not a seed or a range like 0-7/);
   const params = (seeds: number[]) => ({ name: 'v', seeds, psi: 0.7, settings: [{ label: 'base', strengths: {} }], out: '/tmp/x' });
   assert.ok(methods['variants.render'].params.safeParse(params(parseSeedList(String(MAX_SEED)))).success);
+});
+
+test('locate budget: the engine schema range, whole numbers only', () => {
+  for (const ok of [50, 3000, 1_000_000]) assert.equal(budgetProblem(ok), null, String(ok));
+  for (const bad of [-5, 0, 49, 12.5, 1e9, NaN, null, '', 'abc', undefined]) assert.ok(budgetProblem(bad), String(bad));
+  assert.equal(budgetProblem(49), 'Budget must be from 50 to 1,000,000 evaluations.');
+  assert.equal(budgetProblem(null), 'Budget: enter a whole number from 50 to 1,000,000 evaluations.');
+  // Whatever passes the check passes the engine's schema.
+  const schema = methods['locate.run'].params;
+  for (const b of [50, 1_000_000]) assert.ok(schema.safeParse({ image: new Uint8Array(1), fileName: 'a.png', budget: b }).success);
+  for (const b of [49, 1_000_001]) assert.ok(!schema.safeParse({ image: new Uint8Array(1), fileName: 'a.png', budget: b }).success);
 });

@@ -1,7 +1,7 @@
 // Checks of what is typed into the app's fields, in the same limits as the engine's schemas
 // (app/protocol/messages.ts), so a value the engine would refuse is stopped beside its field and
 // never sent. Pure functions, unit-tested.
-import { PROBE_LIMITS, SEED_MAX } from '../../../app/protocol/messages.ts';
+import { LOCATE_BUDGET, PROBE_LIMITS, SEED_MAX } from '../../../app/protocol/messages.ts';
 
 /** Seeds per page of the workbench's seed grid. */
 export const GRID_PAGE = 24;
@@ -71,4 +71,12 @@ export function wholeProblem(value: unknown, min: number, max: number, what: str
   if (typeof value !== 'number' || !Number.isFinite(value) || !Number.isInteger(value)) return `${what}: enter a whole number from ${min} to ${max}.`;
   if (value < min || value > max) return `${what} must be from ${min} to ${max}.`;
   return null;
+}
+
+/**
+ * The message for a locate evaluation budget, or null. A number input gives a number, or null /
+ * NaN / '' when what is typed is not one ("abc", "1e" half typed).
+ */
+export function budgetProblem(value: unknown): string | null {
+  return wholeProblem(value, LOCATE_BUDGET.min, LOCATE_BUDGET.max, 'Budget')?.replace(`${LOCATE_BUDGET.min} to ${LOCATE_BUDGET.max}`, `${LOCATE_BUDGET.min.toLocaleString('en')} to ${LOCATE_BUDGET.max.toLocaleString('en')} evaluations`) ?? null;
 }
