@@ -6,6 +6,7 @@ import { EngineRequestError } from './engine.ts';
 import { desktop } from './bridge.ts';
 import { reportHtml } from './report.ts';
 import { parseSeedList, probesProblem, seedListProblem, wholeProblem } from './fields.ts';
+import { beforeResults } from './audit-rows.ts';
 import type { Studio } from './studio.svelte.ts';
 
 export type View = 'workbench' | 'discover' | 'audit' | 'signoff' | 'variants';
@@ -53,6 +54,8 @@ export class Lab {
   view = $state<View>('workbench');
   project = $state.raw<ProjectInfo | null>(null);
   reviewer = $state(globalThis.localStorage?.getItem(REVIEWER_KEY) ?? '');
+  /** A sign-off step was asked for without a reviewer name (said beside the field until one is typed). */
+  reviewerMissing = $state(false);
   /** Recently opened project folders, newest first. */
   recent = $state<string[]>(readRecent());
   /** Recently opened generators (model cards or .onnx), newest first. */
@@ -79,6 +82,8 @@ export class Lab {
   auditProgress = $state<JobProgress | null>(null);
   report = $state.raw<AuditWire | null>(null);
   previousReport = $state.raw<AuditWire | null>(null);
+  /** Each direction's earlier result, shown as "before" on its row (only where there is an earlier audit of it). */
+  before = $state.raw<Record<string, AuditWire['directions'][number]>>({});
   thumbnails = $state.raw<Thumb[]>([]);
   /** Each direction's change map (PNG of the mean per-pixel ΔE00 at +reference), from the last audit. */
   changeMaps = $state.raw<ChangeMapPng[]>([]);
@@ -155,37 +160,53 @@ export class Lab {
   }
 
   async openProject(path: string, create: boolean): Promise<boolean> {
-    const ok = await this.#guard(create ? `Creating project ${path}` : `Opening project ${path}`, async () => {
-      const p = await this.engine.request('project.open', { path, create, session: this.session });
-      this.project = p;
-      this.readOnly = p.readOnly;
-      this.lockHolder = p.lockHolder;
-      globalThis.localStorage?.setItem(LAST_PROJECT_KEY, path);
-      this.recent = [path, ...this.recent.filter((r) => r !== path)].slice(0, RECENT_LIMIT);
-      globalThis.localStorage?.setItem(RECENT_KEY, JSON.stringify(this.recent));
-      // A read-only window saves nothing: the holder's autosave is the one that counts.
-      this.studio.onAutosave = p.readOnly ? null : (ui) => this.engine.request('project.saveUi', { ...ui, variants: this.variantDraft(), auditProbes: this.probesProblem ? undefined : this.probes }).then((r) => r.savedAt);
-      this.studio.onRecover = () => this.openProject(path, false).then(() => undefined);
-      await this.refreshDirections(p.directions);
-      this.defined = (await this.engine.request('attributes.list', {})).attributes;
-      this.auditReferences = [];
-      if (p.ui) {
-        this.studio.restoreUi(p.ui);
-        if (p.ui.variants) this.#restoreVariants(p.ui.variants);
-        if (p.ui.auditProbes !== undefined) this.probes = p.ui.auditProbes;
-      }
-      await this.loadAuditHistory();
-      // Candidates left unkept in the project come back until they are kept or discarded.
-      this.candidates = [...this.candidates.filter((c) => !p.candidates.some((n) => n.direction.id === c.direction.id)), ...p.candidates];
-      this.#keepLock();
-      if (p.readOnly) {
-        const h = p.lockHolder;
-        this.studio.banner = { kind: 'warning', text: `Opened read-only: another window has this project open${h ? ` (process ${h.pid} on ${h.host}, active ${new Date(h.at).toLocaleString()})` : ''}. You can look around; changes are not saved here.` };
-      } else if (!p.generatorMatches) this.studio.banner = { kind: 'warning', text: `This project was made with another generator (fingerprint ${p.generatorFingerprint?.slice(0, 12)}…). Its directions and sign-offs may not hold for ${this.studio.model?.name}.` };
-      else if (p.refused?.length) this.studio.banner = { kind: 'warning', text: `Opened with ${p.refused.length} entr${p.refused.length === 1 ? 'y' : 'ies'} refused: ${p.refused.join('; ')}` };
-    });
+    const ok = await this.#guard(create ? `Creating project ${path}` : `Opening project ${path}`, () => this.#openProject(path, create));
     if (ok) await Promise.all([this.studio.refreshGrid(), this.studio.requestPreview()]);
     return ok;
+  }
+
+  /** As openProject, for a dialog that shows a refusal beside the path it names: the message, or null when opened. */
+  async openProjectFromDialog(path: string, create: boolean): Promise<string | null> {
+    this.studio.busy = create ? `Creating project ${path}` : `Opening project ${path}`;
+    try {
+      await this.#openProject(path, create);
+    } catch (err) {
+      return (err as Error).message;
+    } finally {
+      this.studio.busy = null;
+    }
+    await Promise.all([this.studio.refreshGrid(), this.studio.requestPreview()]);
+    return null;
+  }
+
+  async #openProject(path: string, create: boolean): Promise<void> {
+    const p = await this.engine.request('project.open', { path, create, session: this.session });
+    this.project = p;
+    this.readOnly = p.readOnly;
+    this.lockHolder = p.lockHolder;
+    globalThis.localStorage?.setItem(LAST_PROJECT_KEY, path);
+    this.recent = [path, ...this.recent.filter((r) => r !== path)].slice(0, RECENT_LIMIT);
+    globalThis.localStorage?.setItem(RECENT_KEY, JSON.stringify(this.recent));
+    // A read-only window saves nothing: the holder's autosave is the one that counts.
+    this.studio.onAutosave = p.readOnly ? null : (ui) => this.engine.request('project.saveUi', { ...ui, variants: this.variantDraft(), auditProbes: this.probesProblem ? undefined : this.probes }).then((r) => r.savedAt);
+    this.studio.onRecover = () => this.openProject(path, false).then(() => undefined);
+    await this.refreshDirections(p.directions);
+    this.defined = (await this.engine.request('attributes.list', {})).attributes;
+    this.auditReferences = [];
+    if (p.ui) {
+      this.studio.restoreUi(p.ui);
+      if (p.ui.variants) this.#restoreVariants(p.ui.variants);
+      if (p.ui.auditProbes !== undefined) this.probes = p.ui.auditProbes;
+    }
+    await this.loadAuditHistory();
+    // Candidates left unkept in the project come back until they are kept or discarded.
+    this.candidates = [...this.candidates.filter((c) => !p.candidates.some((n) => n.direction.id === c.direction.id)), ...p.candidates];
+    this.#keepLock();
+    if (p.readOnly) {
+      const h = p.lockHolder;
+      this.studio.banner = { kind: 'warning', text: `Opened read-only: another window has this project open${h ? ` (process ${h.pid} on ${h.host}, active ${new Date(h.at).toLocaleString()})` : ''}. You can look around; changes are not saved here.` };
+    } else if (!p.generatorMatches) this.studio.banner = { kind: 'warning', text: `This project was made with another generator (fingerprint ${p.generatorFingerprint?.slice(0, 12)}…). Its directions and sign-offs may not hold for ${this.studio.model?.name}.` };
+    else if (p.refused?.length) this.studio.banner = { kind: 'warning', text: `Opened with ${p.refused.length} entr${p.refused.length === 1 ? 'y' : 'ies'} refused: ${p.refused.join('; ')}` };
   }
 
   rememberGenerator(path: string): void {
@@ -212,6 +233,7 @@ export class Lab {
     this.auditFiles = h.files;
     if (!h.report) return;
     if (this.report) this.previousReport = this.report;
+    this.before = beforeResults(this.before, this.report, h.report);
     this.report = h.report;
     this.thumbnails = h.thumbnails;
     this.changeMaps = h.changeMaps;
@@ -363,7 +385,9 @@ export class Lab {
         this.focus = r.report.directions.find((d) => d.verdict !== 'pass')?.name ?? r.report.directions[0]?.name ?? null;
       } else {
         if (this.report) this.previousReport = this.report;
-        this.report = mergeReports(this.report, r.report);
+        const merged = mergeReports(this.report, r.report);
+        this.before = beforeResults(this.before, this.report, merged);
+        this.report = merged;
         this.thumbnails = [...this.thumbnails.filter((t) => !r.report.directions.some((d) => d.name === t.direction)), ...r.thumbnails];
         this.changeMaps = [...this.changeMaps.filter((c) => !r.report.directions.some((d) => d.name === c.direction)), ...r.changeMaps];
         this.focus = r.report.directions.find((d) => d.verdict !== 'pass')?.name ?? r.report.directions[0]?.name ?? null;
@@ -392,11 +416,14 @@ export class Lab {
       this.auditSelection = [d.id, r.direction.id];
     });
     this.repairing = false;
+    const auditing = this.studio.banner;
     if (this.auditSelection.length === 2) {
       await this.runAudit();
       const child = this.studio.directions.find((x) => x.id === this.auditSelection[1]);
       if (child) await this.loadRepairImages(directionName, child.name);
     }
+    // "…Auditing it beside the original…" is done now (a message that came since stays).
+    if (auditing && this.studio.banner === auditing) this.studio.banner = null;
   }
 
   /** Renders the parent's worst probes with the original and with the repaired direction, at the same strength. */
@@ -429,11 +456,18 @@ export class Lab {
     });
   }
 
-  async renameDirection(direction: DirectionInfo, name: string): Promise<boolean> {
-    return this.#guard(`Renaming ${direction.name}`, async () => {
+  /** Renames a direction; the engine's refusal comes back as text for the screen to show beside the control (null when renamed). */
+  async renameDirection(direction: DirectionInfo, name: string): Promise<string | null> {
+    this.studio.busy = `Renaming ${direction.name}`;
+    try {
       const r = await this.engine.request('directions.rename', { id: direction.id, name });
       this.studio.directions = this.studio.directions.map((d) => (d.id === r.id ? r : d));
-    });
+      return null;
+    } catch (err) {
+      return (err as Error).message;
+    } finally {
+      this.studio.busy = null;
+    }
   }
 
   async deleteDirection(direction: DirectionInfo): Promise<void> {
@@ -446,10 +480,12 @@ export class Lab {
 
   /** Records a sign-off step; `override` is the written reason when the audits do not support it. */
   async review(direction: DirectionInfo, status: Status, note: string, override?: string): Promise<boolean> {
+    // Asked beside the reviewer field (not in the banner, which would outlive it); gone once a name is there.
     if (!this.reviewer.trim()) {
-      this.studio.banner = { kind: 'warning', text: 'Enter your name as reviewer first; the review log records who signed off.' };
+      this.reviewerMissing = true;
       return false;
     }
+    this.reviewerMissing = false;
     globalThis.localStorage?.setItem(REVIEWER_KEY, this.reviewer.trim());
     return this.#guard(`Recording ${status} for ${direction.name}`, async () => {
       const r = await this.engine.request('project.review', { direction: direction.id, status, reviewer: this.reviewer.trim(), note, ...(override?.trim() ? { override: override.trim() } : {}) });
