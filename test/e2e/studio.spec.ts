@@ -77,6 +77,17 @@ test('create, discover, audit, repair, approve, reload; the engine dies mid-audi
   await expect(page.getByRole('figure', { name: /Response curves of outline_bold/ })).toBeVisible();
   await expect(page.getByAltText(/before/).first()).toBeVisible();
   await page.screenshot({ path: join(shots, 'studio-audit.png'), fullPage: true });
+  // Charts: every path-length tick a 1-2-5 value (no odd end such as 0.0091), curve colours all different.
+  const pathChart = page.getByRole('figure', { name: /Path length of outline_bold/ });
+  await pathChart.scrollIntoViewIfNeeded();
+  const ticks = await pathChart.locator('[aria-label="y-axis tick label"] text').allTextContents();
+  expect(ticks.length).toBeGreaterThanOrEqual(2);
+  for (const t of ticks) expect(t, `path-length tick ${t}`).toMatch(/^(?:[125]0*|0\.0*[125]|[125]e-?\d+)$/);
+  const curveChart = page.getByRole('figure', { name: /Response curves of outline_bold/ });
+  const strokes = await curveChart.locator('[aria-label="line"] path').evaluateAll((ps) => ps.map((p) => p.getAttribute('stroke')));
+  expect(new Set(strokes).size).toBe(strokes.length);
+  await page.getByRole('heading', { name: /response curves/ }).scrollIntoViewIfNeeded();
+  await page.screenshot({ path: join(shots, 'studio-audit-curves.png') });
 
   // Repair against backdrop, holding the rest; the re-audit shows it clean beside the original.
   await page.getByRole('checkbox', { name: 'backdrop', exact: true }).check();
