@@ -159,3 +159,26 @@ test('go to seed and variant seeds are checked where they are typed; the engine 
   await page.screenshot({ path: join(shots, 'variants-not-forceable.png') });
   expect(errors).toEqual([]);
 });
+
+test('the masthead shows a readable short form of the generator at 1280 and 1600 px, the full details in its tooltip', async ({ page }) => {
+  await page.goto(shell.url);
+  await expect(page.getByTestId('engine-state')).toHaveText('engine ready');
+  const details = page.getByTestId('model-details');
+  await expect(details).toHaveAttribute('title', /^Tidebound sigils \(demo\) — W\+ · \d+-d × \d+ layers · \d+×\d+ — fingerprint [0-9a-f]{64}$/);
+  for (const width of [1280, 1600]) {
+    await page.setViewportSize({ width, height: 800 });
+    await expect(page.getByTestId('model-shape')).toHaveText(/^W\+ · \d+×\d+$/);
+    await expect(page.getByTestId('model-fingerprint')).toHaveText(/^#[0-9a-f]{8}$/);
+    // Nothing of the short form is cut: each part is whole and inside the masthead's details.
+    const box = (await details.boundingBox())!;
+    // The demo's name is read whole too (a longer one shortens with an ellipsis before the rest).
+    expect(await details.locator('strong').evaluate((el) => el.scrollWidth <= el.clientWidth + 1), `name at ${width}`).toBe(true);
+    for (const id of ['model-shape', 'model-fingerprint']) {
+      const part = page.getByTestId(id);
+      expect(await part.evaluate((el) => el.scrollWidth <= el.clientWidth + 1), `${id} at ${width}`).toBe(true);
+      const b = (await part.boundingBox())!;
+      expect(b.x + b.width, `${id} at ${width}`).toBeLessThanOrEqual(box.x + box.width + 1);
+    }
+    await page.screenshot({ path: join(shots, `masthead-${width}.png`), clip: { x: 0, y: 0, width, height: 90 } });
+  }
+});
