@@ -4,7 +4,8 @@
 //
 //  - Approval gate: a direction may be approved plainly only when the newest audit of its CURRENT
 //    vector (matched by hash, and made after its last change) passed on at least
-//    MIN_SIGNOFF_PROBES probes. Approving anything else needs an override with a written reason.
+//    MIN_SIGNOFF_PROBES probes. Approving anything else needs an override with a written reason
+//    (REASON_RULE: length, two words and some variety).
 //  - Transitions: moving to the status a direction already has is refused (it would only add a
 //    meaningless line to the review log).
 //  - Use in variant sets and apply: unapproved or rejected directions and strengths outside the
@@ -12,6 +13,7 @@
 //    forced are returned so the caller records them in its manifest.
 import { PlumblineError } from './errors.ts';
 import { MIN_USEFUL_PROBES } from './audit/settings.ts';
+import { REASON_RULE, reasonProblem } from '../protocol/reason-rule.ts';
 
 export const REVIEW_STATUSES = ['draft', 'in-review', 'approved', 'rejected'] as const;
 export type ReviewStatus = (typeof REVIEW_STATUSES)[number];
@@ -24,12 +26,7 @@ export type Verdict = 'pass' | 'review' | 'fail' | 'no-measure';
  */
 export const MIN_SIGNOFF_PROBES = MIN_USEFUL_PROBES;
 
-/**
- * Shortest written reason accepted for an override or a forced render: long enough that "ok" or
- * "yes" cannot pass for a reason. Our own choice, not a published figure.
- */
-export const MIN_REASON_LENGTH = 12;
-
+export { MIN_REASON_LENGTH, REASON_RULE, reasonProblem } from '../protocol/reason-rule.ts';
 /** One stored audit result of one direction, as the project keeps it. */
 export interface AuditRecord {
   /** ISO time the audit finished. */
@@ -98,8 +95,9 @@ export interface Override {
   reason: string;
 }
 
-function reasonOk(o: Override | null | undefined): o is Override {
-  return !!o && o.reason.trim().length >= MIN_REASON_LENGTH;
+/** A written reason meets the rule of app/protocol/reason-rule.ts (length, words, variety). */
+function reasonOk(o: Override | null | undefined): boolean {
+  return !!o && reasonProblem(o.reason) === null;
 }
 
 /**
@@ -111,7 +109,7 @@ export function checkTransition(name: string, status: ReviewStatus, to: ReviewSt
   if (t.allowed === 'no') throw new PlumblineError('bad-request', `'${name}' is ${t.why}; nothing to record`);
   if (t.allowed === 'yes') return { override: false };
   if (!reasonOk(override)) {
-    throw new PlumblineError('bad-request', `'${name}' cannot be approved plainly: ${t.why}. Approving it anyway needs an override with a written reason of at least ${MIN_REASON_LENGTH} characters`);
+    throw new PlumblineError('bad-request', `'${name}' cannot be approved plainly: ${t.why}. Approving it anyway needs an override with a written reason: ${override ? reasonProblem(override.reason) : REASON_RULE}`);
   }
   return { override: true };
 }
@@ -159,7 +157,7 @@ export function useViolations(settings: readonly { label: string; strengths: Rec
 export function checkUse(violations: readonly Violation[], force: Override | null, how: string): { forced: Violation[]; reason: string | null } {
   if (violations.length === 0) return { forced: [], reason: null };
   const list = violations.map((v) => `setting '${v.setting}': ${v.message}`).join('; ');
-  if (!force) throw new PlumblineError('bad-request', `refusing ${list}; ${how}`);
-  if (!reasonOk(force)) throw new PlumblineError('bad-request', `forcing ${list} needs a written reason of at least ${MIN_REASON_LENGTH} characters; ${how}`);
+  if (!force) throw new PlumblineError('use-refused', `refusing ${list}; ${how}`);
+  if (!reasonOk(force)) throw new PlumblineError('use-refused', `forcing ${list} needs a written reason: ${reasonProblem(force.reason)}; ${how}`);
   return { forced: [...violations], reason: force.reason.trim() };
 }

@@ -13,6 +13,7 @@ import { LatentPrior } from '../core/search/latent-prior.ts';
 import { MatchTarget, outputToPlanes, PRIOR_WEIGHT, FOUND_SSIM, FOUND_DELTA_E, type Planes } from '../core/search/match.ts';
 import { Random } from '../core/random.ts';
 import { PlumblineError } from '../core/errors.ts';
+import { LOCATE_BUDGET } from '../protocol/messages.ts';
 import type { FloatImage } from '../core/reference-image.ts';
 import type { RgbaImage } from '../core/image.ts';
 import type { Generator } from './generator.ts';
@@ -129,7 +130,7 @@ export async function* locate(gen: Generator, reference: FloatImage, options: Lo
     throw new PlumblineError('bad-request', `the reference is ${reference.width} × ${reference.height} but the generator makes ${width} × ${height}; fit it first`);
   }
   const budget = options.budget ?? DEFAULT_BUDGET;
-  if (!Number.isInteger(budget) || budget < 50) throw new PlumblineError('bad-request', `budget must be an integer of at least 50 evaluations, got ${options.budget}`);
+  if (!Number.isInteger(budget) || budget < LOCATE_BUDGET.min) throw new PlumblineError('bad-request', `budget must be an integer of at least ${LOCATE_BUDGET.min} evaluations, got ${options.budget}`);
   const space = options.space ?? 'w';
   if (space === 'w+' && layers < 2) throw new PlumblineError('bad-request', `--space w+ needs a generator with W+ rows; this one takes a single ${gen.layout.space.toUpperCase()} code`);
   const seed = options.seed ?? 1;

@@ -23,6 +23,7 @@ export const ERROR_CATALOGUE = {
   'bad-request': { title: 'The request is invalid', input: true },
   'path-refused': { title: 'A path leads outside the folder it must stay in', input: true },
   'not-a-file': { title: 'Not a regular file where a file is expected', input: true },
+  'use-refused': { title: 'A sign-off rule refuses this use of a direction (it may be forced with a written reason)', input: true },
   'would-overwrite': { title: 'A file exists that nobody chose to replace', input: true },
   'limit-exceeded': { title: 'A file or model exceeds a resource cap', input: true },
   'pack-unreadable': { title: 'unreadable pack', input: true },

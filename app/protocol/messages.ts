@@ -12,7 +12,9 @@ import { errorDataSchema, type ErrorData } from './errors.ts';
 export type WireError = ErrorData;
 
 const bytes = z.custom<Uint8Array>((v) => v instanceof Uint8Array, { message: "expected binary bytes (Uint8Array)" });
-const seed = z.number().int().min(0).max(0xffffffff);
+/** The largest seed the engine accepts (seeds are unsigned 32-bit integers). */
+export const SEED_MAX = 0xffffffff;
+const seed = z.number().int().min(0).max(SEED_MAX);
 const psi = z.number().min(0).max(2);
 /** Largest edit strength (σ) any request may carry. */
 export const MAX_STRENGTH = 50;
@@ -22,6 +24,8 @@ const referenceName = /^[A-Za-z0-9_-][A-Za-z0-9_.-]{0,119}$/;
 
 /** Random probe latents an audit accepts; with pinned seeds the set must still hold at least 2 (an interval needs 2). */
 export const PROBE_LIMITS = { min: 0, max: 100_000, minTotal: 2 } as const;
+/** Evaluations a locate search accepts (app/engine/locate.ts: fewer than 50 leave no room past the random starts). */
+export const LOCATE_BUDGET = { min: 50, max: 1_000_000 } as const;
 /** Per-tab session id: names the holder of a project's lock (kept in sessionStorage, so a reload keeps it). */
 const session = z.string().regex(/^[A-Za-z0-9_-]{8,64}$/);
 /** A written reason for an override or a forced render (the rule module sets the minimum length). */
@@ -279,7 +283,7 @@ export const methods = {
     method: z.enum(['pca', 'sefa', 'boundary', 'means']),
     components: z.number().int().min(1).max(64).default(6),
     samples: z.number().int().min(64).max(200_000).default(3000),
-    seed: z.number().int().min(0).max(0xffffffff).default(1),
+    seed: z.number().int().min(0).max(SEED_MAX).default(1),
     layers: z.tuple([z.number().int().min(0), z.number().int().min(1)]).nullable().default(null),
     attribute: z.string().min(1).optional(),
     positive: z.array(seed).max(10_000).default([]),
@@ -296,7 +300,7 @@ export const methods = {
     /** Named references of the open project added to the probes after the seeds (their latents as stored, no truncation). */
     references: z.array(z.string().regex(referenceName)).max(1000).optional(),
     psi: psi.default(0.7),
-    seed: z.number().int().min(0).max(0xffffffff).default(1),
+    seed: z.number().int().min(0).max(SEED_MAX).default(1),
     referenceStrength: z.number().positive().max(10).default(2),
     /** Leak thresholds in σ of the leaked attribute (see VERDICT_RULE in app/protocol/verdict-rule.ts). */
     leakPass: z.number().positive().max(10).default(0.2),
@@ -360,7 +364,7 @@ export const methods = {
   /** `out` is the absolute path the user chose; an existing file is replaced only with `overwrite`. */
   'pack.build': declare('control', z.object({ out: z.string().min(1), overwrite: z.boolean().optional() }), z.object({ file: z.string(), directions: z.array(z.string()), skipped: z.array(z.string()), bytes: z.number() })),
   /** Finds the latent of a reference image (docs/locate.md); progress plus locate.preview events. */
-  'locate.run': declare('job', z.object({ image: bytes, fileName: z.string().min(1).max(1000), budget: z.number().int().min(50).max(1_000_000).default(3000), space: z.enum(['w', 'w+']).default('w'), seed: seed.default(1) }), z.object({
+  'locate.run': declare('job', z.object({ image: bytes, fileName: z.string().min(1).max(1000), budget: z.number().int().min(LOCATE_BUDGET.min).max(LOCATE_BUDGET.max).default(3000), space: z.enum(['w', 'w+']).default('w'), seed: seed.default(1) }), z.object({
     found: z.boolean(), ssim: z.number(), deltaE: z.number(), message: z.string(), evaluations: z.number().int(), budget: z.number().int(),
     imageSha256: z.string(), notes: z.array(z.string()), reference: imageSchema, match: imageSchema, difference: imageSchema, caution: z.string(),
   })),

@@ -130,3 +130,47 @@ test('drop an image, watch, cancel, run to the end, pin, move a slider on it', a
   await expect(page.getByTestId('variant-references').getByRole('checkbox', { name: /hero_crest/ })).toBeChecked({ timeout: 30_000 });
   expect(errors).toEqual([]);
 });
+
+test('the budget is checked beside its field and a bad one is never sent; the file chooser is themed and keyboard reachable', async ({ page }) => {
+  const errors: string[] = [];
+  page.on('pageerror', (e) => errors.push(e.message));
+  const requests: string[] = [];
+  page.on('websocket', (ws) => ws.on('framesent', (f) => requests.push(String(f.payload))));
+  await page.goto(shell.url);
+  await expect(page.getByTestId('engine-state')).toHaveText('engine ready', { timeout: 30_000 });
+  await page.getByRole('button', { name: 'Start from an image…' }).click();
+  const dialog = page.getByRole('dialog');
+  // The file input is reached with the keyboard (it is visually hidden; its themed label stands for it).
+  const fileInput = dialog.getByLabel('Reference image file');
+  await fileInput.focus();
+  await expect(fileInput).toBeFocused();
+  const chooser = dialog.locator('label.choose');
+  await expect(chooser).toHaveText('Choose an image…');
+  const bg = await chooser.evaluate((el) => getComputedStyle(el).backgroundColor);
+  expect(bg).not.toBe('rgb(239, 239, 239)'); // not the light native button
+  expect(await fileInput.evaluate((el) => el.getBoundingClientRect().width)).toBeLessThanOrEqual(1);
+  await fileInput.setInputFiles({ name: 'hero_crest.png', mimeType: 'image/png', buffer: target });
+  await expect(dialog.getByText('hero_crest.png')).toBeVisible();
+  await expect(chooser).toHaveText('Choose another image…');
+
+  const budget = dialog.getByLabel('Evaluation budget');
+  const find = dialog.getByRole('button', { name: 'Find in generator' });
+  const message = page.getByTestId('budget-error');
+  for (const [typed, says] of [['-5', 'from 50 to 1,000,000'], ['0', 'from 50 to 1,000,000'], ['49', 'from 50 to 1,000,000'], ['1e9', 'from 50 to 1,000,000'], ['12.5', 'whole number'], ['abc', 'whole number'], ['', 'whole number']] as const) {
+    await budget.fill(typed);
+    await expect(message, typed).toContainText(says);
+    await expect(budget).toHaveAttribute('aria-invalid', 'true');
+    await expect(find, typed).toBeDisabled();
+  }
+  // Beside the field: directly below it.
+  const [f, m] = [await budget.boundingBox(), await message.boundingBox()];
+  expect(m!.y - (f!.y + f!.height)).toBeLessThan(24);
+  await page.screenshot({ path: join(shots, 'locate-budget-invalid.png') });
+  expect(requests.some((r) => r.includes('engine.hello'))).toBe(true); // the frames are seen…
+  expect(requests.filter((r) => r.includes('locate.run'))).toEqual([]); // …and no search was asked for
+  await budget.fill('50');
+  await expect(message).toHaveCount(0);
+  await expect(find).toBeEnabled();
+  await page.screenshot({ path: join(shots, 'locate-dialog.png') });
+  expect(errors).toEqual([]);
+});

@@ -56,17 +56,31 @@ test('a new project only in a new or empty folder: a non-empty and a system fold
   const full = mkdtempSync(join(tmpdir(), 'plumbline-full-'));
   writeFileSync(join(full, 'brief.txt'), 'client brief');
   await newProject(page, full);
-  await expect(page.getByRole('alert')).toContainText(`cannot create a project here: ${full} is not empty`);
+  // Refused inside the dialog, beside the path; the dialog stays open with the path typed.
+  const dialog = page.getByRole('dialog', { name: 'Create a project' });
+  const refusal = dialog.getByTestId('path-refused');
+  const create = dialog.getByRole('button', { name: 'Create', exact: true });
+  await expect(refusal).toContainText(`cannot create a project here: ${full} is not empty`);
+  await expect(dialog.getByLabel('Path', { exact: true })).toHaveValue(full);
+  await expect(create).toBeDisabled(); // the same path again would only be refused again
+  await expect(page.locator('.banner')).toHaveCount(0);
   expect(readdirSync(full)).toEqual(['brief.txt']);
 
   const etcBefore = readdirSync('/etc').sort();
-  await newProject(page, '/etc');
-  await expect(page.getByRole('alert')).toContainText('/etc is a system folder');
-  await newProject(page, '/etc/plumbline-emblems');
-  await expect(page.getByRole('alert')).toContainText('inside the system folder /etc');
+  await dialog.getByLabel('Path', { exact: true }).fill('/etc');
+  await expect(refusal).toHaveCount(0);
+  await create.click();
+  await expect(refusal).toContainText('/etc is a system folder');
+  await expect(dialog.getByLabel('Path', { exact: true })).toHaveValue('/etc');
+  await shoot(page, 'safeguards-new-project-refused');
+  await dialog.getByLabel('Path', { exact: true }).fill('/etc/plumbline-emblems');
+  await create.click();
+  await expect(refusal).toContainText('inside the system folder /etc');
   expect(readdirSync('/etc').sort()).toEqual(etcBefore);
   expect(existsSync('/etc/project.json')).toBe(false);
   expect(existsSync('/etc/plumbline-emblems')).toBe(false);
+  await dialog.getByRole('button', { name: 'Cancel' }).click();
+  await expect(dialog).toHaveCount(0);
   await expect(page.getByText(/◆ /)).toHaveCount(0);
 });
 

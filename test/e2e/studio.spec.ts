@@ -54,7 +54,19 @@ test('create, discover, audit, repair, approve, reload; the engine dies mid-audi
   await page.getByLabel('Name for sefa_0').fill('factor_a');
   await page.getByRole('button', { name: 'Keep' }).first().click();
   await expect(page.getByRole('group', { name: /Strip of sefa_0/ })).toHaveCount(0);
+  // Discarding one candidate asks first, inline, as Discard all does.
+  await expect(page.getByRole('group', { name: /Strip of sefa_1/ })).toHaveAttribute('aria-label', /seeds 0, 1, 2 at strengths -3, -1.5, 0, 1.5, 3/);
+  await page.getByRole('button', { name: 'Discard sefa_1' }).click();
+  await expect(page.getByRole('group', { name: 'Confirm discarding sefa_1' })).toContainText('Discard sefa_1? It cannot be brought back without searching again.');
+  await expect(page.getByRole('group', { name: /Strip of sefa_1/ })).toBeVisible();
   await page.screenshot({ path: join(shots, 'studio-discover.png') });
+  await page.getByRole('button', { name: 'Keep sefa_1 for now' }).click();
+  await expect(page.getByRole('group', { name: 'Confirm discarding sefa_1' })).toHaveCount(0);
+  await expect(page.getByRole('group', { name: /Strip of sefa_1/ })).toBeVisible();
+  await page.getByRole('button', { name: 'Discard sefa_1' }).click();
+  await page.getByRole('button', { name: 'Confirm discard sefa_1' }).click();
+  await expect(page.getByRole('group', { name: /Strip of sefa_1/ })).toHaveCount(0);
+  await expect(page.getByRole('group', { name: /Strip of sefa_2/ })).toBeVisible();
 
   // Audit: outline_bold fails, and says why.
   await runAudit(page, ['outline_bold', 'turn', 'factor_a'], 32);
@@ -65,6 +77,17 @@ test('create, discover, audit, repair, approve, reload; the engine dies mid-audi
   await expect(page.getByRole('figure', { name: /Response curves of outline_bold/ })).toBeVisible();
   await expect(page.getByAltText(/before/).first()).toBeVisible();
   await page.screenshot({ path: join(shots, 'studio-audit.png'), fullPage: true });
+  // Charts: every path-length tick a 1-2-5 value (no odd end such as 0.0091), curve colours all different.
+  const pathChart = page.getByRole('figure', { name: /Path length of outline_bold/ });
+  await pathChart.scrollIntoViewIfNeeded();
+  const ticks = await pathChart.locator('[aria-label="y-axis tick label"] text').allTextContents();
+  expect(ticks.length).toBeGreaterThanOrEqual(2);
+  for (const t of ticks) expect(t, `path-length tick ${t}`).toMatch(/^(?:[125]0*|0\.0*[125]|[125]e-?\d+)$/);
+  const curveChart = page.getByRole('figure', { name: /Response curves of outline_bold/ });
+  const strokes = await curveChart.locator('[aria-label="line"] path').evaluateAll((ps) => ps.map((p) => p.getAttribute('stroke')));
+  expect(new Set(strokes).size).toBe(strokes.length);
+  await page.getByRole('heading', { name: /response curves/ }).scrollIntoViewIfNeeded();
+  await page.screenshot({ path: join(shots, 'studio-audit-curves.png') });
 
   // Repair against backdrop, holding the rest; the re-audit shows it clean beside the original.
   await page.getByRole('checkbox', { name: 'backdrop', exact: true }).check();
@@ -73,14 +96,46 @@ test('create, discover, audit, repair, approve, reload; the engine dies mid-audi
   await expect(page.getByTestId('verdict-outline_bold')).toHaveText('Fail');
   await page.getByRole('table', { name: 'Repairs beside their originals' }).scrollIntoViewIfNeeded();
   await expect(page.getByRole('table', { name: 'Repairs beside their originals' })).toContainText('outline_bold_repaired');
+  // The repair's "auditing it beside the original" note is gone once that audit is done.
+  await expect(page.getByText(/Auditing it beside the original/)).toHaveCount(0);
+  // A before only where there is an earlier audit of the direction: outline_bold was audited
+  // twice, turn and factor_a once (the history reloads them, but they are no "before").
+  await expect(page.getByTestId('nums-outline_bold')).toContainText('before: ');
+  await expect(page.getByTestId('nums-turn')).not.toContainText('before:');
+  await expect(page.getByTestId('nums-factor_a')).not.toContainText('before:');
+  await expect(page.getByTestId('nums-outline_bold_repaired')).not.toContainText('before:');
   await page.screenshot({ path: join(shots, 'studio-repair.png') });
 
-  // Sign-off, recorded in the append-only review log.
+  // Sign-off, recorded in the append-only review log. No reviewer name yet: said beside the field,
+  // and gone once the step is recorded.
   await page.keyboard.press('Alt+4');
+  await page.getByLabel('Reviewer name').fill('');
+  await page.getByRole('button', { name: 'Approve outline_bold_repaired' }).click();
+  await expect(page.getByTestId('reviewer-missing')).toContainText('Enter your name as reviewer first');
+  await expect(page.locator('.banner')).toHaveCount(0);
+  // Rename is offered only where the engine allows it: audited directions keep their names.
+  await expect(page.getByRole('button', { name: 'Rename outline_bold', exact: true })).toBeDisabled();
+  await expect(page.getByRole('button', { name: 'Rename outline_bold', exact: true })).toHaveAttribute('title', /Cannot rename outline_bold: it has 2 audits on record/);
+  // A rename the engine refuses for another reason is said beside the field, not in the banner.
+  await page.getByRole('button', { name: 'Rename crest_size', exact: true }).click();
+  await page.getByLabel('New name for crest_size').fill('Turn');
+  await page.getByRole('button', { name: 'Rename', exact: true }).click();
+  await expect(page.getByTestId('rename-error-crest_size')).toContainText("already named 'turn'");
+  await expect(page.locator('.banner')).toHaveCount(0);
+  await page.screenshot({ path: join(shots, 'studio-signoff-checks.png'), fullPage: true });
+  await page.getByRole('button', { name: 'Cancel', exact: true }).click();
+  // An override reason of one letter repeated is no reason, here and in the engine's rule.
+  await page.getByRole('button', { name: 'Approve outline_bold with a reason' }).click();
+  await page.getByLabel('Override reason for outline_bold').fill('aaaaaaaaaaaa');
+  await expect(page.getByRole('button', { name: 'Record override approval of outline_bold' })).toBeDisabled();
+  await expect(page.getByTestId('reason-hint-outline_bold')).toContainText('A reason needs at least 12 characters in 2 or more words, with at least 5 different letters or digits. Now: the reason is one word.');
+  await page.getByRole('button', { name: 'Approve outline_bold with a reason' }).click();
   await page.getByLabel('Reviewer name').fill('Ines Moreau');
+  await expect(page.getByTestId('reviewer-missing')).toHaveCount(0);
   await page.getByLabel('Note for outline_bold_repaired').fill('clean after projecting off backdrop');
   await page.getByRole('button', { name: 'Approve outline_bold_repaired' }).click();
   await expect(page.getByTestId('status-outline_bold_repaired')).toHaveText('Approved');
+  await expect(page.getByTestId('reviewer-missing')).toHaveCount(0);
   await page.screenshot({ path: join(shots, 'studio-signoff.png'), fullPage: true });
   const log = readFileSync(join(projectDir, 'review-log.jsonl'), 'utf8');
   expect(log).toContain('"reviewer":"Ines Moreau"');

@@ -1,8 +1,9 @@
 // Chart data mapping: audit values to heatmap cells and curve rows with their CI bands.
 import { test } from 'node:test';
 import assert from 'node:assert/strict';
-import { ATTRIBUTE_PALETTE, attributeColors, changeMapLevel, curveRows, heatDomain, heatmapCells, leadingAttributes, logTicks, niceMax, pathRows, tickLabel, worstProbeCaption } from '../../renderer/src/lib/charts.ts';
+import { ATTRIBUTE_PALETTE, attributeColors, changeMapLevel, curveRows, heatDomain, heatmapCells, leadingAttributes, logAxis, niceMax, pathRows, tickLabel, tipNumber, worstProbeCaption } from '../../renderer/src/lib/charts.ts';
 import { changeMapImage } from '../../app/core/audit/change-map.ts';
+import { ciede2000, srgb8ToLab } from '../../app/core/color.ts';
 import type { AuditWire } from '../../app/protocol/messages.ts';
 
 const iv = (value: number, low: number, high: number) => ({ value, low, high });
@@ -61,11 +62,12 @@ test('the heatmap legend covers the largest coloured cell; its end is the nice()
   assert.ok(hi >= 2.71 && Math.abs(hi - 2.8) < 1e-9, `legend ends at ${hi}`); // d3: 2.71 → 2.8
 });
 
-test('one colour per attribute, fixed by its place in the report (hiding some never recolours the rest)', () => {
+test('attribute colours: clearly distinct (Okabe–Ito), visible on the dark background, deterministic', () => {
   const colours = attributeColors(report);
   assert.deepEqual(Object.keys(colours), ['size', 'backdrop', 'hue']);
   assert.equal(new Set(ATTRIBUTE_PALETTE).size, ATTRIBUTE_PALETTE.length);
   assert.equal(colours.hue, ATTRIBUTE_PALETTE[2]);
+  assert.deepEqual(attributeColors(report), colours);
   // Every colour is a valid sRGB hex colour and differs visibly from the dark background (#14181d):
   // WCAG 2.x relative luminance contrast of at least 3:1 for graphical objects (WCAG 2.1, 1.4.11).
   const lum = (hex: string) => {
@@ -76,18 +78,58 @@ test('one colour per attribute, fixed by its place in the report (hiding some ne
     assert.match(c, /^#[0-9a-f]{6}$/);
     assert.ok((lum(c) + 0.05) / (lum('#14181d') + 0.05) >= 3, `${c} too dark on the slate background`);
   }
+  // No two alike: CIEDE2000 of at least 20 between every pair (the old palette had a pair at 0
+  // and one at about 8, #4fb3a1 and #5fd1c0).
+  const lab = (hex: string) => srgb8ToLab(...([1, 3, 5].map((i) => parseInt(hex.slice(i, i + 2), 16)) as [number, number, number]));
+  for (let i = 0; i < ATTRIBUTE_PALETTE.length; i++)
+    for (let j = i + 1; j < ATTRIBUTE_PALETTE.length; j++) {
+      const d = ciede2000(lab(ATTRIBUTE_PALETTE[i]), lab(ATTRIBUTE_PALETTE[j]));
+      assert.ok(d >= 20, `${ATTRIBUTE_PALETTE[i]} and ${ATTRIBUTE_PALETTE[j]}: ΔE00 ${d.toFixed(1)}`);
+    }
+});
+
+test("with more attributes than colours, the ones a direction's view draws together never share one", () => {
+  const names = ['artifact', 'aspect', 'backdrop', 'finish', 'form', 'gem', 'glow', 'hue', 'outline', 'palette', 'rotation', 'saturation', 'shift_x', 'shift_y', 'size', 'spikiness'];
+  const dependency = Object.fromEntries(names.map((n, i) => [n, iv(n === 'size' ? 2 : (i % 5) / 10, 0, 1)]));
+  dependency.artifact = iv(0.9, 0.8, 1);
+  const big = { ...report, attributes: names.map((name) => ({ name, unit: '', source: 'card', sigma: 1 })), directions: [{ ...report.directions[0], name: 'crest', target: 'size', dependency }] } as unknown as AuditWire;
+  const colours = attributeColors(big, 'crest');
+  assert.deepEqual(Object.keys(colours).sort(), [...names].sort());
+  // The tryout's collision: artifact and size (the target and its largest leak) now differ.
+  assert.notEqual(colours.size, colours.artifact);
+  const view = leadingAttributes(big, 'crest', ATTRIBUTE_PALETTE.length - 1);
+  assert.equal(view.length, ATTRIBUTE_PALETTE.length);
+  assert.equal(new Set(view.map((a) => colours[a])).size, view.length);
+  assert.deepEqual(attributeColors(big, 'crest'), colours);
 });
 
 test('tick labels are plain numbers (no bare exponents for ordinary values)', () => {
   assert.deepEqual([0, 0.5, 2, 0.01, 0.002, 150, 2e-5, 30000].map(tickLabel), ['0', '0.5', '2', '0.01', '0.002', '150', '2e-5', '3e4']);
 });
 
-test('log-axis ticks: every one a 1-2-5 value inside the range, each labelled', () => {
-  // The 1-2-5 series is the common practice for decade axes (as in E-series and d3's log ticks).
-  assert.deepEqual(logTicks(0.0031, 0.024), [0.005, 0.01, 0.02]);
-  assert.deepEqual(logTicks(0.0011, 0.0019), [0.0011, 0.0019]);
-  assert.deepEqual(logTicks(1e-5, 10), [1e-5, 1e-4, 0.001, 0.01, 0.1, 1, 10]);
-  for (const v of logTicks(0.0031, 0.024)) assert.notEqual(tickLabel(v), '');
+test('log axis: covers the data, every tick a 1-2-5 value and both ends labelled (no odd 0.0091)', () => {
+  assert.deepEqual(logAxis(0.0031, 0.0091), { domain: [0.002, 0.01], ticks: [0.002, 0.005, 0.01] });
+  assert.deepEqual(logAxis(0.0031, 0.024), { domain: [0.002, 0.05], ticks: [0.002, 0.005, 0.01, 0.02, 0.05] });
+  assert.deepEqual(logAxis(0.0011, 0.0019), { domain: [0.001, 0.002], ticks: [0.001, 0.002] });
+  assert.deepEqual(logAxis(1e-5, 10).ticks, [1e-5, 1e-4, 0.001, 0.01, 0.1, 1, 10]);
+  assert.deepEqual(logAxis(0.002, 0.002), { domain: [0.002, 0.005], ticks: [0.002, 0.005] });
+  for (const [lo, hi] of [[0.0031, 0.0091], [0.37, 41], [2e-6, 3e-6], [1.01, 1.02], [0.004, 9000]]) {
+    const { domain, ticks } = logAxis(lo, hi);
+    assert.ok(domain[0] <= lo && domain[1] >= hi, `${lo}…${hi} within ${domain}`);
+    assert.equal(ticks[0], domain[0]);
+    assert.equal(ticks.at(-1), domain[1]);
+    for (const t of ticks) assert.match(tickLabel(t), /^(1|2|5)(0*|e-?\d+)$|^0\.0*(1|2|5)$/, `tick ${t} of ${lo}…${hi}`);
+  }
+});
+
+test('tooltips and strengths never read "-0"', () => {
+  assert.equal(tipNumber(-0), '0');
+  assert.equal(tipNumber(-0.0000001), '-1e-7'); // a real value, however small, is shown as one
+  assert.equal(tipNumber(0.012345), '0.0123');
+  assert.equal(tipNumber(-1.5), '-1.5');
+  const negZero = { ...report, directions: [{ ...report.directions[0], curves: { ...report.directions[0].curves, strengths: [-1, -0, 1] }, pathLengthCurve: { ...report.directions[0].pathLengthCurve, strengths: [-1, -0, 1] } }] } as unknown as AuditWire;
+  assert.ok(pathRows(negZero, 'bold').every((r) => !Object.is(r.strength, -0)));
+  assert.ok(curveRows(negZero, 'bold').every((r) => !Object.is(r.strength, -0)));
 });
 
 /** The fixture audited with a calibrated instrument: hue set aside as within it, a composite reported but not judged. */

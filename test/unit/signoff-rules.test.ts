@@ -6,7 +6,7 @@ import { test } from 'node:test';
 import assert from 'node:assert/strict';
 import fc from 'fast-check';
 import {
-  MIN_REASON_LENGTH, MIN_SIGNOFF_PROBES, REVIEW_STATUSES, approvalGate, checkTransition, checkUse, transitions, useViolations,
+  MIN_REASON_LENGTH, MIN_SIGNOFF_PROBES, REASON_RULE, REVIEW_STATUSES, approvalGate, checkTransition, checkUse, reasonProblem, transitions, useViolations,
   type AuditRecord, type Gate, type GateState,
 } from '../../app/core/signoff-rules.ts';
 
@@ -42,6 +42,9 @@ test('"approving a failed, needs-review or unaudited direction needs an explicit
   assert.throws(() => checkTransition('x', 'draft', 'approved', failed, { reason: 'ok' }), /at least 12 characters/);
   assert.throws(() => checkTransition('x', 'draft', 'approved', failed, { reason: '            ' }), /written reason/);
   assert.deepEqual(checkTransition('x', 'draft', 'approved', failed, { reason: 'art direction accepts the darker backdrop' }), { override: true });
+  // Twelve characters are not enough on their own: a reason has two words and some variety.
+  assert.throws(() => checkTransition('x', 'draft', 'approved', failed, { reason: 'aaaaaaaaaaaa' }), /the reason is one word/);
+  assert.throws(() => checkTransition('x', 'draft', 'approved', failed, { reason: 'aaaaaa aaaaaa' }), /the reason repeats 1 letter/);
   const unaudited = approvalGate(dir, []);
   assert.throws(() => checkTransition('x', 'in-review', 'approved', unaudited, null), /never audited/);
   // A passing direction is approved without an override (and a reason given anyway is not an override).
@@ -81,8 +84,28 @@ test('"unapproved or rejected directions and strengths outside the safe range ar
   assert.deepEqual(v.map((x) => `${x.direction}:${x.kind}`), ['crest:outside-safe-range', 'hue:rejected', 'outline:unapproved']);
   assert.throws(() => checkUse(v, null, 'force it with a reason'), /refusing setting 'big': crest=2.5 is outside its audited safe range -2…2 σ; setting 'big': hue was rejected/);
   assert.throws(() => checkUse(v, { reason: 'short' }, 'x'), new RegExp(`at least ${MIN_REASON_LENGTH} characters`));
+  assert.throws(() => checkUse(v, { reason: 'aaaaaaaaaaaa' }, 'x'), (e: Error & { code?: string }) => e.code === 'use-refused' && /needs a written reason: the reason is one word/.test(e.message));
   const ok = checkUse(v, { reason: '  client asked for the extreme  ' }, 'x');
   assert.equal(ok.reason, 'client asked for the extreme');
   assert.equal(ok.forced.length, 3);
   assert.throws(() => useViolations([{ label: 'a', strengths: { nope: 1 } }], dirs), /unknown direction 'nope'/);
+});
+
+test('a written reason: at least 12 characters, two words and five different letters or digits, and the rule says so', () => {
+  assert.equal(MIN_REASON_LENGTH, 12);
+  assert.match(REASON_RULE, /at least 12 characters in 2 or more words, with at least 5 different letters or digits/);
+  for (const good of ['needed for the trailer', 'art director ok’d it', 'test: unaudited direction', 'Änderung für den Kunden', '  client asked for the extreme  ']) assert.equal(reasonProblem(good), null, good);
+  const bad: [string, RegExp][] = [
+    ['', /no reason given/],
+    ['ok', /is 2 characters/],
+    ['aaaaaaaaaaaa', /one word/],
+    ['approved_by_the_director', /one word/],
+    ['aaaaaa aaaaaa', /repeats 1 letter/],
+    ['ok ok ok ok ok', /repeats 2 letters/],
+    ['ab ab ab ab ab ab', /repeats 2 letters/],
+    ['!!! ??? ... ---', /one word/],
+  ];
+  for (const [text, why] of bad) assert.match(reasonProblem(text) ?? '', why, text);
+  // Property: whatever passes is at least 12 characters long once trimmed and has two words.
+  fc.assert(fc.property(fc.string({ maxLength: 40 }), (t) => reasonProblem(t) !== null || (t.trim().length >= 12 && t.trim().split(/\s+/).length >= 2)));
 });

@@ -105,7 +105,7 @@ export function curveRows(report: AuditWire, direction: string, attributes?: str
   return names.flatMap((attribute) => {
     const c = d.curves.attributes[attribute];
     if (!c) return [];
-    return d.curves.strengths.map((strength, i) => ({ attribute, strength, mean: c.mean[i], low: c.low[i], high: c.high[i] }));
+    return d.curves.strengths.map((strength, i) => ({ attribute, strength: strengthValue(strength), mean: c.mean[i], low: c.low[i], high: c.high[i] }));
   });
 }
 
@@ -121,7 +121,7 @@ export function pathRows(report: AuditWire, direction: string): CurveRow[] {
   const d = report.directions.find((x) => x.name === direction);
   if (!d) return [];
   const c = d.pathLengthCurve;
-  return c.strengths.map((strength, i) => ({ attribute: 'path length', strength, mean: c.mean[i], low: c.low[i], high: c.high[i] }));
+  return c.strengths.map((strength, i) => ({ attribute: 'path length', strength: strengthValue(strength), mean: c.mean[i], low: c.low[i], high: c.high[i] }));
 }
 
 /**
@@ -145,14 +145,26 @@ export function heatDomain(cells: HeatCell[]): [number, number] {
 }
 
 /**
- * One colour per attribute, the same in every chart and caption of a report: picked by the
- * attribute's place in the report's attribute list, so hiding some never recolours the others.
- * Our own twelve hues, spaced for the dark slate background; more attributes repeat them.
+ * Attribute colours: the Okabe–Ito qualitative palette (Okabe & Ito 2008, "Color Universal
+ * Design", also Wong 2011, Nature Methods 8:441), told apart by viewers with the common colour
+ * vision deficiencies. Its black is left out (invisible on the dark slate background); the other
+ * seven all reach 3:1 contrast against it.
  */
-export const ATTRIBUTE_PALETTE = ['#4fb3a1', '#e0a84a', '#8fa8ff', '#e26d5c', '#b58ad9', '#7cc36e', '#e88bb8', '#57b8e0', '#d4c45a', '#c98f5f', '#9aa7b4', '#5fd1c0'];
+export const ATTRIBUTE_PALETTE = ['#e69f00', '#56b4e9', '#009e73', '#f0e442', '#0072b2', '#d55e00', '#cc79a7'];
 
-export function attributeColors(report: AuditWire): Record<string, string> {
-  return Object.fromEntries(report.attributes.map((a, i) => [a.name, ATTRIBUTE_PALETTE[i % ATTRIBUTE_PALETTE.length]]));
+/**
+ * One colour per attribute for the charts and captions of one direction's view. A report can
+ * name more attributes than any palette has clearly distinct colours, so colours go first to the
+ * attributes that are drawn together: the focused direction's target, then the attributes it
+ * moves most (the ones its curves and worst probes show), then the rest in the report's order.
+ * Deterministic: the same report and focus always give the same colours, and the first
+ * ATTRIBUTE_PALETTE.length of the view never share one.
+ */
+export function attributeColors(report: AuditWire, focus: string | null = null): Record<string, string> {
+  const all = report.attributes.map((a) => a.name);
+  const first = focus ? leadingAttributes(report, focus, all.length).filter((a) => all.includes(a)) : [];
+  const order = [...first, ...all.filter((a) => !first.includes(a))];
+  return Object.fromEntries(order.map((a, i) => [a, ATTRIBUTE_PALETTE[i % ATTRIBUTE_PALETTE.length]]));
 }
 
 /** Tick labels that read as numbers with their unit, on linear and log axes alike (no "1e-3" runs). */
@@ -163,21 +175,51 @@ export function tickLabel(v: number): string {
   return String(Number(v.toPrecision(2)));
 }
 
-/**
- * Tick values for a log axis from lo to hi, every one to be labelled: 1, 2 and 5 × 10^k inside
- * the range, thinned to powers of ten when there would be more than `max`; the range's own ends
- * (rounded to two digits) when no such value falls inside.
- */
-export function logTicks(lo: number, hi: number, max = 7): number[] {
-  if (!(lo > 0) || !(hi >= lo)) return [];
-  const out: number[] = [];
-  for (let k = Math.floor(Math.log10(lo)); k <= Math.ceil(Math.log10(hi)); k++)
-    for (const m of [1, 2, 5]) {
-      const v = Number((m * 10 ** k).toPrecision(12));
-      if (v >= lo && v <= hi) out.push(v);
-    }
-  const thinned = out.length > max ? out.filter((v) => Math.abs(Math.log10(v) - Math.round(Math.log10(v))) < 1e-9) : out;
-  return thinned.length >= 2 ? thinned : [...new Set([Number(lo.toPrecision(2)), ...thinned, Number(hi.toPrecision(2))])].sort((a, b) => a - b);
+const STEPS = [1, 2, 5];
+const round12 = (v: number) => Number(v.toPrecision(12));
+/** The largest 1, 2 or 5 × 10^k at or below v (v > 0). */
+function niceBelow(v: number): number {
+  const k = Math.floor(Math.log10(v));
+  for (const m of [...STEPS].reverse()) if (round12(m * 10 ** k) <= v * (1 + 1e-12)) return round12(m * 10 ** k);
+  return round12(10 ** k);
 }
+/** The smallest 1, 2 or 5 × 10^k at or above v (v > 0). */
+function niceAbove(v: number): number {
+  const k = Math.floor(Math.log10(v));
+  for (const m of [...STEPS, 10]) if (round12(m * 10 ** k) >= v * (1 - 1e-12)) return round12(m * 10 ** k);
+  return round12(10 ** (k + 1));
+}
+
+/**
+ * A log axis that covers lo…hi with every tick a nice value: the domain runs from the 1-2-5
+ * value at or below lo to the one at or above hi, and the ticks are the 1, 2 and 5 × 10^k inside
+ * it (both ends included, so never an odd end such as 0.0091); more than `max` thin to powers of
+ * ten, with the domain widened to powers of ten so its ends stay labelled.
+ */
+export function logAxis(lo: number, hi: number, max = 7): { domain: [number, number]; ticks: number[] } {
+  if (!(lo > 0) || !(hi >= lo) || !Number.isFinite(hi)) return { domain: [1, 10], ticks: [1, 2, 5, 10] };
+  const a = niceBelow(lo);
+  const b = Math.max(niceAbove(hi), niceAbove(a * 1.000001));
+  const ticks: number[] = [];
+  for (let k = Math.floor(Math.log10(a)); k <= Math.ceil(Math.log10(b)); k++)
+    for (const m of STEPS) {
+      const v = round12(m * 10 ** k);
+      if (v >= a && v <= b) ticks.push(v);
+    }
+  if (ticks.length <= max) return { domain: [a, b], ticks };
+  const [p, q] = [Math.floor(Math.log10(a)), Math.ceil(Math.log10(b))];
+  const powers = Array.from({ length: q - p + 1 }, (_, i) => round12(10 ** (p + i)));
+  return { domain: [powers[0], powers.at(-1)!], ticks: powers };
+}
+
+/** A value in a chart's tooltip: three significant digits, and never "-0" (a negated zero or a rounding of a tiny negative). */
+export function tipNumber(v: number): string {
+  if (!Number.isFinite(v)) return String(v);
+  const r = Number(v.toPrecision(3));
+  return r === 0 ? '0' : String(r);
+}
+
+/** A strength as a chart shows it: −0 (from a negated grid) reads as 0 in ticks and tooltips. */
+export const strengthValue = (v: number) => (Object.is(v, -0) ? 0 : v);
 
 export const VERDICT_LABEL: Record<string, string> = { pass: 'Pass', review: 'Needs review', fail: 'Fail', 'no-measure': 'No measure' };

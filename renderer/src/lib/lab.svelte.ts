@@ -1,10 +1,12 @@
 // State and intents of the lab screens: project, discovery, audit, repair and sign-off. Works
 // through the same engine client as the workbench (Studio) and keeps Studio's direction list
 // in step with the engine's.
-import { APP_NULL_DIRECTIONS, PROBE_LIMITS, type AuditWire, type DefinedAttributeInfo, type DirectionInfo, type EventData, type LockHolderWire, type Params, type Result, type VariantDraft, type WireImage } from '../../../app/protocol/messages.ts';
+import { APP_NULL_DIRECTIONS, type AuditWire, type DefinedAttributeInfo, type DirectionInfo, type EventData, type LockHolderWire, type Params, type Result, type VariantDraft, type WireImage } from '../../../app/protocol/messages.ts';
 import { EngineRequestError } from './engine.ts';
 import { desktop } from './bridge.ts';
 import { reportHtml } from './report.ts';
+import { parseSeedList, probesProblem, seedListProblem, wholeProblem } from './fields.ts';
+import { beforeResults } from './audit-rows.ts';
 import type { Studio } from './studio.svelte.ts';
 
 export type View = 'workbench' | 'discover' | 'audit' | 'signoff' | 'variants';
@@ -52,37 +54,14 @@ function sessionId(): string {
   return id;
 }
 
-/** The message for a probe count, or null when it is acceptable (same limits as the engine's schema). */
-export function probesProblem(value: unknown, pinned: number): string | null {
-  if (typeof value !== 'number' || !Number.isFinite(value)) return 'Enter a whole number of probes.';
-  if (!Number.isInteger(value)) return 'Probes must be a whole number.';
-  if (value < PROBE_LIMITS.min) return `Probes cannot be negative (0–${PROBE_LIMITS.max.toLocaleString()}).`;
-  if (value > PROBE_LIMITS.max) return `At most ${PROBE_LIMITS.max.toLocaleString()} probes.`;
-  if (value + pinned < PROBE_LIMITS.minTotal) return `An audit needs at least ${PROBE_LIMITS.minTotal} probes in all (random plus ${pinned} pinned seeds and references).`;
-  return null;
-}
-
-/** The message for a whole number field with inclusive limits, or null. */
-export function wholeProblem(value: unknown, min: number, max: number, what: string): string | null {
-  if (typeof value !== 'number' || !Number.isFinite(value) || !Number.isInteger(value)) return `${what}: enter a whole number from ${min} to ${max}.`;
-  if (value < min || value > max) return `${what} must be from ${min} to ${max}.`;
-  return null;
-}
-
-/** The message for a seed list like "0-7,12", or null. */
-export function seedListProblem(text: string): string | null {
-  try {
-    parseSeedList(text);
-    return null;
-  } catch (err) {
-    return (err as Error).message;
-  }
-}
+export { parseSeedList, probesProblem, seedListProblem, wholeProblem } from './fields.ts';
 
 export class Lab {
   view = $state<View>('workbench');
   project = $state.raw<ProjectInfo | null>(null);
   reviewer = $state(globalThis.localStorage?.getItem(REVIEWER_KEY) ?? '');
+  /** A sign-off step was asked for without a reviewer name (said beside the field until one is typed). */
+  reviewerMissing = $state(false);
   /** Recently opened project folders, newest first. */
   recent = $state<string[]>(readRecent());
   /** Recently opened generators (model cards or .onnx), newest first. */
@@ -109,6 +88,8 @@ export class Lab {
   auditProgress = $state<JobProgress | null>(null);
   report = $state.raw<AuditWire | null>(null);
   previousReport = $state.raw<AuditWire | null>(null);
+  /** Each direction's earlier result, shown as "before" on its row (only where there is an earlier audit of it). */
+  before = $state.raw<Record<string, AuditWire['directions'][number]>>({});
   thumbnails = $state.raw<Thumb[]>([]);
   /** Each direction's change map (PNG of the mean per-pixel ΔE00 at +reference), from the last audit. */
   changeMaps = $state.raw<ChangeMapPng[]>([]);
@@ -129,6 +110,8 @@ export class Lab {
   #variantRequest = 0;
   /** The engine's refusal of the last variant render (shown beside the button), and a reason to force it. */
   variantError = $state<string | null>(null);
+  /** The last variant render's failure that is not a use-rule refusal (nothing to force). */
+  variantFailure = $state<string | null>(null);
   forceReason = $state('');
 
   /** A worst probe shown large (rendered at full size on request). */
@@ -183,37 +166,53 @@ export class Lab {
   }
 
   async openProject(path: string, create: boolean): Promise<boolean> {
-    const ok = await this.#guard(create ? `Creating project ${path}` : `Opening project ${path}`, async () => {
-      const p = await this.engine.request('project.open', { path, create, session: this.session });
-      this.project = p;
-      this.readOnly = p.readOnly;
-      this.lockHolder = p.lockHolder;
-      globalThis.localStorage?.setItem(LAST_PROJECT_KEY, path);
-      this.recent = [path, ...this.recent.filter((r) => r !== path)].slice(0, RECENT_LIMIT);
-      globalThis.localStorage?.setItem(RECENT_KEY, JSON.stringify(this.recent));
-      // A read-only window saves nothing: the holder's autosave is the one that counts.
-      this.studio.onAutosave = p.readOnly ? null : (ui) => this.engine.request('project.saveUi', { ...ui, variants: this.variantDraft(), auditProbes: this.probesProblem ? undefined : this.probes }).then((r) => r.savedAt);
-      this.studio.onRecover = () => this.openProject(path, false).then(() => undefined);
-      await this.refreshDirections(p.directions);
-      this.defined = (await this.engine.request('attributes.list', {})).attributes;
-      this.auditReferences = [];
-      if (p.ui) {
-        this.studio.restoreUi(p.ui);
-        if (p.ui.variants) this.#restoreVariants(p.ui.variants);
-        if (p.ui.auditProbes !== undefined) this.probes = p.ui.auditProbes;
-      }
-      await this.loadAuditHistory();
-      // Candidates left unkept in the project come back until they are kept or discarded.
-      this.candidates = [...this.candidates.filter((c) => !p.candidates.some((n) => n.direction.id === c.direction.id)), ...p.candidates];
-      this.#keepLock();
-      if (p.readOnly) {
-        const h = p.lockHolder;
-        this.studio.banner = { kind: 'warning', text: `Opened read-only: another window has this project open${h ? ` (process ${h.pid} on ${h.host}, active ${new Date(h.at).toLocaleString()})` : ''}. You can look around; changes are not saved here.` };
-      } else if (!p.generatorMatches) this.studio.banner = { kind: 'warning', text: `This project was made with another generator (fingerprint ${p.generatorFingerprint?.slice(0, 12)}…). Its directions and sign-offs may not hold for ${this.studio.model?.name}.` };
-      else if (p.refused?.length) this.studio.banner = { kind: 'warning', text: `Opened with ${p.refused.length} entr${p.refused.length === 1 ? 'y' : 'ies'} refused: ${p.refused.join('; ')}` };
-    });
+    const ok = await this.#guard(create ? `Creating project ${path}` : `Opening project ${path}`, () => this.#openProject(path, create));
     if (ok) await Promise.all([this.studio.refreshGrid(), this.studio.requestPreview()]);
     return ok;
+  }
+
+  /** As openProject, for a dialog that shows a refusal beside the path it names: the message, or null when opened. */
+  async openProjectFromDialog(path: string, create: boolean): Promise<string | null> {
+    this.studio.busy = create ? `Creating project ${path}` : `Opening project ${path}`;
+    try {
+      await this.#openProject(path, create);
+    } catch (err) {
+      return (err as Error).message;
+    } finally {
+      this.studio.busy = null;
+    }
+    await Promise.all([this.studio.refreshGrid(), this.studio.requestPreview()]);
+    return null;
+  }
+
+  async #openProject(path: string, create: boolean): Promise<void> {
+    const p = await this.engine.request('project.open', { path, create, session: this.session });
+    this.project = p;
+    this.readOnly = p.readOnly;
+    this.lockHolder = p.lockHolder;
+    globalThis.localStorage?.setItem(LAST_PROJECT_KEY, path);
+    this.recent = [path, ...this.recent.filter((r) => r !== path)].slice(0, RECENT_LIMIT);
+    globalThis.localStorage?.setItem(RECENT_KEY, JSON.stringify(this.recent));
+    // A read-only window saves nothing: the holder's autosave is the one that counts.
+    this.studio.onAutosave = p.readOnly ? null : (ui) => this.engine.request('project.saveUi', { ...ui, variants: this.variantDraft(), auditProbes: this.probesProblem ? undefined : this.probes }).then((r) => r.savedAt);
+    this.studio.onRecover = () => this.openProject(path, false).then(() => undefined);
+    await this.refreshDirections(p.directions);
+    this.defined = (await this.engine.request('attributes.list', {})).attributes;
+    this.auditReferences = [];
+    if (p.ui) {
+      this.studio.restoreUi(p.ui);
+      if (p.ui.variants) this.#restoreVariants(p.ui.variants);
+      if (p.ui.auditProbes !== undefined) this.probes = p.ui.auditProbes;
+    }
+    await this.loadAuditHistory();
+    // Candidates left unkept in the project come back until they are kept or discarded.
+    this.candidates = [...this.candidates.filter((c) => !p.candidates.some((n) => n.direction.id === c.direction.id)), ...p.candidates];
+    this.#keepLock();
+    if (p.readOnly) {
+      const h = p.lockHolder;
+      this.studio.banner = { kind: 'warning', text: `Opened read-only: another window has this project open${h ? ` (process ${h.pid} on ${h.host}, active ${new Date(h.at).toLocaleString()})` : ''}. You can look around; changes are not saved here.` };
+    } else if (!p.generatorMatches) this.studio.banner = { kind: 'warning', text: `This project was made with another generator (fingerprint ${p.generatorFingerprint?.slice(0, 12)}…). Its directions and sign-offs may not hold for ${this.studio.model?.name}.` };
+    else if (p.refused?.length) this.studio.banner = { kind: 'warning', text: `Opened with ${p.refused.length} entr${p.refused.length === 1 ? 'y' : 'ies'} refused: ${p.refused.join('; ')}` };
   }
 
   rememberGenerator(path: string): void {
@@ -240,6 +239,7 @@ export class Lab {
     this.auditFiles = h.files;
     if (!h.report) return;
     if (this.report) this.previousReport = this.report;
+    this.before = beforeResults(this.before, this.report, h.report);
     this.report = h.report;
     this.thumbnails = h.thumbnails;
     this.changeMaps = h.changeMaps;
@@ -391,7 +391,9 @@ export class Lab {
         this.focus = r.report.directions.find((d) => d.verdict !== 'pass')?.name ?? r.report.directions[0]?.name ?? null;
       } else {
         if (this.report) this.previousReport = this.report;
-        this.report = mergeReports(this.report, r.report);
+        const merged = mergeReports(this.report, r.report);
+        this.before = beforeResults(this.before, this.report, merged);
+        this.report = merged;
         this.thumbnails = [...this.thumbnails.filter((t) => !r.report.directions.some((d) => d.name === t.direction)), ...r.thumbnails];
         this.changeMaps = [...this.changeMaps.filter((c) => !r.report.directions.some((d) => d.name === c.direction)), ...r.changeMaps];
         this.focus = r.report.directions.find((d) => d.verdict !== 'pass')?.name ?? r.report.directions[0]?.name ?? null;
@@ -420,11 +422,14 @@ export class Lab {
       this.auditSelection = [d.id, r.direction.id];
     });
     this.repairing = false;
+    const auditing = this.studio.banner;
     if (this.auditSelection.length === 2) {
       await this.runAudit();
       const child = this.studio.directions.find((x) => x.id === this.auditSelection[1]);
       if (child) await this.loadRepairImages(directionName, child.name);
     }
+    // "…Auditing it beside the original…" is done now (a message that came since stays).
+    if (auditing && this.studio.banner === auditing) this.studio.banner = null;
   }
 
   /** Renders the parent's worst probes with the original and with the repaired direction, at the same strength. */
@@ -457,11 +462,18 @@ export class Lab {
     });
   }
 
-  async renameDirection(direction: DirectionInfo, name: string): Promise<boolean> {
-    return this.#guard(`Renaming ${direction.name}`, async () => {
+  /** Renames a direction; the engine's refusal comes back as text for the screen to show beside the control (null when renamed). */
+  async renameDirection(direction: DirectionInfo, name: string): Promise<string | null> {
+    this.studio.busy = `Renaming ${direction.name}`;
+    try {
       const r = await this.engine.request('directions.rename', { id: direction.id, name });
       this.studio.directions = this.studio.directions.map((d) => (d.id === r.id ? r : d));
-    });
+      return null;
+    } catch (err) {
+      return (err as Error).message;
+    } finally {
+      this.studio.busy = null;
+    }
   }
 
   async deleteDirection(direction: DirectionInfo): Promise<void> {
@@ -474,10 +486,12 @@ export class Lab {
 
   /** Records a sign-off step; `override` is the written reason when the audits do not support it. */
   async review(direction: DirectionInfo, status: Status, note: string, override?: string): Promise<boolean> {
+    // Asked beside the reviewer field (not in the banner, which would outlive it); gone once a name is there.
     if (!this.reviewer.trim()) {
-      this.studio.banner = { kind: 'warning', text: 'Enter your name as reviewer first; the review log records who signed off.' };
+      this.reviewerMissing = true;
       return false;
     }
+    this.reviewerMissing = false;
     globalThis.localStorage?.setItem(REVIEWER_KEY, this.reviewer.trim());
     return this.#guard(`Recording ${status} for ${direction.name}`, async () => {
       const r = await this.engine.request('project.review', { direction: direction.id, status, reviewer: this.reviewer.trim(), note, ...(override?.trim() ? { override: override.trim() } : {}) });
@@ -536,6 +550,7 @@ export class Lab {
     const seeds = parseSeedList(this.variantSeeds);
     this.studio.scheduleSave();
     this.variantError = null;
+    this.variantFailure = null;
     this.variantProgress = { done: 0, total: 1, label: 'starting' };
     this.studio.busy = 'Rendering the variant set';
     try {
@@ -549,8 +564,10 @@ export class Lab {
       this.contactSheet = this.thumbUrl(r.contactSheet);
       this.variantSummary = `${r.rendered} rendered, ${r.reused} kept from an earlier run, in ${r.out}${force ? ` (forced: ${this.forceReason})` : ''}`;
     } catch (err) {
-      // Refusals by the use rules are shown beside the button, with the way to force them.
-      this.variantError = (err as Error).message;
+      // Refusals by the use rules are shown beside the button with the way to force them; any
+      // other refusal or failure is shown there too, but nothing about it can be forced.
+      if (err instanceof EngineRequestError && err.code === 'use-refused') this.variantError = (err as Error).message;
+      else this.variantFailure = `The variant set was not rendered: ${(err as Error).message}`;
     } finally {
       this.#variantRequest = 0;
       this.variantProgress = null;
@@ -629,19 +646,4 @@ export function mergeReports(older: AuditWire | null, newer: AuditWire): AuditWi
   const names = new Set(newer.directions.map((d) => d.name));
   const attributes = [...newer.attributes, ...older.attributes.filter((a) => !newer.attributes.some((b) => b.name === a.name))];
   return { ...newer, attributes, directions: [...older.directions.filter((d) => !names.has(d.name)), ...newer.directions] };
-}
-
-/** "0-7,12" → [0..7, 12]. */
-export function parseSeedList(text: string): number[] {
-  const out: number[] = [];
-  for (const part of text.split(',').map((x) => x.trim()).filter(Boolean)) {
-    const m = /^(\d+)(?:-(\d+))?$/.exec(part);
-    if (!m) throw new Error(`'${part}' is not a seed or a range like 0-7`);
-    const a = Number(m[1]);
-    const b = m[2] === undefined ? a : Number(m[2]);
-    if (b < a || b - a > 10_000) throw new Error(`seed range '${part}' is backwards or too long`);
-    for (let s = a; s <= b; s++) out.push(s);
-  }
-  if (!out.length) throw new Error('no seeds given');
-  return out;
 }

@@ -5,6 +5,7 @@
 import type { ReferenceInfo, Result, WireImage } from '../../../app/protocol/messages.ts';
 import { EngineRequestError } from './engine.ts';
 import type { Studio } from './studio.svelte.ts';
+import { budgetProblem } from './fields.ts';
 
 type Found = Extract<Result<'locate.run'>, { cancelled: false }>;
 
@@ -16,7 +17,11 @@ export class Locate {
   open = $state(false);
   fileName = $state<string | null>(null);
   bytes = $state.raw<Uint8Array | null>(null);
-  budget = $state(3000);
+  /** The evaluation budget as typed; checked beside the field, sent only when valid. */
+  budgetText = $state('3000');
+  /** What was typed as a number (NaN when it is not one; the check below names the problem). */
+  budget = $derived(/^\s*-?\d+(\.\d+)?(e\d+)?\s*$/i.test(this.budgetText) ? Number(this.budgetText) : NaN);
+  budgetProblem = $derived(budgetProblem(this.budget));
   space = $state<'w' | 'w+'>('w');
   running = $state(false);
   progress = $state<{ done: number; total: number; ssim: number; deltaE: number } | null>(null);
@@ -62,7 +67,7 @@ export class Locate {
   }
 
   async run(): Promise<void> {
-    if (!this.bytes || !this.fileName || this.running) return;
+    if (!this.bytes || !this.fileName || this.running || this.budgetProblem) return;
     this.running = true;
     this.cancelled = false;
     this.result = null;

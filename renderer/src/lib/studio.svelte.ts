@@ -4,8 +4,9 @@ import type { DirectionInfo, ModelInfo, WireImage } from '../../../app/protocol/
 import { EngineClient, EngineRequestError } from './engine.ts';
 import { History } from './history.ts';
 import { desktop } from './bridge.ts';
+import { GRID_PAGE, LAST_PAGE_START, MAX_SEED, gridPageStart } from './fields.ts';
 
-export const GRID_PAGE = 24;
+export { GRID_PAGE, MAX_SEED } from './fields.ts';
 export const STRENGTH_LIMIT = 5;
 
 export interface Snapshot {
@@ -192,6 +193,8 @@ export class Studio {
   async refreshGrid(): Promise<void> {
     if (!this.model) return;
     this.gridBusy = true;
+    // Never ask for a page the engine's seed range does not hold.
+    this.gridStart = gridPageStart(this.gridStart);
     const seeds = Array.from({ length: GRID_PAGE }, (_, i) => this.gridStart + i);
     try {
       const r = await this.engine.request('grid.render', { seeds, psi: this.psi });
@@ -258,7 +261,7 @@ export class Studio {
         return;
       }
     }
-    if (seed === this.seed || seed < 0) return;
+    if (seed === this.seed || !Number.isInteger(seed) || seed < 0 || seed > MAX_SEED) return;
     const before = this.snapshot();
     this.seed = seed;
     this.#record(`pick seed ${seed}`, before, this.snapshot());
@@ -350,8 +353,20 @@ export class Studio {
   }
 
   async pageGrid(delta: number): Promise<void> {
-    this.gridStart = Math.max(0, this.gridStart + delta * GRID_PAGE);
+    this.gridStart = Math.min(LAST_PAGE_START, Math.max(0, this.gridStart + delta * GRID_PAGE));
     await this.refreshGrid();
+  }
+
+  /** "Go to seed": shows the seed's grid page and picks it (callers check it with seedProblem first). */
+  async goToSeed(seed: number): Promise<void> {
+    if (!Number.isInteger(seed) || seed < 0 || seed > MAX_SEED) return;
+    this.gridStart = gridPageStart(seed);
+    this.selectSeed(seed);
+    await this.refreshGrid();
+  }
+
+  get lastPage(): boolean {
+    return this.gridStart >= LAST_PAGE_START;
   }
 
   /** Client-side coalescing on top of the engine's: at most one preview in flight. */
