@@ -8,8 +8,9 @@
 //    an explicit output option (CLI, web shell), and an existing file is replaced only when the
 //    user said so.
 // Errors name the file and the rule; they never quote the file's content.
-import { closeSync, constants, fstatSync, lstatSync, mkdirSync, openSync, readSync, realpathSync, statSync, type Stats } from 'node:fs';
-import { dirname, isAbsolute, relative, resolve, sep } from 'node:path';
+import { closeSync, constants, existsSync, fstatSync, lstatSync, mkdirSync, openSync, readSync, realpathSync, statSync, type Stats } from 'node:fs';
+import { basename, dirname, isAbsolute, join, relative, resolve, sep } from 'node:path';
+import { homedir, tmpdir } from 'node:os';
 import { PlumblineError } from './errors.ts';
 
 /** Size caps for reads, in bytes. Stated in docs/model-card.md; change them here. */
@@ -142,6 +143,8 @@ export function projectFile(projectDir: string, rel: string): string {
 export function chosenOutputFile(path: string, what: string, options: { overwrite?: boolean; relativeTo?: string } = {}): string {
   if (!isAbsolute(path) && !options.relativeTo) throw new PlumblineError('path-refused', `${path}: ${what} must be an absolute path chosen by the user (a dialog or an explicit output option)`, { file: path });
   const target = resolve(options.relativeTo ?? '/', path);
+  const system = systemFolderProblem(target);
+  if (system) throw new PlumblineError('path-refused', `${system}: ${what} is not written into the operating system's folders; choose a folder in your home or on a project drive`, { file: target });
   const parent = dirname(target);
   let ps: Stats;
   try {
@@ -167,6 +170,8 @@ export function chosenOutputFile(path: string, what: string, options: { overwrit
 export function chosenOutputFolder(path: string, what: string, options: { relativeTo?: string } = {}): string {
   if (!isAbsolute(path) && !options.relativeTo) throw new PlumblineError('path-refused', `${path}: ${what} must be an absolute path chosen by the user`, { file: path });
   const target = resolve(options.relativeTo ?? '/', path);
+  const system = systemFolderProblem(target);
+  if (system) throw new PlumblineError('path-refused', `${system}: ${what} is not written into the operating system's folders; choose a folder in your home or on a project drive`, { file: target });
   try {
     const s = statSync(target);
     if (!s.isDirectory()) throw new PlumblineError('not-a-file', `${target}: ${what} is ${s.isFile() ? 'a file' : kindOf(s)}, not a folder`, { file: target });
@@ -175,4 +180,54 @@ export function chosenOutputFolder(path: string, what: string, options: { relati
     mkdirSync(target, { recursive: true });
   }
   return realpathSync(target);
+}
+
+/**
+ * Folders no project may be made in, and no output written to, in or under: the operating system's own. Paths inside the
+ * user's home or the temporary folder are allowed even where those live under one of these (macOS
+ * keeps temporary folders under /var). From the Filesystem Hierarchy Standard 3.0 (Linux), Apple's
+ * "File System Programming Guide" (macOS) and Windows' known folders.
+ */
+export const SYSTEM_FOLDERS = [
+  '/', '/bin', '/boot', '/dev', '/etc', '/lib', '/lib32', '/lib64', '/libx32', '/opt', '/proc', '/root', '/run', '/sbin', '/srv', '/sys', '/usr', '/var', '/snap',
+  '/System', '/Library', '/Applications', '/private', '/cores', '/Volumes',
+  'C:\\Windows', 'C:\\Program Files', 'C:\\Program Files (x86)', 'C:\\ProgramData',
+];
+
+/** Whether `path` is `root` or lies under it; a filesystem root ('/', 'C:\\') matches only itself. */
+const within = (path: string, root: string) => path === root || (dirname(root) !== root && path.startsWith(root + sep));
+
+/** The real path of `path`'s nearest existing ancestor joined with the rest (symlinks resolved). */
+function realish(path: string): string {
+  let head = path;
+  const rest: string[] = [];
+  while (!existsSync(head) && dirname(head) !== head) {
+    rest.unshift(basename(head));
+    head = dirname(head);
+  }
+  try {
+    return join(realpathSync(head), ...rest);
+  } catch {
+    return path;
+  }
+}
+
+const safeRoots = () => [homedir(), tmpdir()].map((r) => realish(resolve(r)));
+
+/** Whether `path` (resolved, links followed) is the user's home or temporary folder itself. */
+export function isHomeOrTemp(path: string): boolean {
+  return safeRoots().includes(realish(resolve(path)));
+}
+
+/**
+ * Why nothing may be written at `path` because it is in or under a system folder, or null. Paths
+ * inside the user's home or the temporary folder are allowed even where those live under a system
+ * folder (macOS keeps temporary folders under /var; root's home is /root).
+ */
+export function systemFolderProblem(path: string): string | null {
+  const dir = resolve(path);
+  const real = realish(dir);
+  if (safeRoots().some((r) => within(real, r) && real !== r)) return null;
+  const system = SYSTEM_FOLDERS.find((f) => within(real, f) || within(dir, f));
+  return system ? `${dir} is ${real === system || dir === system ? 'a system folder' : `inside the system folder ${system}`}` : null;
 }

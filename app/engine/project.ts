@@ -10,13 +10,13 @@
 // A new project is made only in a folder that does not exist yet or is empty, and never in or
 // under a system folder (newProjectFolderProblem); a second window or tab on a locked project
 // gets a read-only Project whose writes are refused.
-import { appendFileSync, closeSync, existsSync, fsyncSync, mkdirSync, openSync, readFileSync, readdirSync, realpathSync, renameSync, rmSync, statSync, writeFileSync } from 'node:fs';
-import { basename, dirname, join, resolve, sep } from 'node:path';
+import { appendFileSync, closeSync, existsSync, fsyncSync, mkdirSync, openSync, readFileSync, readdirSync, renameSync, rmSync, statSync, writeFileSync } from 'node:fs';
+import { basename, join, resolve } from 'node:path';
 import { createHash } from 'node:crypto';
-import { homedir, hostname, tmpdir } from 'node:os';
+import { hostname } from 'node:os';
 import { z } from 'zod';
 import { removeStaleTemps, writeFileAtomic } from '../core/atomic-write.ts';
-import { READ_LIMITS, projectFile, readRegularFile, readTextFile } from '../core/path-policy.ts';
+import { READ_LIMITS, isHomeOrTemp, projectFile, readRegularFile, readTextFile, systemFolderProblem } from '../core/path-policy.ts';
 import { requestSession } from './request-session.ts';
 import { directionNameKey, directionNameProblem } from '../protocol/names.ts';
 import { encodePng } from '../core/image.ts';
@@ -62,48 +62,15 @@ export function vectorHash(vector: Float32Array, layers: [number, number] | null
 const PROJECT_FOLDERS = ['', 'directions', 'audits', 'renders'];
 
 /**
- * Folders no project may be made in or under: the operating system's own. Paths inside the
- * user's home or the temporary folder are allowed even where those live under one of these (macOS
- * keeps temporary folders under /var). From the Filesystem Hierarchy Standard 3.0 (Linux), Apple's
- * "File System Programming Guide" (macOS) and Windows' known folders.
- */
-export const SYSTEM_FOLDERS = [
-  '/', '/bin', '/boot', '/dev', '/etc', '/lib', '/lib32', '/lib64', '/libx32', '/opt', '/proc', '/root', '/run', '/sbin', '/srv', '/sys', '/usr', '/var', '/snap',
-  '/System', '/Library', '/Applications', '/private', '/cores', '/Volumes',
-  'C:\\Windows', 'C:\\Program Files', 'C:\\Program Files (x86)', 'C:\\ProgramData',
-];
-
-/** Whether `path` is `root` or lies under it; a filesystem root ('/', 'C:\\') matches only itself. */
-const within = (path: string, root: string) => path === root || (dirname(root) !== root && path.startsWith(root + sep));
-
-/** The real path of `path`'s nearest existing ancestor joined with the rest (symlinks resolved). */
-function realish(path: string): string {
-  let head = path;
-  const rest: string[] = [];
-  while (!existsSync(head) && dirname(head) !== head) {
-    rest.unshift(basename(head));
-    head = dirname(head);
-  }
-  try {
-    return join(realpathSync(head), ...rest);
-  } catch {
-    return path;
-  }
-}
-
-/**
  * Why a new project may not be made at `path`, or null when it may: the folder must not exist
  * yet or be empty, must be a folder, and must not be in or under a system folder. Checks only;
  * writes nothing. (The engine-wide path policy for every write is a separate, wider module.)
  */
 export function newProjectFolderProblem(path: string): string | null {
   const dir = resolve(path);
-  const real = realish(dir);
-  const safeRoots = [homedir(), tmpdir()].map((r) => realish(resolve(r)));
-  const inSafe = safeRoots.some((r) => within(real, r) && real !== r);
-  const system = SYSTEM_FOLDERS.find((f) => within(real, f) || within(dir, f));
-  if (!inSafe && system) return `${dir} is ${real === system || dir === system ? 'a system folder' : `inside the system folder ${system}`}; choose a new or empty folder in your home or on a project drive`;
-  if (safeRoots.includes(real)) return `${dir} is your home or temporary folder itself; choose a new or empty folder inside it`;
+  const system = systemFolderProblem(dir);
+  if (system) return `${system}; choose a new or empty folder in your home or on a project drive`;
+  if (isHomeOrTemp(dir)) return `${dir} is your home or temporary folder itself; choose a new or empty folder inside it`;
   if (existsSync(dir)) {
     if (!statSync(dir).isDirectory()) return `${dir} is a file, not a folder`;
     const entries = readdirSync(dir);

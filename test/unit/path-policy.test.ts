@@ -6,7 +6,7 @@
 // resolution) to lie inside the folder.
 import { test } from 'node:test';
 import assert from 'node:assert/strict';
-import { existsSync, mkdirSync, readdirSync, symlinkSync, utimesSync, writeFileSync } from 'node:fs';
+import { existsSync, mkdirSync, readdirSync, realpathSync, symlinkSync, utimesSync, writeFileSync } from 'node:fs';
 import { join } from 'node:path';
 import { spawnSync } from 'node:child_process';
 import fc from 'fast-check';
@@ -95,6 +95,16 @@ test('outputs go only where the user chose; an existing file is replaced only wh
   assert.equal(chosenOutputFile('p.plpack', 'the pack', { relativeTo: dir }), join(dir, 'p.plpack'), 'the CLI resolves against its working folder');
   assert.equal(code(() => chosenOutputFolder(victim, 'the variant-set folder')), 'not-a-file');
   assert.equal(code(() => chosenOutputFolder('variants', 'the variant-set folder')), 'path-refused');
+  // Never into the operating system's folders (Filesystem Hierarchy Standard 3.0), checked before
+  // anything is created: the tryout's variant set landed in /etc/plumbline-variants.
+  for (const p of ['/etc/plumbline-variants', '/usr/share/plumbline', '/proc/x', '/']) {
+    assert.equal(code(() => chosenOutputFolder(p, 'the variant-set folder')), 'path-refused', p);
+  }
+  assert.equal(existsSync('/etc/plumbline-variants'), false);
+  assert.equal(code(() => chosenOutputFile('/etc/emblems.plpack', 'the pack')), 'path-refused');
+  assert.match(String((() => { try { chosenOutputFolder('/etc/plumbline-variants', 'the variant-set folder'); } catch (e) { return (e as Error).message; } })()), /^\/etc\/plumbline-variants is inside the system folder \/etc: the variant-set folder is not written/);
+  // Inside the temporary folder (and the home folder) outputs stay allowed.
+  assert.equal(chosenOutputFolder(join(dir, 'renders'), 'the variant-set folder'), realpathSync(join(dir, 'renders')));
 });
 
 test('errors name the file and never quote its content', async () => {
