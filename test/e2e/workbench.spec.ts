@@ -2,7 +2,7 @@
 // slider, see the preview and the readout change, undo back to the exact pixels.
 import { test, expect, type Page } from '@playwright/test';
 import { createHash } from 'node:crypto';
-import { mkdirSync, mkdtempSync, writeFileSync } from 'node:fs';
+import { existsSync, mkdirSync, mkdtempSync, writeFileSync } from 'node:fs';
 import { tmpdir } from 'node:os';
 import { join } from 'node:path';
 import { startShell } from './shell';
@@ -144,6 +144,14 @@ test('go to seed and variant seeds are checked where they are typed; the engine 
 
   // Variant sets: the same upper limit in the seeds field; a refusal no use rule made is not offered to force.
   await page.keyboard.press('Alt+5');
+  // No project is open here: the screen says nothing can be checked rather than implying a check.
+  await expect(page.getByTestId('variants-unchecked')).toContainText('No project is open: there is no sign-off or audited safe range to check');
+  // Outputs never go into the operating system's folders.
+  await page.getByLabel('Variant seeds').fill('0');
+  await page.getByLabel('Output folder').fill('/etc/plumbline-variants');
+  await page.getByRole('button', { name: 'Render variant set' }).click();
+  await expect(page.getByTestId('variant-failure')).toContainText('inside the system folder /etc', { timeout: 30_000 });
+  expect(existsSync('/etc/plumbline-variants')).toBe(false);
   await page.getByLabel('Variant seeds').fill('4294967296');
   await expect(page.getByText('seed 4294967296 is too large: seeds go up to 4294967279')).toBeVisible();
   await expect(page.getByRole('button', { name: 'Render variant set' })).toBeDisabled();
