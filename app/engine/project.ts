@@ -13,7 +13,7 @@
 import { appendFileSync, closeSync, existsSync, fsyncSync, mkdirSync, openSync, readFileSync, readdirSync, renameSync, rmSync, statSync, writeFileSync } from 'node:fs';
 import { basename, join, resolve } from 'node:path';
 import { createHash } from 'node:crypto';
-import { hostname } from 'node:os';
+import { hostname, userInfo } from 'node:os';
 import { z } from 'zod';
 import { removeStaleTemps, writeFileAtomic } from '../core/atomic-write.ts';
 import { READ_LIMITS, isHomeOrTemp, projectFile, readRegularFile, readTextFile, systemFolderProblem } from '../core/path-policy.ts';
@@ -98,7 +98,9 @@ function pidAlive(pid: number): boolean {
 function readLock(file: string): LockHolder | null {
   try {
     const v = JSON.parse(readFileSync(file, 'utf8')) as LockHolder;
-    return typeof v.pid === 'number' && typeof v.host === 'string' && typeof v.session === 'string' && typeof v.at === 'string' ? v : null;
+    if (!(typeof v.pid === 'number' && typeof v.host === 'string' && typeof v.session === 'string' && typeof v.at === 'string')) return null;
+    // Only the known fields, bounded: the file may come from anywhere and is shown to the user.
+    return { pid: v.pid, host: v.host.slice(0, 256), session: v.session.slice(0, 200), at: v.at.slice(0, 64), ...(typeof v.user === 'string' && v.user ? { user: v.user.slice(0, 64) } : {}) };
   } catch {
     return null;
   }
@@ -115,9 +117,18 @@ export function lockIsStale(holder: LockHolder, now = Date.now()): boolean {
  * Takes or renews the project's lock for `session`. Returns the holder; the caller is read-only
  * when the holder is another live session.
  */
+/** The account name for the lock (empty where the system cannot say). */
+function accountName(): string {
+  try {
+    return userInfo().username;
+  } catch {
+    return '';
+  }
+}
+
 export function acquireLock(dir: string, session: string): { readOnly: boolean; holder: LockHolder } {
   const file = join(dir, LOCK_FILE);
-  const mine: LockHolder = { pid: process.pid, host: hostname(), session, at: new Date().toISOString() };
+  const mine: LockHolder = { pid: process.pid, host: hostname(), session, at: new Date().toISOString(), user: accountName() };
   const current = existsSync(file) ? readLock(file) : null;
   if (current && current.session !== session && !lockIsStale(current)) return { readOnly: true, holder: current };
   if (!current && !existsSync(file)) {
@@ -215,7 +226,7 @@ export class Project {
   requireWritable(): void {
     if (this.readOnlyHere) {
       const h = this.lockHolder;
-      throw new PlumblineError('bad-request', `${this.dir}: opened read-only — another window${h ? ` (process ${h.pid} on ${h.host}, since ${h.at})` : ''} has this project open; close it there to edit here`, { file: this.dir });
+      throw new PlumblineError('bad-request', `${this.dir}: opened read-only — another window${h ? ` (${h.user ? `${h.user}, ` : ''}process ${h.pid} on ${h.host}, since ${h.at})` : ''} has this project open; close it there to edit here`, { file: this.dir });
     }
   }
 

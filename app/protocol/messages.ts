@@ -231,7 +231,7 @@ const uiStateSchema = z.object({
   auditProbes: z.number().int().min(PROBE_LIMITS.min).max(PROBE_LIMITS.max).optional(),
 });
 /** Who holds a project's lock: process, machine, session and when it last renewed. */
-export const lockHolderSchema = z.object({ pid: z.number().int(), host: z.string(), session: z.string(), at: z.string() });
+export const lockHolderSchema = z.object({ pid: z.number().int(), host: z.string(), session: z.string(), at: z.string(), /** the operating-system account that holds it (older locks lack it) */ user: z.string().max(256).optional() });
 export type LockHolder = z.infer<typeof lockHolderSchema>;
 /**
  * The holder as a window is told it: never its session id, which would let another tab speak for
@@ -240,7 +240,7 @@ export type LockHolder = z.infer<typeof lockHolderSchema>;
 export const lockHolderWireSchema = lockHolderSchema.omit({ session: true });
 export type LockHolderWire = z.infer<typeof lockHolderWireSchema>;
 /** A holder without its session id, for the wire. */
-export const holderForWire = (h: LockHolder | null): LockHolderWire | null => (h ? { pid: h.pid, host: h.host, at: h.at } : null);
+export const holderForWire = (h: LockHolder | null): LockHolderWire | null => (h ? { pid: h.pid, host: h.host, at: h.at, ...(h.user ? { user: h.user } : {}) } : null);
 const candidateSchema = z.object({ direction: directionInfoSchema, strip: z.array(imageSchema), stripSeeds: z.array(seed), stripStrengths: z.array(z.number()) });
 /** A render farm as the engine sees it (the password never comes back). */
 const farmWorkerSchema = z.object({ name: z.string(), host: z.string(), threads: z.number().int(), fingerprint: z.string().nullable(), imagesPerSecond: z.number().nullable(), units: z.number().int(), busy: z.string().nullable(), since: z.string() });

@@ -9,7 +9,7 @@ import { test } from 'node:test';
 import assert from 'node:assert/strict';
 import { spawnSync } from 'node:child_process';
 import { existsSync, mkdirSync, mkdtempSync, readdirSync, readFileSync, writeFileSync } from 'node:fs';
-import { hostname, tmpdir } from 'node:os';
+import { hostname, tmpdir, userInfo } from 'node:os';
 import { join } from 'node:path';
 import { LOCK_FILE, Project, acquireLock, lockIsStale, newProjectFolderProblem, releaseLock, vectorHash } from '../../app/engine/project.ts';
 
@@ -54,12 +54,14 @@ test('a second session opens read-only, names the holder, and cannot write', () 
   assert.equal(lock.pid, process.pid);
   assert.equal(lock.host, hostname());
   assert.equal(lock.session, 'session-aaaa');
+  // The lock names a person, not only a process (the tryout: "process 22575 on vm").
+  assert.equal(lock.user, userInfo().username);
   const b = Project.open(dir, false, gen);
   const r = b.lock('session-bbbb');
   assert.equal(r.readOnly, true);
   assert.equal(r.holder.session, 'session-aaaa');
   const saved = readFileSync(join(dir, 'project.json'), 'utf8');
-  assert.throws(() => b.saveUi({ seed: 1, psi: 0.7, strengths: {}, pinned: [], tags: {} }), /opened read-only — another window \(process \d+ on .*\) has this project open/);
+  assert.throws(() => b.saveUi({ seed: 1, psi: 0.7, strengths: {}, pinned: [], tags: {} }), /opened read-only — another window \([^,]+, process \d+ on .*\) has this project open/);
   assert.throws(() => b.appendReview({ at: 'x', direction: 'd', vectorHash: 'h', status: 'in-review', reviewer: 'r', note: '' }), /read-only/);
   assert.equal(readFileSync(join(dir, 'project.json'), 'utf8'), saved);
   assert.equal(existsSync(join(dir, 'review-log.jsonl')), false);

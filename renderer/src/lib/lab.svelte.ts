@@ -210,7 +210,7 @@ export class Lab {
     this.#keepLock();
     if (p.readOnly) {
       const h = p.lockHolder;
-      this.studio.banner = { kind: 'warning', text: `Opened read-only: another window has this project open${h ? ` (process ${h.pid} on ${h.host}, active ${new Date(h.at).toLocaleString()})` : ''}. You can look around; changes are not saved here.` };
+      this.studio.banner = { kind: 'warning', text: `Opened read-only: another window has this project open${h ? ` (${h.user ? `${h.user}, ` : ''}process ${h.pid} on ${h.host}, active ${new Date(h.at).toLocaleString()})` : ''}. You can look around; changes are not saved here.` };
     } else if (!p.generatorMatches) this.studio.banner = { kind: 'warning', text: `This project was made with another generator (fingerprint ${p.generatorFingerprint?.slice(0, 12)}…). Its directions and sign-offs may not hold for ${this.studio.model?.name}.` };
     else if (p.refused?.length) this.studio.banner = { kind: 'warning', text: `Opened with ${p.refused.length} entr${p.refused.length === 1 ? 'y' : 'ies'} refused: ${p.refused.join('; ')}` };
   }
