@@ -224,7 +224,7 @@ export async function* renderVariants(gen: Generator, recipe: RecipeInput, direc
 /**
  * Renders units one batch at a time. Everything after synthesis — the conversion to 8 bits with its
  * value checks, PNG encoding, hashing and the atomic write — runs on the pool's threads while the
- * next batch renders; the render loop only copies each image out of the batch.
+ * next batch renders; the render loop only copies the batch once into the pool's shared buffer.
  */
 export function localUnitRunner(gen: Generator, recipe: RecipeInput, directions: VariantDirection[], out: string, refs: LatentReference[] = []): VariantUnitRunner {
   const onSheet = new Set(sheetColumns(recipeColumns(recipe, refs)).map((c) => c.i));
@@ -235,9 +235,10 @@ export function localUnitRunner(gen: Generator, recipe: RecipeInput, directions:
       for (const unit of units) {
         const r = await synthesizeVariantUnit(gen, recipe, directions, unit, refs);
         const label = recipe.settings[unit.setting].label;
+        // The whole batch in one hand-over: one copy into the pool's shared buffer, one message per thread.
+        const written = pool.writeFloatBatch(gen.floatBatch(r.images, r.seeds.length), r.seeds.map((_, k) => ({ index: k, file: join(out, r.files[k]), durable: false, keepPixels: onSheet.has(unit.seeds[k]) })));
         inFlight.push(Promise.all(r.seeds.map(async (seed, k) => {
-          const keepPixels = onSheet.has(unit.seeds[k]);
-          const w = await pool.writeFloat(gen.floatImage(r.images, k), join(out, r.files[k]), { durable: false, keepPixels });
+          const w = await written[k];
           return { file: r.files[k], seed, reference: r.references[k], setting: label, sha256: w.sha256, thumb: w.pixels };
         })));
         // Keep at most about two batches of images in flight.

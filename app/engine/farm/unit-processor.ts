@@ -94,8 +94,9 @@ async function variantUnit(job: SandboxedJob): Promise<VariantUnitResult> {
     for (let at = 0; at < data.unit.seeds.length; at += data.batch) {
       if (at > 0) await checkCancelled(data.runId);
       const r = await synthesizeVariantUnit(gen, recipe, directions, { setting: data.unit.setting, seeds: data.unit.seeds.slice(at, at + data.batch) });
+      const pngs = pool.encodeFloatBatch(gen.floatBatch(r.images, r.seeds.length), r.seeds.map((_, k) => k));
       encoded.push(...r.seeds.map(async (seed, k) => {
-        const e = await pool.encodeFloat(gen.floatImage(r.images, k));
+        const e = await pngs[k];
         const key = keys.result(data.runId, String(job.id), attempt, at + k);
         stored.push(key);
         await storePart(redis, key, e.png);
