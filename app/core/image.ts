@@ -19,10 +19,13 @@ export function tensorToRgba(
   width: number,
   layout: 'NCHW' | 'NHWC' = 'NCHW',
   range: [number, number] = [-1, 1],
+  /** Where to put the pixels (width × height × 4 bytes), e.g. a buffer kept between images; a new one if absent. */
+  into?: Uint8ClampedArray,
 ): RgbaImage {
   const plane = height * width;
   const base = index * plane * 3;
-  const out = new Uint8ClampedArray(plane * 4);
+  if (into && into.length !== plane * 4) throw new RangeError(`tensorToRgba: into holds ${into.length} bytes, expected ${plane * 4}`);
+  const out = into ?? new Uint8ClampedArray(plane * 4);
   const scale = 255 / (range[1] - range[0]);
   const lo = range[0];
   const span = range[1] - range[0];
@@ -63,6 +66,21 @@ export function encodePng(image: RgbaImage): Uint8Array {
 }
 
 /**
+ * encodePng's bytes, with the filtered scanlines in a buffer kept from one image to the next: a
+ * writer thread encodes thousands of same-sized images, and on some machines (virtual machines
+ * that hand freed pages back to their host) touching fresh memory costs as much as filtering it.
+ */
+export class PngEncoder {
+  #raw = new Uint8Array(0);
+
+  encode(image: RgbaImage): Uint8Array {
+    const size = (image.width * 4 + 1) * image.height;
+    if (this.#raw.length !== size) this.#raw = new Uint8Array(size);
+    return assemblePng(image, deflateSync(filterRows(image, this.#raw), { level: 1 }));
+  }
+}
+
+/**
  * The same bytes as encodePng, with the compression on zlib's thread pool: it overlaps with
  * inference on the main thread when a batch job renders many images.
  */
@@ -71,11 +89,10 @@ export function encodePngAsync(image: RgbaImage): Promise<Uint8Array> {
   return new Promise((resolve, reject) => deflate(raw, { level: 1 }, (err, idat) => (err ? reject(err) : resolve(assemblePng(image, idat)))));
 }
 
-/** Scanlines with the "sub" filter, each prefixed by its filter byte. */
-function filterRows(image: RgbaImage): Uint8Array {
+/** Scanlines with the "sub" filter, each prefixed by its filter byte (into `raw` when given: every byte is written). */
+function filterRows(image: RgbaImage, raw = new Uint8Array((image.width * 4 + 1) * image.height)): Uint8Array {
   const { width: w, height: h, data } = image;
   const stride = w * 4;
-  const raw = new Uint8Array((stride + 1) * h);
   for (let y = 0; y < h; y++) {
     const o = y * (stride + 1) + 1;
     raw[o - 1] = 1; // filter: sub
@@ -87,28 +104,27 @@ function filterRows(image: RgbaImage): Uint8Array {
   return raw;
 }
 
+/** Signature, IHDR, one IDAT and IEND, written straight into the one output array. */
 function assemblePng(image: RgbaImage, idat: Uint8Array): Uint8Array {
-  const ihdr = new Uint8Array(13);
-  const v = new DataView(ihdr.buffer);
-  v.setUint32(0, image.width);
-  v.setUint32(4, image.height);
-  ihdr.set([8, 6, 0, 0, 0], 8); // depth 8, colour type 6 (RGBA), deflate, adaptive filtering, no interlace
-  const chunk = (type: string, body: Uint8Array) => {
-    const out = new Uint8Array(12 + body.length);
-    const dv = new DataView(out.buffer);
-    dv.setUint32(0, body.length);
-    for (let i = 0; i < 4; i++) out[4 + i] = type.charCodeAt(i);
-    out.set(body, 8);
-    dv.setUint32(8 + body.length, crc32(out.subarray(4, 8 + body.length)));
-    return out;
+  const out = new Uint8Array(8 + 25 + 12 + idat.length + 12);
+  const dv = new DataView(out.buffer);
+  out.set([137, 80, 78, 71, 13, 10, 26, 10]);
+  let at = 8;
+  // A chunk: length, type, body, CRC-32 of type and body (ISO/IEC 15948 §5.3).
+  const chunk = (type: string, length: number, body: (at: number) => void) => {
+    dv.setUint32(at, length);
+    for (let i = 0; i < 4; i++) out[at + 4 + i] = type.charCodeAt(i);
+    body(at + 8);
+    dv.setUint32(at + 8 + length, crc32(out.subarray(at + 4, at + 8 + length)));
+    at += 12 + length;
   };
-  const parts = [Uint8Array.from([137, 80, 78, 71, 13, 10, 26, 10]), chunk('IHDR', ihdr), chunk('IDAT', idat), chunk('IEND', new Uint8Array(0))];
-  const out = new Uint8Array(parts.reduce((a, p) => a + p.length, 0));
-  let at = 0;
-  for (const p of parts) {
-    out.set(p, at);
-    at += p.length;
-  }
+  chunk('IHDR', 13, (b) => {
+    dv.setUint32(b, image.width);
+    dv.setUint32(b + 4, image.height);
+    out.set([8, 6, 0, 0, 0], b + 8); // depth 8, colour type 6 (RGBA), deflate, adaptive filtering, no interlace
+  });
+  chunk('IDAT', idat.length, (b) => out.set(idat, b));
+  chunk('IEND', 0, () => {});
   return out;
 }
 

@@ -405,6 +405,16 @@ export class Generator {
     return { values: images.slice(index * per, (index + 1) * per), width, height, layout: this.#r.imageLayout, range: this.range, origin: this.#r.synthesisFile };
   }
 
+  /**
+   * The first `count` images of a float batch, as they are, with what converting them to 8 bits
+   * needs: for PngWriterPool.writeFloatBatch, which copies the batch once into a buffer it reuses
+   * rather than each image into fresh memory (floatImage).
+   */
+  floatBatch(images: Float32Array, count: number): FloatBatchSource {
+    const { width, height } = this.imageSize();
+    return { images, count, width, height, layout: this.#r.imageLayout, range: this.range, origin: this.#r.synthesisFile };
+  }
+
   async renderSeeds(seeds: number[], psi: number, edits: EditVector[], onBatch?: (done: number) => Promise<void> | void): Promise<RenderOutput> {
     const codes = await this.codesForSeeds(seeds, psi);
     applyEdits(codes, this.layout, edits);
@@ -562,6 +572,18 @@ function checkMapping(r: Resolved, s: OnnxSummary): void {
   if (!out) throw new PlumblineError('card-invalid', `${file}: mapping output '${r.mappingOutput}' not found`, { file });
   const last = out.dims?.[out.dims.length - 1];
   if (fixed(last) && last !== r.layout.size) throw new PlumblineError('latent-size-mismatch', `${file}: the mapping network outputs ${last} values per code but the synthesis latent size is ${r.layout.size}`, { file });
+}
+
+/** Rendered images in the generator's float output, [count, …] from the start of `images` (Generator.floatBatch). */
+export interface FloatBatchSource {
+  images: Float32Array;
+  count: number;
+  width: number;
+  height: number;
+  layout: 'NCHW' | 'NHWC';
+  range: [number, number];
+  /** The synthesis file, named when its output holds a value that cannot be an image value. */
+  origin: string;
 }
 
 /** One rendered image in the generator's float output, for conversion elsewhere (Generator.floatImage). */

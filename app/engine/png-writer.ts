@@ -6,7 +6,7 @@ import { availableParallelism } from 'node:os';
 import { extname } from 'node:path';
 import { fileURLToPath } from 'node:url';
 import type { RgbaImage } from '../core/image.ts';
-import type { FloatImageSource } from './generator.ts';
+import type { FloatBatchSource, FloatImageSource } from './generator.ts';
 import { PlumblineError } from '../core/errors.ts';
 
 export interface WrittenPng {
@@ -44,10 +44,23 @@ export function startThread(file: URL): Worker {
   return new Worker(bootstrap, { eval: true });
 }
 
+/** One image of a float batch for writeFloatBatch: which image, where to, and whether its pixels come back. */
+export interface BatchWrite {
+  index: number;
+  file: string;
+  durable?: boolean;
+  keepPixels?: boolean;
+}
+
+/** Shared batch buffers kept for reuse: enough for the batches a render loop keeps in flight. */
+const SPARE_BATCH_BUFFERS = 4;
+
 export class PngWriterPool {
   readonly #workers: Worker[] = [];
   readonly #pending = new Map<number, Pending>();
   readonly #load: number[] = [];
+  /** Shared buffers that held a batch whose images are all answered, ready for the next. */
+  readonly #spare: SharedArrayBuffer[] = [];
   #next = 1;
   #failed: Error | null = null;
   #closing = false;
@@ -108,12 +121,60 @@ export class PngWriterPool {
     return this.#post(source.values, source.width, source.height, '', {}, source) as Promise<WrittenPng & { png: Uint8Array }>;
   }
 
-  #post(data: Uint8ClampedArray | Float32Array, width: number, height: number, file: string, options: { durable?: boolean; keepPixels?: boolean }, float?: FloatImageSource): Promise<WrittenPng> {
-    if (this.#failed) return Promise.reject(this.#failed);
-    const id = this.#next++;
+  /**
+   * Converts, encodes and writes images of one rendered batch (Generator.floatBatch). The batch is
+   * copied once into a shared buffer the pool recycles, and each thread gets one message naming
+   * its images in it: the render loop neither copies each image out into fresh memory nor posts
+   * a message per image. The batch's own array can be reused as soon as this returns.
+   */
+  writeFloatBatch(batch: FloatBatchSource, items: BatchWrite[]): Promise<WrittenPng>[] {
+    return this.#postBatch(batch, items.map((it) => ({ index: it.index, file: it.file, durable: it.durable ?? true, keepPixels: it.keepPixels ?? false })));
+  }
+
+  /** As writeFloatBatch, but only encodes: the PNG bytes come back (`png`) and no file is written. */
+  encodeFloatBatch(batch: FloatBatchSource, indices: number[]): Promise<WrittenPng & { png: Uint8Array }>[] {
+    return this.#postBatch(batch, indices.map((index) => ({ index, file: '', durable: false, keepPixels: false }))) as Promise<WrittenPng & { png: Uint8Array }>[];
+  }
+
+  #postBatch(batch: FloatBatchSource, items: { index: number; file: string; durable: boolean; keepPixels: boolean }[]): Promise<WrittenPng>[] {
+    if (this.#failed) return items.map(() => Promise.reject(this.#failed));
+    const per = batch.width * batch.height * 3;
+    for (const it of items) if (!(Number.isInteger(it.index) && it.index >= 0 && it.index < batch.count)) throw new RangeError(`image ${it.index} of a batch of ${batch.count}`);
+    const bytes = batch.count * per * 4;
+    if (batch.images.length < batch.count * per) throw new RangeError(`a batch of ${batch.count} images of ${per} values holds only ${batch.images.length}`);
+    // The smallest spare buffer that fits, else a new one (spares are warm: no first-touch cost).
+    let at = -1;
+    for (let i = 0; i < this.#spare.length; i++) if (this.#spare[i].byteLength >= bytes && (at < 0 || this.#spare[i].byteLength < this.#spare[at].byteLength)) at = i;
+    const shared = at >= 0 ? this.#spare.splice(at, 1)[0] : new SharedArrayBuffer(bytes);
+    new Float32Array(shared, 0, batch.count * per).set(batch.images.subarray(0, batch.count * per));
+    const byThread = new Map<number, { id: number; index: number; file: string; durable: boolean; keepPixels: boolean }[]>();
+    const promises = items.map((it) => {
+      const id = this.#next++;
+      const k = this.#leastLoaded();
+      if (!byThread.has(k)) byThread.set(k, []);
+      byThread.get(k)!.push({ id, ...it });
+      return new Promise<WrittenPng>((resolve, reject) => this.#pending.set(id, { resolve, reject, width: batch.width, height: batch.height, origin: batch.origin }));
+    });
+    for (const [k, list] of byThread) this.#workers[k].postMessage({ batch: shared, width: batch.width, height: batch.height, float: { layout: batch.layout, range: batch.range }, items: list });
+    // Every image answered (or failed): the buffer is free again.
+    void Promise.allSettled(promises).then(() => {
+      if (this.#spare.length < SPARE_BATCH_BUFFERS) this.#spare.push(shared);
+    });
+    return promises;
+  }
+
+  /** The thread with the fewest images queued, now holding one more. */
+  #leastLoaded(): number {
     let k = 0;
     for (let i = 1; i < this.#load.length; i++) if (this.#load[i] < this.#load[k]) k = i;
     if (this.#load[k]++ === 0) this.#workers[k].ref();
+    return k;
+  }
+
+  #post(data: Uint8ClampedArray | Float32Array, width: number, height: number, file: string, options: { durable?: boolean; keepPixels?: boolean }, float?: FloatImageSource): Promise<WrittenPng> {
+    if (this.#failed) return Promise.reject(this.#failed);
+    const id = this.#next++;
+    const k = this.#leastLoaded();
     const whole = data.byteOffset === 0 && data.byteLength === data.buffer.byteLength && data.buffer instanceof ArrayBuffer;
     const buffer = whole ? (data.buffer as ArrayBuffer) : (data.slice().buffer as ArrayBuffer);
     return new Promise<WrittenPng>((resolve, reject) => {

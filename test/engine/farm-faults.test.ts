@@ -1,19 +1,22 @@
 // Farm faults, each on a private redis-server on 127.0.0.1: a worker killed mid-unit (its unit
 // comes back after stall detection and the set is unchanged), a worker holding another generator
 // (refused with both fingerprints; the run fails naming unit, worker and error), a forged result
-// (rejected before anything is written), cancel (waiting units removed, none left), and Redis
+// (its stored PNG bytes missing, of another length, tampered with, or under a key not its own:
+// rejected before anything is written, and no result keys left in Redis), cancel (waiting units removed, none left), and Redis
 // restarting empty mid-run (the run fails and says so; the manifest stays incomplete).
 import { test, before, after, afterEach } from 'node:test';
 import assert from 'node:assert/strict';
 import { cpSync, readFileSync, writeFileSync, readdirSync, existsSync } from 'node:fs';
 import { join } from 'node:path';
 import { spawnSync, spawn, type ChildProcess } from 'node:child_process';
-import { Queue, Worker } from 'bullmq';
+import { createHash } from 'node:crypto';
+import { Queue, Worker, type Job } from 'bullmq';
+import { Redis } from 'ioredis';
 import { redisMissing, startRedis, type TestRedis } from '../helpers/redis.ts';
 import { startWorker, type TestWorker } from '../helpers/farm.ts';
 import { tempDir } from '../helpers/models.ts';
 import { parseFarmUrl, redisOptions } from '../../app/engine/farm/connection.ts';
-import { UNIT_QUEUE } from '../../app/engine/farm/protocol.ts';
+import { keys, UNIT_QUEUE } from '../../app/engine/farm/protocol.ts';
 
 const root = join(import.meta.dirname, '..', '..');
 const demoDir = join(root, 'resources', 'demo');
@@ -87,6 +90,8 @@ test('a worker killed mid-unit: its unit is retried on another worker after stal
   assert.equal(local.status, 0, local.stderr);
   assert.deepEqual(pngs(join(dir, 'farm')), pngs(join(dir, 'local')));
   for (const f of pngs(join(dir, 'local'))) assert.ok(readFileSync(join(dir, 'farm', f)).equals(readFileSync(join(dir, 'local', f))), `${f}: same bytes`);
+  // Whatever alpha stored of its unit before it died went with the run's clean-up.
+  assert.deepEqual(await resultKeysLeft(), []);
 });
 
 test('a worker holding another generator refuses it, naming both fingerprints; the run fails naming unit, worker and error', { skip }, async () => {
@@ -112,18 +117,70 @@ test('a worker holding another generator refuses it, naming both fingerprints; t
   assert.ok(!existsSync(join(dir, 'out', 'manifest.json')) || JSON.parse(readFileSync(join(dir, 'out', 'manifest.json'), 'utf8')).complete === false);
 });
 
-test('a forged result is rejected before anything of it is written, naming unit and worker', { skip }, async () => {
-  const dir = tempDir();
-  // A rogue worker answers every unit with an image whose bytes do not match its hash.
-  const rogue = new Worker(UNIT_QUEUE, async (job) => ({ kind: 'variants', worker: 'rogue', seconds: 0.1, images: job.data.unit.seeds.map((i: number) => ({ file: `${job.data.recipe.settings[job.data.unit.setting].label}/seed-${String(job.data.recipe.seeds[i]).padStart(6, '0')}.png`, seed: job.data.recipe.seeds[i], sha256: 'a'.repeat(64), png: Buffer.from('not a png').toString('base64') })) }), { connection: redisOptions(parseFarmUrl(redis.url), true), name: 'rogue' });
+/** What a rogue worker does to the PNG bytes it names in its result. */
+type Forgery = 'hash' | 'missing' | 'length' | 'tampered' | 'foreign';
+
+/**
+ * A rogue worker's answer to a variant unit: each image's bytes stored (or not) under a result key,
+ * and a return value that misstates them as `mode` says.
+ */
+async function forge(mode: Forgery, job: Job, store: Redis) {
+  const { recipe, unit, runId } = job.data;
+  const label = recipe.settings[unit.setting].label;
+  const images = [];
+  for (const [k, i] of (unit.seeds as number[]).entries()) {
+    const seed = recipe.seeds[i];
+    const bytes = Buffer.from(`not a png ${k}`);
+    const key = mode === 'foreign' ? keys.modelMeta(runId) : keys.result(runId, job.id!, 'rogue', k);
+    let sha256 = createHash('sha256').update(bytes).digest('hex');
+    if (mode === 'hash') sha256 = 'a'.repeat(64);
+    if (mode !== 'missing' && mode !== 'foreign') await store.set(key, bytes);
+    // Changed after the hash was taken: the same length, other bytes.
+    if (mode === 'tampered') await store.set(key, Buffer.from(`not a PNG ${k}`));
+    images.push({ file: `${label}/seed-${String(seed).padStart(6, '0')}.png`, seed, key, bytes: bytes.length + (mode === 'length' ? 1 : 0), sha256 });
+  }
+  return { kind: 'variants', worker: 'rogue', seconds: 0.1, images };
+}
+
+/** The result parts left in Redis (result-store.ts), any run. */
+async function resultKeysLeft(): Promise<string[]> {
+  const admin = new Redis(redisOptions(parseFarmUrl(redis.url), false));
   try {
-    const recipe = writeRecipe(dir, 'forged', 4);
-    const r = cliAsync('variants', '--recipe', recipe, '-d', directions, '--out', join(dir, 'out'), '--farm', redis.url);
-    assert.equal(await r.done, 1);
-    assert.match(r.out().stderr, /result of unit forged '(base|bold)' seeds 100…121 from worker rogue rejected: (base|bold)\/seed-000100\.png: bytes hash to [0-9a-f]{64}, the worker claimed a{64}/);
-    assert.deepEqual(pngs(join(dir, 'out')), []);
+    return await admin.keys('plumbline:farm:result:*');
+  } finally {
+    admin.disconnect();
+  }
+}
+
+test('a forged result is rejected before anything of it is written, naming unit, worker and what is wrong with the stored bytes; no result keys remain', { skip }, async () => {
+  let mode: Forgery = 'hash';
+  const store = new Redis(redisOptions(parseFarmUrl(redis.url), false));
+  const rogue = new Worker(UNIT_QUEUE, async (job) => forge(mode, job, store), { connection: redisOptions(parseFarmUrl(redis.url), true), name: 'rogue' });
+  const expected: Record<Forgery, RegExp> = {
+    hash: /bytes hash to [0-9a-f]{64}, the worker claimed a{64}/,
+    tampered: /bytes hash to [0-9a-f]{64}, the worker claimed [0-9a-f]{64}/,
+    missing: /its bytes are missing from Redis \(key plumbline:farm:result:[0-9a-f]+:[0-9a-f-]+:rogue:0;/,
+    length: /Redis holds 11 bytes under plumbline:farm:result:[0-9a-f]+:[0-9a-f-]+:rogue:0, the worker stated 12/,
+    foreign: /key plumbline:farm:model:[0-9a-f]+:meta is not one of this unit's/,
+  };
+  try {
+    for (const m of Object.keys(expected) as Forgery[]) {
+      mode = m;
+      const dir = tempDir();
+      // One setting: one unit, so nothing of the rogue's is still running when the run ends.
+      const recipe = join(dir, `forged-${m}.json`);
+      writeFileSync(recipe, JSON.stringify({ ...recipeOf(`forged-${m}`, 4), settings: [{ label: 'base', strengths: {} }] }));
+      const r = cliAsync('variants', '--recipe', recipe, '-d', directions, '--out', join(dir, 'out'), '--farm', redis.url);
+      assert.equal(await r.done, 1, `${m}: ${r.out().stderr}`);
+      const stderr = r.out().stderr;
+      assert.match(stderr, new RegExp(`result of unit forged-${m} 'base' seeds 100…121 from worker rogue rejected: base/seed-000100\\.png: `), `${m}: ${stderr}`);
+      assert.match(stderr, expected[m], `${m}: ${stderr}`);
+      assert.deepEqual(pngs(join(dir, 'out')), [], m);
+      assert.deepEqual(await resultKeysLeft(), [], `${m}: the run's clean-up removed the stored bytes`);
+    }
   } finally {
     await rogue.close();
+    store.disconnect();
   }
 });
 
@@ -144,6 +201,8 @@ test('cancel removes the units still waiting and leaves none behind', { skip }, 
   } finally {
     await queue.close();
   }
+  // The unit that was running stops at its next batch and removes the images it had stored.
+  await until('no result keys left', async () => (await resultKeysLeft()).length === 0, 20_000);
   const manifest = JSON.parse(readFileSync(join(dir, 'out', 'manifest.json'), 'utf8'));
   assert.equal(manifest.complete, false);
   assert.ok(manifest.images.length < 320, `${manifest.images.length} images rendered of 320`);

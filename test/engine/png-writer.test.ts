@@ -1,13 +1,14 @@
 // The PNG writer pool: files written on worker threads hold exactly encodePng's bytes, decode to
 // the same pixels with an independent decoder (fast-png), float images converted there match the
-// render thread's conversion, and failures name the file (or the generator, for bad values).
+// render thread's conversion — one at a time or handed over as whole batches — and failures name
+// the file (or the generator, for bad values).
 import { test } from 'node:test';
 import assert from 'node:assert/strict';
 import { readFileSync, writeFileSync, mkdirSync } from 'node:fs';
 import { join } from 'node:path';
 import { createHash } from 'node:crypto';
 import { decode } from 'fast-png';
-import { encodePng, type RgbaImage } from '../../app/core/image.ts';
+import { encodePng, PngEncoder, type RgbaImage } from '../../app/core/image.ts';
 import { PngWriterPool } from '../../app/engine/png-writer.ts';
 import { Random } from '../../app/core/random.ts';
 import { tempDir } from '../helpers/models.ts';
@@ -79,6 +80,55 @@ test('float images converted on the pool write the same bytes as toRgba + encode
     const far = gen.floatImage(r.images, 1);
     far.values[3] = 1e6;
     await assert.rejects(pool.writeFloat(far, join(dir, 'far.png')), (err: Error & { code?: string }) => err.code === 'output-out-of-range');
+  } finally {
+    await gen.dispose();
+    await pool.close();
+  }
+});
+
+test('PngEncoder, which keeps its scanline buffer between images, gives encodePng\'s bytes for every size in any order', () => {
+  const encoder = new PngEncoder();
+  for (const [w, h, seed] of [[16, 16, 1], [16, 16, 2], [33, 7, 3], [1, 1, 4], [16, 16, 5], [128, 96, 6]]) {
+    const img = noise(w, h, seed);
+    assert.deepEqual(encoder.encode(img), encodePng(img), `${w}×${h} (seed ${seed})`);
+  }
+});
+
+test('whole batches handed to the pool write and encode the same bytes as toRgba + encodePng; a bad image fails alone; the batch array can be reused at once', async () => {
+  const dir = tempDir();
+  const pool = new PngWriterPool(2);
+  const gen = await Generator.open(demoCardPath(), { threads: 1 });
+  try {
+    const seeds = [[5, 6, 7, 8, 9], [10, 11, 12]];
+    for (const [b, list] of seeds.entries()) {
+      // Two rounds: the second batch goes through the shared buffer the first one left.
+      const r = await gen.renderSeeds(list, 0.7, []);
+      const expected = list.map((_, k) => gen.toRgba(r.images, k));
+      const written = pool.writeFloatBatch(gen.floatBatch(r.images, list.length), list.map((_, k) => ({ index: k, file: join(dir, `b${b}`, `i${k}.png`), keepPixels: k % 2 === 0 })));
+      const encoded = pool.encodeFloatBatch(gen.floatBatch(r.images, list.length), list.map((_, k) => k).reverse());
+      // The pool copied the batch: scribbling over it now changes nothing written.
+      r.images.fill(0);
+      const w = await Promise.all(written);
+      const e = await Promise.all(encoded);
+      list.forEach((_, k) => {
+        const png = encodePng(expected[k]);
+        assert.deepEqual(new Uint8Array(readFileSync(join(dir, `b${b}`, `i${k}.png`))), png, `batch ${b} image ${k}: same bytes`);
+        assert.equal(w[k].sha256, createHash('sha256').update(png).digest('hex'));
+        assert.deepEqual(w[k].pixels?.data, k % 2 === 0 ? expected[k].data : undefined, `batch ${b} image ${k}: pixels back only when asked for`);
+        assert.deepEqual(e[list.length - 1 - k].png, png, `batch ${b} image ${k}: encoded only, same bytes`);
+        // Outside check: fast-png reads back toRgba's pixels.
+        assert.deepEqual(new Uint8ClampedArray(decode(png).data), expected[k].data);
+      });
+    }
+    const r = await gen.renderSeeds([1, 2, 3], 0.7, []);
+    const per = r.images.length / 3;
+    r.images[per + 17] = Number.NaN;
+    const results = await Promise.allSettled(pool.writeFloatBatch(gen.floatBatch(r.images, 3), [0, 1, 2].map((k) => ({ index: k, file: join(dir, 'bad', `i${k}.png`) }))));
+    assert.deepEqual(results.map((x) => x.status), ['fulfilled', 'rejected', 'fulfilled']);
+    const err = (results[1] as PromiseRejectedResult).reason as Error & { code?: string };
+    assert.equal(err.code, 'output-not-finite');
+    assert.ok(err.message.includes(gen.floatBatch(r.images, 3).origin), err.message);
+    assert.throws(() => pool.writeFloatBatch(gen.floatBatch(r.images, 3), [{ index: 3, file: join(dir, 'x.png') }]), /image 3 of a batch of 3/);
   } finally {
     await gen.dispose();
     await pool.close();

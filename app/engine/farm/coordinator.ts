@@ -10,6 +10,7 @@ import type { z } from 'zod';
 import { PlumblineError } from '../../core/errors.ts';
 import { describe, parseFarmUrl, redisOptions, type FarmAddress } from './connection.ts';
 import { publishModel, unpublishModel } from './model-store.ts';
+import { removeRunParts } from './result-store.ts';
 import { keys, RUN_RECORD_TTL_S, runQueueName, UNIT_QUEUE, workerRecordSchema, runRecordSchema, type ModelRef, type RunRecord, type WorkerRecord } from './protocol.ts';
 
 /** Attempts per unit (the first run plus two retries) before the run fails. */
@@ -53,8 +54,12 @@ export interface RunOptions<R> {
   publish?: boolean;
   units: FarmUnit[];
   schema: z.ZodType<R>;
-  /** Checks a schema-valid result against its unit; throws to reject it. Returns images in it. */
-  check: (unit: FarmUnit, result: R) => number;
+  /**
+   * Checks a schema-valid result against its unit, fetching and checking any bytes it stored in
+   * Redis (result-store.ts; `jobId` is the unit's job, whose keys the result may name); throws to
+   * reject it. Returns the images in it.
+   */
+  check: (unit: FarmUnit, result: R, where: { runId: string; jobId: string }) => number | Promise<number>;
   isCancelled?: () => boolean;
   attempts?: number;
 }
@@ -231,7 +236,7 @@ export class Farm {
           if (!parsed.success) throw new PlumblineError('farm', `result of unit ${unit.name} from worker ${by} rejected: ${parsed.error.issues.slice(0, 3).map((i) => `${i.path.join('.') || '(root)'}: ${i.message}`).join('; ')}`);
           let images: number;
           try {
-            images = o.check(unit, parsed.data);
+            images = await o.check(unit, parsed.data, { runId, jobId: id });
           } catch (err) {
             throw new PlumblineError('farm', `result of unit ${unit.name} from worker ${(parsed.data as { worker?: string }).worker ?? by} rejected: ${(err as Error).message}`);
           }
@@ -275,8 +280,10 @@ export class Farm {
         await publishing;
         await unpublishModel(this.redis, runId).catch(() => {});
       }
-      // Results are merged: the units' stored values (images) leave Redis.
+      // Results are merged: the units' stored values and any bytes they stored leave Redis (merged
+      // units' bytes are already gone; these are a rejected result's, or a failed attempt's).
       for (const id of byId.keys()) await units.remove(id).catch(() => {});
+      await removeRunParts(this.redis, runId).catch(() => {});
       const runQueue = new Queue(runQueueName(runId), { connection: this.#connection });
       await runQueue.obliterate({ force: true }).catch(() => {});
       await runQueue.close().catch(() => {});

@@ -1,6 +1,6 @@
 // Variant sets on a farm: the recipe's (setting × seed chunk) units, four batches each, become farm units; each
-// result is checked (files, seeds, hashes, PNG header and size) before its images are written.
-import { createHash } from 'node:crypto';
+// result is checked (files, seeds, then each PNG fetched from its Redis key: length, hash, PNG
+// header and size) before its images are written.
 import { join } from 'node:path';
 import { decode } from 'fast-png';
 import { writeFileAtomic } from '../../core/atomic-write.ts';
@@ -9,6 +9,7 @@ import { runVariantSet, variantFile, type Recipe, type VariantDirection, type Va
 import { chosenOutputFolder } from '../../core/path-policy.ts';
 import type { Farm, FarmUnit, RunProgress } from './coordinator.ts';
 import { variantUnitResultSchema, type VariantUnitResult } from './protocol.ts';
+import { fetchParts, removeParts } from './result-store.ts';
 
 /**
  * Batches per farm unit. A unit's fixed costs (taking it from the queue, handing its result back,
@@ -42,32 +43,41 @@ export function farmVariantRunner(farm: Farm, gen: Generator, recipe: Recipe, di
     });
     const planOf = new Map(units.map((u, k) => [u, plan[k]]));
     const ready: VariantImage[][] = [];
-    const check = (unit: FarmUnit, r: VariantUnitResult) => {
+    // A checked unit's PNG bytes, fetched from Redis, until it is merged.
+    const fetched = new Map<FarmUnit, Buffer[]>();
+    const check = async (unit: FarmUnit, r: VariantUnitResult, where: { runId: string; jobId: string }) => {
       const u = planOf.get(unit)!;
       const label = recipe.settings[u.setting].label;
       if (r.images.length !== u.seeds.length) throw new Error(`${r.images.length} images for ${u.seeds.length} seeds`);
       r.images.forEach((img, k) => {
         const seed = recipe.seeds[u.seeds[k]];
         if (img.seed !== seed || img.file !== variantFile(label, seed)) throw new Error(`image ${k} is ${img.file} (seed ${img.seed}), expected ${variantFile(label, seed)}`);
-        const bytes = Buffer.from(img.png, 'base64');
-        const got = createHash('sha256').update(bytes).digest('hex');
-        if (got !== img.sha256) throw new Error(`${img.file}: bytes hash to ${got}, the worker claimed ${img.sha256}`);
+      });
+      // Each PNG from its key: present, of the stated length and hash (result-store.ts).
+      const all = await fetchParts(farm.redis, where.runId, where.jobId, r.images.map((img) => ({ ...img, what: img.file })));
+      all.forEach((bytes, k) => {
+        const img = r.images[k];
         if (bytes.length < 24 || PNG_SIGNATURE.some((b, i) => bytes[i] !== b)) throw new Error(`${img.file} is not a PNG`);
         const w = bytes.readUInt32BE(16);
         const h = bytes.readUInt32BE(20);
         if (w !== width || h !== height) throw new Error(`${img.file} is ${w}×${h}, the generator renders ${width}×${height}`);
       });
+      fetched.set(unit, all);
       return r.images.length;
     };
-    const accept = (unit: FarmUnit, r: VariantUnitResult) => {
+    const accept = async (unit: FarmUnit, r: VariantUnitResult) => {
       const u = planOf.get(unit)!;
       const label = recipe.settings[u.setting].label;
-      ready.push(r.images.map((img) => {
-        const bytes = Buffer.from(img.png, 'base64');
+      const all = fetched.get(unit)!;
+      fetched.delete(unit);
+      ready.push(r.images.map((img, k) => {
+        const bytes = all[k];
         writeFileAtomic(join(out, img.file), bytes, { durable: false });
         const png = recipe.seeds.indexOf(img.seed) < 8 ? decode(bytes) : null;
         return { file: img.file, seed: img.seed, setting: label, sha256: img.sha256, thumb: png ? { width: png.width, height: png.height, data: new Uint8ClampedArray(png.data) } : undefined };
       }));
+      // Merged: the unit's bytes leave Redis.
+      await removeParts(farm.redis, r.images.map((img) => img.key));
     };
     const run = farm.run({
       kind: 'variants', label: `variants ${recipe.name}`, units, schema: variantUnitResultSchema, check,

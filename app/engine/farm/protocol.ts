@@ -19,6 +19,16 @@ export const keys = {
   modelMeta: (runId: string) => `${FARM_PREFIX}:farm:model:${runId}:meta`,
   modelChunk: (runId: string, file: number, chunk: number) => `${FARM_PREFIX}:farm:model:${runId}:${file}:${chunk}`,
   modelAll: (runId: string) => `${FARM_PREFIX}:farm:model:${runId}:*`,
+  /**
+   * One stored result part (a PNG) of one attempt at one unit: binary, written by the worker's
+   * sandbox, read and deleted by the coordinator once merged (result-store.ts). The attempt token
+   * keeps a retried unit's parts apart from those of an attempt that went on after losing its lock.
+   */
+  result: (runId: string, jobId: string, attempt: string, part: number) => `${FARM_PREFIX}:farm:result:${runId}:${jobId}:${attempt}:${part}`,
+  /** Every stored part of one unit (any attempt): what a result of that unit may name. */
+  unitResults: (runId: string, jobId: string) => `${FARM_PREFIX}:farm:result:${runId}:${jobId}:`,
+  /** Every stored part of a run, for the run's clean-up. */
+  resultAll: (runId: string) => `${FARM_PREFIX}:farm:result:${runId}:*`,
 };
 
 /** A worker re-announces itself this often, and is forgotten when it has been silent for three times as long. */
@@ -70,13 +80,25 @@ export const variantUnitDataSchema = z.object({
 });
 export type VariantUnitData = z.infer<typeof variantUnitDataSchema>;
 
-const base64 = z.string().regex(/^[A-Za-z0-9+/]*={0,2}$/);
+/**
+ * Bytes a worker stored in Redis beside its result (keys.result): the result names the key, the
+ * length and the SHA-256, and the coordinator checks both before it uses the bytes. Bulk bytes
+ * never travel in a job's return value (which BullMQ copies through the sandbox's IPC, the job
+ * hash, the parent's list of child values and back, as JSON).
+ */
+export const storedBytesSchema = z.object({
+  key: z.string().min(1).max(300),
+  bytes: z.number().int().min(0),
+  sha256: hex64,
+});
+export type StoredBytes = z.infer<typeof storedBytesSchema>;
 
 export const variantUnitResultSchema = z.object({
   kind: z.literal('variants'),
   worker: z.string(),
   seconds: z.number().nonnegative(),
-  images: z.array(z.object({ file: z.string(), seed: z.number().int().min(0), sha256: hex64, png: base64 })),
+  /** Each image's PNG is stored under `key` (storedBytesSchema); `sha256` is the PNG file's hash. */
+  images: z.array(storedBytesSchema.extend({ file: z.string(), seed: z.number().int().min(0) })),
 });
 export type VariantUnitResult = z.infer<typeof variantUnitResultSchema>;
 

@@ -1,8 +1,10 @@
 // The sandboxed processor of a farm worker: BullMQ runs this file in a child process, so
 // inference never blocks the worker's event loop and its lock renewals. It loads a generator only
-// after its fingerprint checks out, renders one unit, and hands the result back to BullMQ; it
-// writes nothing except the generator files it fetches into the worker's scratch folder.
+// after its fingerprint checks out, renders one unit, stores the unit's PNGs in Redis under the
+// run's result keys and hands BullMQ a small result naming them; on disk it writes nothing except
+// the generator files it fetches into the worker's scratch folder.
 import { hostname } from 'node:os';
+import { randomBytes } from 'node:crypto';
 import { existsSync } from 'node:fs';
 import { join } from 'node:path';
 import { Redis } from 'ioredis';
@@ -12,6 +14,7 @@ import { PlumblineError } from '../../core/errors.ts';
 import { recipeSchema, synthesizeVariantUnit } from '../variants.ts';
 import { sharedPngWriter } from '../png-writer.ts';
 import { fetchModel } from './model-store.ts';
+import { removeParts, storePart } from './result-store.ts';
 import { auditUnit, isAuditUnit } from './audit-units.ts';
 import { keys, variantUnitDataSchema, type ModelRef, type VariantUnitResult } from './protocol.ts';
 import { parseFarmUrl, redisOptions } from './connection.ts';
@@ -27,6 +30,8 @@ export interface WorkerSettings {
   pathMaps: [string, string][];
 }
 export const WORKER_SETTINGS_ENV = 'PLUMBLINE_FARM_WORKER';
+/** A failed attempt waits this long at most to remove the images it stored (the keys expire anyway). */
+const CLEANUP_WAIT_MS = 5_000;
 
 const settings: WorkerSettings = JSON.parse(process.env[WORKER_SETTINGS_ENV] ?? 'null') ?? { name: hostname(), threads: 1, url: '', scratch: '', pathMaps: [] };
 let redis: Redis | null = null;
@@ -77,24 +82,38 @@ async function variantUnit(job: SandboxedJob): Promise<VariantUnitResult> {
   gen.batchSize = data.batch;
   const directions = data.directions.map((d) => ({ ...d, vector: Float32Array.from(d.vector) }));
   // Batch by batch, as one machine renders the same seeds; each batch's conversion and PNG
-  // encoding run on a thread while the next batch renders.
+  // encoding run on a thread while the next batch renders, and each PNG goes to Redis as its own
+  // binary key as soon as it is encoded: the return value names keys, lengths and hashes only.
   const pool = sharedPngWriter();
+  const redis = connection();
+  const attempt = randomBytes(4).toString('hex');
+  const stored: string[] = [];
   const encoded: Promise<VariantUnitResult['images'][number]>[] = [];
+  let done = false;
   try {
     for (let at = 0; at < data.unit.seeds.length; at += data.batch) {
       if (at > 0) await checkCancelled(data.runId);
       const r = await synthesizeVariantUnit(gen, recipe, directions, { setting: data.unit.setting, seeds: data.unit.seeds.slice(at, at + data.batch) });
+      const pngs = pool.encodeFloatBatch(gen.floatBatch(r.images, r.seeds.length), r.seeds.map((_, k) => k));
       encoded.push(...r.seeds.map(async (seed, k) => {
-        const e = await pool.encodeFloat(gen.floatImage(r.images, k));
+        const e = await pngs[k];
+        const key = keys.result(data.runId, String(job.id), attempt, at + k);
+        stored.push(key);
+        await storePart(redis, key, e.png);
         // Farm units hold seeds only (a recipe with references renders on one machine).
-        return { file: r.files[k], seed: seed!, sha256: e.sha256, png: Buffer.from(e.png.buffer, e.png.byteOffset, e.png.byteLength).toString('base64') };
+        return { file: r.files[k], seed: seed!, key, bytes: e.png.byteLength, sha256: e.sha256 };
       }));
       await job.updateProgress({ worker: settings.name, done: Math.min(data.unit.seeds.length, at + data.batch), total: data.unit.seeds.length });
     }
     const images = await Promise.all(encoded);
+    done = true;
     return { kind: 'variants', worker: settings.name, seconds: (performance.now() - started) / 1000, images };
   } finally {
     await Promise.allSettled(encoded);
+    // A failed or cancelled attempt takes its stored images with it (the run's clean-up and the
+    // keys' expiry catch what a killed one leaves).
+    // Bounded: this connection waits for a Redis that is away, and the worker must not hang here.
+    if (!done && stored.length) await Promise.race([removeParts(redis, stored).catch(() => {}), new Promise((r) => setTimeout(r, CLEANUP_WAIT_MS).unref())]);
   }
 }
 
