@@ -101,7 +101,7 @@ test('audited from its images alone: change maps over the preview, the instrumen
   await page.getByRole('button', { name: 'Open generator…' }).click();
   await page.getByLabel('Path').fill(join(disc, 'disc.onnx'));
   await page.getByRole('button', { name: 'Open', exact: true }).click();
-  await expect(page.getByText(/· 12-d ·/)).toBeVisible({ timeout: 240_000 });
+  await expect(page.getByTestId('model-details')).toHaveAttribute('title', /· 12-d ·/, { timeout: 240_000 });
   await page.getByRole('button', { name: 'Open directions…' }).click();
   await page.getByLabel('Path').fill(join(disc, 'disc-directions.npy'));
   await page.getByRole('button', { name: 'Open', exact: true }).click();

@@ -181,7 +181,9 @@ export class Lab {
     } finally {
       this.studio.busy = null;
     }
-    await Promise.all([this.studio.refreshGrid(), this.studio.requestPreview()]);
+    // The dialog closes as soon as the project is open; the grid and preview repaint behind it
+    // (awaiting them kept a modal dialog over a page that already showed the project).
+    void Promise.all([this.studio.refreshGrid(), this.studio.requestPreview()]);
     return null;
   }
 
