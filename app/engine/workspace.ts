@@ -83,7 +83,9 @@ export class Workspace {
     // Through the path policy: regular files only, caps, everything checked before anything registers.
     const { file: dataFile, directions: dirs } = readDirectionSet(path, gen.layout);
     const loaded = dirs.map((d) => this.register(d, true));
-    for (const d of loaded) this.save(d);
+    // Into the open project only from the window that holds it: another tab of the web shell (or
+    // a read-only window) opens the file to look at, and the project stays as its holder left it.
+    if (!this.#project?.readOnlyHere) for (const d of loaded) this.save(d);
     return { file: dataFile, directions: loaded.map((d) => this.info(d)) };
   }
 
