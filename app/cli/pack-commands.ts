@@ -6,6 +6,7 @@ import { READ_LIMITS, chosenOutputFile, readRegularFile, readTextFile } from '..
 import { DIRECTION_NAME_RULE, isDirectionName } from '../protocol/names.ts';
 import { MAX_STRENGTH } from '../protocol/messages.ts';
 import { writeFileAtomic } from '../core/atomic-write.ts';
+import { samePixels } from '../core/image.ts';
 import { applyEdits, broadcastLayers, directionEdit } from '../core/latent.ts';
 import { decodeNpy } from '../core/npy.ts';
 import { PackError, keyIdOf, type PackFailure } from '../core/pack.ts';
@@ -148,9 +149,13 @@ export function addPackCommands(program: Command, ctx: CliContext, number: (n: s
         if (!d || !spec) throw ctx.usage(`--preview: no direction '${o.preview}' with a preview in the pack`);
         const png = await renderStrip(gen, d, spec);
         writeFileAtomic(join(out, `${d.name}-preview.png`), png);
-        const same = Buffer.from(png).equals(Buffer.from(v.pack.files.get(v.pack.manifest.directions.find((x) => x.name === o.preview)!.preview!)!));
-        process.stdout.write(`${same ? 'identical to' : 'DIFFERS from'} the pack's preview: ${join(out, `${d.name}-preview.png`)}\n`);
-        if (!same) process.exitCode = 1;
+        const previewPath = v.pack.manifest.directions.find((x) => x.name === o.preview)!.preview!;
+        const packed = v.pack.files.get(previewPath)!;
+        // Pixels are what must match: PNG bytes also depend on the encoder's settings, which a
+        // later Plumbline may change without changing a single pixel.
+        const verdict = samePixels(png, packed, previewPath);
+        process.stdout.write(`${verdict.same ? 'identical to' : 'DIFFERS from'} the pack's preview (${verdict.detail}): ${join(out, `${d.name}-preview.png`)}\n`);
+        if (!verdict.same) process.exitCode = 1;
         return;
       }
       if (!o.seeds === !o.latents) throw ctx.usage('apply needs exactly one of --seeds or --latents (or --preview <name>)');

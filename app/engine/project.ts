@@ -19,8 +19,7 @@ import { removeStaleTemps, writeFileAtomic } from '../core/atomic-write.ts';
 import { READ_LIMITS, isHomeOrTemp, projectFile, readRegularFile, readTextFile, systemFolderProblem } from '../core/path-policy.ts';
 import { requestSession } from './request-session.ts';
 import { directionNameKey, directionNameProblem } from '../protocol/names.ts';
-import { encodePng } from '../core/image.ts';
-import { decode as decodePng } from 'fast-png';
+import { decodeOwnPng, encodePng } from '../core/image.ts';
 import { writeDirections } from '../core/direction-files.ts';
 import { parseDirectionsMeta, readDirections, type Direction, type LatentLayout } from '../core/directions.ts';
 import { PlumblineError } from '../core/errors.ts';
@@ -338,7 +337,7 @@ export class Project {
         const [direction] = readDirections(readRegularFile(npy, 'candidate array', READ_LIMITS.npyBytes), npy, meta, layout, key);
         const s = JSON.parse(readTextFile(projectFile(this.dir, `candidates/${key}.strip.json`), 'candidate strip')) as { seeds: number[]; strengths: number[]; png: string[] };
         const images = s.png.map((b) => {
-          const png = decodePng(Buffer.from(b, 'base64'));
+          const png = decodeOwnPng(Buffer.from(b, 'base64'), `candidates/${key}.strip.json`);
           return { width: png.width, height: png.height, rgba: new Uint8Array(png.data.buffer, png.data.byteOffset, png.data.byteLength) };
         });
         return [{ key, direction, strip: { seeds: s.seeds, strengths: s.strengths, images } }];

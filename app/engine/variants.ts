@@ -7,9 +7,8 @@ import { isAbsolute, join, resolve as resolvePath } from 'node:path';
 import { latentFileReference, projectLatentReference, REFERENCE_NAME, type LatentReference } from './references.ts';
 import { createHash } from 'node:crypto';
 import { z } from 'zod';
-import { decode } from 'fast-png';
 import { writeFileAtomic } from '../core/atomic-write.ts';
-import { encodePng, type RgbaImage } from '../core/image.ts';
+import { decodeOwnPng, encodePng, type RgbaImage } from '../core/image.ts';
 import { applyEdits, directionEdit } from '../core/latent.ts';
 import { PlumblineError } from '../core/errors.ts';
 import { parseJsonFile } from '../core/json-file.ts';
@@ -314,8 +313,7 @@ export async function* runVariantSet(
       }
       images.push({ file, seed: columns[i].seed, reference: columns[i].reference?.name ?? null, setting: label, sha256: k.sha256, key });
       if (onSheet.has(i)) {
-        const png = decode(bytes);
-        thumbs.set(file, { width: png.width, height: png.height, data: new Uint8ClampedArray(png.data) });
+        thumbs.set(file, decodeOwnPng(bytes, path));
       }
       reused++;
       return false;

@@ -7,11 +7,11 @@ import assert from 'node:assert/strict';
 import { readFileSync, writeFileSync, mkdirSync } from 'node:fs';
 import { join } from 'node:path';
 import { createHash } from 'node:crypto';
-import { decode } from 'fast-png';
 import { encodePng, PngEncoder, type RgbaImage } from '../../app/core/image.ts';
 import { PngWriterPool } from '../../app/engine/png-writer.ts';
 import { Random } from '../../app/core/random.ts';
 import { tempDir } from '../helpers/models.ts';
+import { decodeRgba } from '../helpers/png.ts';
 import { Generator } from '../../app/engine/generator.ts';
 import { demoCardPath } from '../../app/engine/workspace.ts';
 
@@ -36,7 +36,7 @@ test('images written by the pool are byte-identical to encodePng and decode to t
       assert.equal(w.sha256, createHash('sha256').update(bytes).digest('hex'));
       assert.equal(w.bytes, bytes.length);
       // Outside check: fast-png (an independent PNG decoder) reads back the original pixels.
-      const back = decode(bytes);
+      const back = decodeRgba(bytes);
       assert.equal(back.width, images[k].width);
       assert.deepEqual(new Uint8ClampedArray(back.data), pixels[k]);
     });
@@ -72,7 +72,7 @@ test('float images converted on the pool write the same bytes as toRgba + encode
       assert.deepEqual(new Uint8Array(readFileSync(w.file)), encodePng(rgba), `image ${i}: same bytes`);
       assert.deepEqual(w.pixels?.data, rgba.data, `image ${i}: the pixels sent back are toRgba's`);
       // Outside check: fast-png reads back toRgba's pixels.
-      assert.deepEqual(new Uint8ClampedArray(decode(readFileSync(w.file)).data), rgba.data);
+      assert.deepEqual(decodeRgba(readFileSync(w.file)).data, rgba.data);
     }
     const bad = gen.floatImage(r.images, 0);
     bad.values[17] = Number.NaN;
@@ -117,7 +117,7 @@ test('whole batches handed to the pool write and encode the same bytes as toRgba
         assert.deepEqual(w[k].pixels?.data, k % 2 === 0 ? expected[k].data : undefined, `batch ${b} image ${k}: pixels back only when asked for`);
         assert.deepEqual(e[list.length - 1 - k].png, png, `batch ${b} image ${k}: encoded only, same bytes`);
         // Outside check: fast-png reads back toRgba's pixels.
-        assert.deepEqual(new Uint8ClampedArray(decode(png).data), expected[k].data);
+        assert.deepEqual(decodeRgba(png).data, expected[k].data);
       });
     }
     const r = await gen.renderSeeds([1, 2, 3], 0.7, []);

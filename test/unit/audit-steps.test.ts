@@ -11,7 +11,7 @@ import { test } from 'node:test';
 import assert from 'node:assert/strict';
 import { spawnSync } from 'node:child_process';
 import { existsSync } from 'node:fs';
-import { decode } from 'fast-png';
+import { decodeRgba } from '../helpers/png.ts';
 import { planAudit, auditWorkUnits } from '../../app/core/audit/plan.ts';
 import { directionStatistics, type DirectionMeasurements } from '../../app/core/audit/statistics.ts';
 import { judgeDirection } from '../../app/core/audit/verdict.ts';
@@ -163,7 +163,7 @@ test('the report keeps thumbnails binary: data URIs in the file, a separate bina
   const file = JSON.parse(JSON.stringify(auditReportFile(report)));
   const uri: string = file.directions[0].worstProbes[0].after;
   assert.match(uri, /^data:image\/png;base64,/);
-  const decoded = decode(Buffer.from(uri.slice(uri.indexOf(',') + 1), 'base64'));
+  const decoded = decodeRgba(Buffer.from(uri.slice(uri.indexOf(',') + 1), 'base64'));
   assert.deepEqual([decoded.width, decoded.height, ...decoded.data.slice(0, 4)], [2, 1, 255, 0, 0, 255]);
   const wire = auditReportWire(report);
   assert.equal('before' in wire.report.directions[0].worstProbes[0], false, 'no images inside the wire report');

@@ -2,8 +2,8 @@
 // result is checked (files, seeds, then each PNG fetched from its Redis key: length, hash, PNG
 // header and size) before its images are written.
 import { join } from 'node:path';
-import { decode } from 'fast-png';
 import { writeFileAtomic } from '../../core/atomic-write.ts';
+import { decodeOwnPng } from '../../core/image.ts';
 import type { Generator } from '../generator.ts';
 import { runVariantSet, variantFile, type Recipe, type VariantDirection, type VariantImage, type VariantOptions, type VariantSetResult, type VariantUnit, type VariantUnitRunner } from '../variants.ts';
 import { chosenOutputFolder } from '../../core/path-policy.ts';
@@ -73,8 +73,8 @@ export function farmVariantRunner(farm: Farm, gen: Generator, recipe: Recipe, di
       ready.push(r.images.map((img, k) => {
         const bytes = all[k];
         writeFileAtomic(join(out, img.file), bytes, { durable: false });
-        const png = recipe.seeds.indexOf(img.seed) < 8 ? decode(bytes) : null;
-        return { file: img.file, seed: img.seed, setting: label, sha256: img.sha256, thumb: png ? { width: png.width, height: png.height, data: new Uint8ClampedArray(png.data) } : undefined };
+        const thumb = recipe.seeds.indexOf(img.seed) < 8 ? decodeOwnPng(bytes, img.file) : undefined;
+        return { file: img.file, seed: img.seed, setting: label, sha256: img.sha256, thumb };
       }));
       // Merged: the unit's bytes leave Redis.
       await removeParts(farm.redis, r.images.map((img) => img.key));
