@@ -1,5 +1,6 @@
 // Farm addresses: redis://[user:password@]host:port[/db] → connection options for BullMQ's Redis
-// client, and the same address with the password hidden, for messages and status lines.
+// client, and the same address with the password hidden, for messages and status lines; key scans.
+import type { Redis } from 'ioredis';
 import { PlumblineError } from '../../core/errors.ts';
 
 export interface FarmAddress {
@@ -60,4 +61,19 @@ export function redisOptions(a: FarmAddress, forWorker: boolean) {
     maxRetriesPerRequest: forWorker ? null : 3,
     enableOfflineQueue: true,
   };
+}
+
+/** Every key matching `pattern`, one SCAN batch at a time (never KEYS, which blocks the server while it runs). */
+export async function forEachKeyBatch(redis: Redis, pattern: string, each: (found: string[]) => unknown): Promise<void> {
+  let cursor = '0';
+  do {
+    const [next, found] = await redis.scan(cursor, 'MATCH', pattern, 'COUNT', 500);
+    cursor = next;
+    if (found.length) await each(found);
+  } while (cursor !== '0');
+}
+
+/** Deletes every key matching `pattern`. */
+export async function deleteMatching(redis: Redis, pattern: string): Promise<void> {
+  await forEachKeyBatch(redis, pattern, (found) => redis.del(...found));
 }

@@ -8,7 +8,7 @@ import { FlowProducer, Job, Queue, Worker } from 'bullmq';
 import { Redis } from 'ioredis';
 import type { z } from 'zod';
 import { PlumblineError } from '../../core/errors.ts';
-import { describe, parseFarmUrl, redisOptions, type FarmAddress } from './connection.ts';
+import { describe, forEachKeyBatch, parseFarmUrl, redisOptions, type FarmAddress } from './connection.ts';
 import { publishModel, unpublishModel } from './model-store.ts';
 import { removeRunParts } from './result-store.ts';
 import { keys, RUN_RECORD_TTL_S, runQueueName, UNIT_QUEUE, workerRecordSchema, runRecordSchema, type ModelRef, type RunRecord, type WorkerRecord } from './protocol.ts';
@@ -118,12 +118,7 @@ export class Farm {
 
   async #scan(pattern: string): Promise<string[]> {
     const out: string[] = [];
-    let cursor = '0';
-    do {
-      const [next, batch] = await this.redis.scan(cursor, 'MATCH', pattern, 'COUNT', 200);
-      cursor = next;
-      out.push(...batch);
-    } while (cursor !== '0');
+    await forEachKeyBatch(this.redis, pattern, (found) => out.push(...found));
     return out;
   }
 

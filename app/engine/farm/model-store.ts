@@ -9,6 +9,7 @@ import type { Redis } from 'ioredis';
 import { writeFileAtomic } from '../../core/atomic-write.ts';
 import { PlumblineError } from '../../core/errors.ts';
 import { keys, publishedModelSchema, RUN_RECORD_TTL_S, type PublishedModel } from './protocol.ts';
+import { deleteMatching } from './connection.ts';
 
 /** 4 MiB per chunk: well under Redis's 512 MB string limit and small enough to retry cheaply. */
 export const MODEL_CHUNK_BYTES = 4 * 1024 * 1024;
@@ -52,12 +53,7 @@ export async function unpublishModel(redis: Redis, runId: string): Promise<void>
   const meta = await redis.get(keys.modelMeta(runId));
   if (!meta) {
     // Publishing stopped part way (no list yet): remove whatever chunks it stored.
-    let cursor = '0';
-    do {
-      const [next, found] = await redis.scan(cursor, 'MATCH', keys.modelAll(runId), 'COUNT', 200);
-      cursor = next;
-      if (found.length) await redis.del(...found);
-    } while (cursor !== '0');
+    await deleteMatching(redis, keys.modelAll(runId));
     return;
   }
   const m = publishedModelSchema.parse(JSON.parse(meta));

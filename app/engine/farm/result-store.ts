@@ -6,6 +6,7 @@
 import { createHash } from 'node:crypto';
 import type { Redis } from 'ioredis';
 import { keys, RUN_RECORD_TTL_S, type StoredBytes } from './protocol.ts';
+import { deleteMatching } from './connection.ts';
 
 const sha = (b: Uint8Array) => createHash('sha256').update(b).digest('hex');
 
@@ -41,10 +42,5 @@ export async function removeParts(redis: Redis, names: string[]): Promise<void> 
 
 /** Deletes every stored part of a run (its clean-up). */
 export async function removeRunParts(redis: Redis, runId: string): Promise<void> {
-  let cursor = '0';
-  do {
-    const [next, found] = await redis.scan(cursor, 'MATCH', keys.resultAll(runId), 'COUNT', 500);
-    cursor = next;
-    if (found.length) await redis.del(...found);
-  } while (cursor !== '0');
+  await deleteMatching(redis, keys.resultAll(runId));
 }
