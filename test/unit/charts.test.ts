@@ -181,3 +181,28 @@ test('the change map overlay reads its level back from the PNG exactly as the co
   const half = changeMapImage(Float32Array.from([full / 2]), 1, 1, full);
   assert.ok(Math.abs(changeMapLevel(half.data[0], half.data[1], half.data[2]) - 0.5) < 1 / 255);
 });
+
+test('a direction whose target has no measure is greyed out whole in the heatmap: nothing of it is on the leak colour scale', () => {
+  const unmeasured = { ...report, directions: [{ ...report.directions[0], name: 'glow', target: 'glow_strength', verdict: 'no-measure' }] } as unknown as AuditWire;
+  const cells = heatmapCells(unmeasured);
+  assert.equal(cells.length, 3);
+  assert.ok(cells.every((c) => c.kind === 'unjudged' && !c.isTarget), JSON.stringify(cells.map((c) => c.kind)));
+  assert.match(cells[1].label, /glow → backdrop: 1\.00 σ .*not judged: this direction's target glow_strength has no measure/);
+  assert.doesNotMatch(cells[1].label, /of the target/);
+});
+
+test('a leak of zero with a zero upper bound names no attribute; any other leak names where it went', async () => {
+  const { leakPhrase } = await import('../../renderer/src/lib/format.ts');
+  assert.equal(leakPhrase({ value: 0, low: 0, high: 0, attribute: 'backdrop' }), '0.00 σ (no leak beyond the instrument)');
+  assert.equal(leakPhrase({ value: 0, low: 0, high: 0.12, attribute: 'backdrop' }), '0.00 σ [0.00–0.12] into backdrop');
+  assert.equal(leakPhrase({ value: 0.3141, low: 0.2, high: 0.45, attribute: 'hue' }, 3), '0.314 σ [0.200–0.450] into hue');
+});
+
+test('response curves draw the target and leaks only: not an attribute that is never judged, nor one set aside as within the instrument', () => {
+  const r = {
+    ...report,
+    attributes: [...report.attributes, { name: 'colourfulness', unit: '', source: 'built-in', sigma: 1, judged: false }],
+    directions: [{ ...report.directions[0], dependency: { ...report.directions[0].dependency, colourfulness: iv(3, 2.8, 3.2) }, withinInstrument: [{ attribute: 'hue', noiseFloor: 0.2, crossTalk: 0 }] }],
+  } as unknown as AuditWire;
+  assert.deepEqual(leadingAttributes(r, 'bold', 3), ['size', 'backdrop']);
+});

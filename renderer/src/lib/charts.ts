@@ -38,9 +38,12 @@ export function heatmapCells(report: AuditWire): HeatCell[] {
       const isTarget = a.name === d.target;
       const within = d.withinInstrument?.find((w) => w.attribute === a.name);
       const blind = d.blind?.find((b) => b.attribute === a.name);
-      const kind: HeatKind = isTarget ? 'target' : a.judged === false ? 'unjudged' : within ? 'set-aside' : 'counted';
+      // A direction whose target has no measure is not judged at all: its changes are shown, not counted as leaks.
+      const noMeasure = d.verdict === 'no-measure';
+      const kind: HeatKind = isTarget ? 'target' : a.judged === false || noMeasure ? 'unjudged' : within ? 'set-aside' : 'counted';
       const why =
         kind === 'target' ? ' · target'
+        : noMeasure ? ` · not judged: this direction's target ${d.target} has no measure in this audit, so none of its changes is judged as a leak`
         : kind === 'unjudged' ? ' · reported, not judged: a composite or descriptor, never taken as a leak'
         : kind === 'set-aside' ? ` · set aside, not counted as a leak: within the instrument's own noise floor (${f2(within!.noiseFloor)} σ) or cross-talk (${f2(within!.crossTalk)} σ per σ)${within!.via ? `, explained by the leak into ${within!.via}` : ''}`
         : ` · ${relative.toFixed(2)} of the target`;
@@ -109,11 +112,18 @@ export function curveRows(report: AuditWire, direction: string, attributes?: str
   });
 }
 
-/** The attributes worth drawing for a direction: its target and the k it leaks into most. */
+/** The attributes worth drawing for a direction: its target and the k it leaks into most (judged, beyond the instrument). */
 export function leadingAttributes(report: AuditWire, direction: string, k = 3): string[] {
   const d = report.directions.find((x) => x.name === direction);
   if (!d) return [];
-  const others = Object.entries(d.dependency).filter(([a]) => a !== d.target).sort((a, b) => n(b[1].value) - n(a[1].value)).slice(0, k).map(([a]) => a);
+  // Leaks only: attributes that are judged, and not set aside as within the instrument for this direction.
+  const unjudged = new Set(report.attributes.filter((a) => a.judged === false).map((a) => a.name));
+  const setAside = new Set((d.withinInstrument ?? []).map((w) => w.attribute));
+  const others = Object.entries(d.dependency)
+    .filter(([a]) => a !== d.target && !unjudged.has(a) && !setAside.has(a))
+    .sort((a, b) => n(b[1].value) - n(a[1].value))
+    .slice(0, k)
+    .map(([a]) => a);
   return [d.target, ...others];
 }
 

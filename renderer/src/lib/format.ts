@@ -19,3 +19,14 @@ export function ordinal(v: number): string {
   const teen = n % 100 >= 11 && n % 100 <= 13;
   return `${n}${teen ? 'th' : (['th', 'st', 'nd', 'rd'][n % 10] ?? 'th')}`;
 }
+
+/**
+ * A direction's leakage as the verdict rows say it: "0.31 σ [0.22–0.40] into backdrop". When the
+ * leak and its upper bound are both zero, nothing leaked beyond the instrument, and naming the
+ * attribute that happened to come first would suggest a leak that is not there.
+ */
+export function leakPhrase(l: { value?: number | null; low?: number | null; high?: number | null; attribute: string }, digits = 2): string {
+  const f = (v: number | null | undefined) => (typeof v === 'number' ? v.toFixed(digits) : '—');
+  if (l.value === 0 && l.high === 0) return `${f(0)} σ (no leak beyond the instrument)`;
+  return `${f(l.value)} σ [${f(l.low)}–${f(l.high)}] into ${l.attribute}`;
+}

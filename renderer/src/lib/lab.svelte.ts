@@ -62,6 +62,8 @@ export class Lab {
   reviewer = $state(globalThis.localStorage?.getItem(REVIEWER_KEY) ?? '');
   /** A sign-off step was asked for without a reviewer name (said beside the field until one is typed). */
   reviewerMissing = $state(false);
+  /** An engine's refusal of a sign-off step or a delete, by direction id: shown in that direction's row. */
+  rowErrors = $state<Record<string, string>>({});
   /** Recently opened project folders, newest first. */
   recent = $state<string[]>(readRecent());
   /** Recently opened generators (model cards or .onnx), newest first. */
@@ -145,13 +147,17 @@ export class Lab {
     return this.studio.engine;
   }
 
-  async #guard(label: string, work: () => Promise<void>): Promise<boolean> {
+  async #guard(label: string, work: () => Promise<void>, rowOf?: string): Promise<boolean> {
     this.studio.busy = label;
+    if (rowOf) delete this.rowErrors[rowOf];
     try {
       await work();
       return true;
     } catch (err) {
-      this.studio.banner = { kind: 'error', text: err instanceof EngineRequestError ? err.message : `${label} failed: ${(err as Error).message}` };
+      const text = err instanceof EngineRequestError ? err.message : `${label} failed: ${(err as Error).message}`;
+      // A refusal about one direction is shown in its row, where the user acted; the banner is for the rest.
+      if (rowOf) this.rowErrors[rowOf] = text;
+      else this.studio.banner = { kind: 'error', text };
       return false;
     } finally {
       this.studio.busy = null;
@@ -483,7 +489,7 @@ export class Lab {
       const r = await this.engine.request('directions.delete', { id: direction.id });
       await this.refreshDirections(r.directions);
       this.studio.banner = { kind: 'info', text: `Deleted ${direction.name}; its files are kept in the project's directions/deleted/ and its history stays in the review log.` };
-    });
+    }, direction.id);
   }
 
   /** Records a sign-off step; `override` is the written reason when the audits do not support it. */
@@ -498,7 +504,7 @@ export class Lab {
     return this.#guard(`Recording ${status} for ${direction.name}`, async () => {
       const r = await this.engine.request('project.review', { direction: direction.id, status, reviewer: this.reviewer.trim(), note, ...(override?.trim() ? { override: override.trim() } : {}) });
       this.studio.directions = this.studio.directions.map((d) => (d.id === direction.id ? { ...d, signOff: r.signOff } : d));
-    });
+    }, direction.id);
   }
 
   /** Captures the workbench sliders as one setting of the variant set. */

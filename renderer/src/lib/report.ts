@@ -4,7 +4,7 @@
 // history, overrides spelled out.
 import type { AuditWire, DirectionInfo } from '../../../app/protocol/messages.ts';
 import { attributeColors, heatDomain, heatmapCells, worstProbeCaption, VERDICT_LABEL } from './charts.ts';
-import { formatDate } from './format.ts';
+import { formatDate, leakPhrase } from './format.ts';
 
 export interface ReportInput {
   project: string;
@@ -57,7 +57,7 @@ ${audit.directions.map((d) => `<tr><th>${esc(d.name)}</th>${audit.attributes.map
     const history = (s?.history ?? []).map((h) => `<li>${esc(formatDate(h.at))} — ${esc(h.reviewer)}: ${esc(STATUS[h.status])}${h.note ? ` — ${esc(h.note)}` : ''}${h.override ? ` <b class="ovr">override</b> (${esc(h.gate ?? '')}): “${esc(h.override)}”` : ''}</li>`).join('');
     return `<section><h3>${esc(d.name)} <small>→ ${esc(d.target ?? 'no target')}</small> <span class="st st-${esc(s?.status ?? 'draft')}">${esc(STATUS[s?.status ?? 'draft'])}</span></h3>
 ${a ? `<p><b class="v-${esc(a.verdict)}">${esc(VERDICT_LABEL[a.verdict])}</b> — ${esc(a.reason)}</p>
-<p class="muted">leakage ${a.leakage.value?.toFixed(3)} [${a.leakage.low?.toFixed(3)}–${a.leakage.high?.toFixed(3)}] into ${esc(a.leakage.attribute)} · path length ${a.pathLength.value?.toPrecision(3)} (${esc(a.pathLength.distance)} per σ²) · safe range ${a.safeRange[0]} to ${a.safeRange[1]} σ${typeof a.auditedAt === 'string' ? ` · audited ${esc(formatDate(a.auditedAt))}` : ''}</p>` : '<p class="muted">No audit on record.</p>'}
+<p class="muted">leakage ${esc(leakPhrase(a.leakage, 3))} · path length ${a.pathLength.value?.toPrecision(3)} (${esc(a.pathLength.distance)} per σ²) · safe range ${a.safeRange[0]} to ${a.safeRange[1]} σ${typeof a.auditedAt === 'string' ? ` · audited ${esc(formatDate(a.auditedAt))}` : ''}</p>` : '<p class="muted">No audit on record.</p>'}
 ${s?.gate ? `<p class="muted">Approval gate: ${esc(s.gate.explanation)}.</p>` : ''}
 ${thumbs.length ? `<div class="thumbs">${thumbs.map((t) => ({ ...t, probe: t.reference ? `reference ${esc(t.reference)}` : `seed ${t.seed}`, caption: audit ? worstProbeCaption(audit, d.name, t) : { attribute: null, text: `${t.attribute} ${t.leakage.toFixed(2)}` } })).map((t) => `<figure><img alt="${t.probe} before" src="${pngDataUri(t.before)}"><img alt="${t.probe} at ${t.strength} σ" src="${pngDataUri(t.after)}"><figcaption>${t.probe}: ${t.caption.attribute ? `<span class="sw" style="background:${colours[t.caption.attribute] ?? '#888'}"></span>` : ''}${esc(t.caption.text)}</figcaption></figure>`).join('')}</div>` : ''}
 ${history ? `<ol class="hist">${history}</ol>` : ''}</section>`;
