@@ -206,3 +206,8 @@ test('response curves draw the target and leaks only: not an attribute that is n
   } as unknown as AuditWire;
   assert.deepEqual(leadingAttributes(r, 'bold', 3), ['size', 'backdrop']);
 });
+
+test('response curves leave out attributes the direction does not move at all', () => {
+  const r = { ...report, directions: [{ ...report.directions[0], dependency: { ...report.directions[0].dependency, hue: iv(0, 0, 0.02) } }] } as unknown as AuditWire;
+  assert.deepEqual(leadingAttributes(r, 'bold', 3), ['size', 'backdrop']);
+});

@@ -116,11 +116,12 @@ export function curveRows(report: AuditWire, direction: string, attributes?: str
 export function leadingAttributes(report: AuditWire, direction: string, k = 3): string[] {
   const d = report.directions.find((x) => x.name === direction);
   if (!d) return [];
-  // Leaks only: attributes that are judged, and not set aside as within the instrument for this direction.
+  // Leaks only: attributes that are judged, not set aside as within the instrument for this
+  // direction, and moved at all (a flat line at zero is not a leak worth a colour).
   const unjudged = new Set(report.attributes.filter((a) => a.judged === false).map((a) => a.name));
   const setAside = new Set((d.withinInstrument ?? []).map((w) => w.attribute));
   const others = Object.entries(d.dependency)
-    .filter(([a]) => a !== d.target && !unjudged.has(a) && !setAside.has(a))
+    .filter(([a, v]) => a !== d.target && !unjudged.has(a) && !setAside.has(a) && n(v.value) > 0)
     .sort((a, b) => n(b[1].value) - n(a[1].value))
     .slice(0, k)
     .map(([a]) => a);
