@@ -42,8 +42,9 @@ export function removeStaleTemps(dir: string, now = Date.now()): string[] {
  * `durable: false` skips the fsync: still atomic for readers (rename), but a power cut may lose
  * the newest files. Right for bulk renders that a resumed run re-checks by hash.
  */
-export function writeFileAtomic(file: string, content: Uint8Array | string, options: { durable?: boolean } = {}): void {
-  mkdirSync(dirname(file), { recursive: true });
+export function writeFileAtomic(file: string, content: Uint8Array | string, options: { durable?: boolean; folderExists?: boolean } = {}): void {
+  // `folderExists`: the caller made the folder already (a writer thread writing thousands of files into a few).
+  if (!options.folderExists) mkdirSync(dirname(file), { recursive: true });
   const tmp = join(dirname(file), `.${basename(file)}.${randomBytes(TEMP_RANDOM_BYTES).toString('hex')}.tmp`);
   const bytes = typeof content === 'string' ? new TextEncoder().encode(content) : content;
   const fd = openSync(tmp, 'wx', 0o644);

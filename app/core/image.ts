@@ -86,8 +86,9 @@ export function encodePng(image: RgbaImage): Uint8Array {
 export class PngEncoder {
   #raw = new Uint8Array(0);
 
-  encode(image: RgbaImage): Uint8Array {
-    const channels = isOpaque(image) ? 3 : 4;
+  /** `opaque`: the caller knows every alpha is 255 (tensorToRgba's output), so it is not checked again. */
+  encode(image: RgbaImage, opaque = isOpaque(image)): Uint8Array {
+    const channels = opaque ? 3 : 4;
     const size = (image.width * channels + 1) * image.height;
     if (this.#raw.length !== size) this.#raw = new Uint8Array(size);
     return assemblePng(image, channels, deflateSync(filterRows(image, channels, this.#raw), PNG_DEFLATE));

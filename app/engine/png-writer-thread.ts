@@ -5,6 +5,8 @@ import { parentPort } from 'node:worker_threads';
 import { createHash } from 'node:crypto';
 import { PngEncoder, tensorToRgba, OutputValueError } from '../core/image.ts';
 import { writeFileAtomic } from '../core/atomic-write.ts';
+import { mkdirSync } from 'node:fs';
+import { dirname } from 'node:path';
 
 interface FloatFormat {
   layout: 'NCHW' | 'NHWC';
@@ -39,10 +41,29 @@ interface BatchMessage {
 const encoder = new PngEncoder();
 let pixels = new Uint8ClampedArray(0);
 
-function finish(id: number, file: string, data: Uint8ClampedArray, width: number, height: number, durable: boolean, keepPixels: boolean) {
-  const png = encoder.encode({ width, height, data });
+/** Folders this thread has made (or found): a variant set writes thousands of files into a few. */
+const folders = new Set<string>();
+
+function finish(id: number, file: string, data: Uint8ClampedArray, width: number, height: number, durable: boolean, keepPixels: boolean, opaque?: boolean) {
+  const png = encoder.encode({ width, height, data }, opaque);
   // No file: encode only, and send the bytes back (a farm worker stores them in Redis).
-  if (file) writeFileAtomic(file, png, { durable });
+  if (file) {
+    const folder = dirname(file);
+    if (!folders.has(folder)) {
+      mkdirSync(folder, { recursive: true });
+      if (folders.size >= 4096) folders.clear();
+      folders.add(folder);
+    }
+    try {
+      writeFileAtomic(file, png, { durable, folderExists: true });
+    } catch (err) {
+      // The folder may have been removed since (a new job into a fresh folder of the same name): forget it, make it again.
+      if ((err as NodeJS.ErrnoException).code !== 'ENOENT') throw err;
+      folders.delete(folder);
+      writeFileAtomic(file, png, { durable });
+      folders.add(folder);
+    }
+  }
   const back = keepPixels ? (data.buffer as ArrayBuffer) : undefined;
   const bytes = file ? undefined : (png.buffer as ArrayBuffer);
   parentPort!.postMessage({ id, file, sha256: createHash('sha256').update(png).digest('hex'), bytes: png.length, pixels: back, png: bytes }, [...(back ? [back] : []), ...(bytes ? [bytes] : [])]);
@@ -61,7 +82,8 @@ parentPort!.on('message', (m: WriteMessage | BatchMessage) => {
         // Pixels sent back leave with their buffer; the others reuse this thread's.
         const into = it.keepPixels ? undefined : pixels.length === m.width * m.height * 4 ? pixels : (pixels = new Uint8ClampedArray(m.width * m.height * 4));
         const rgba = tensorToRgba(values, it.index, m.height, m.width, m.float.layout, m.float.range, into);
-        finish(it.id, it.file, rgba.data, m.width, m.height, it.durable, it.keepPixels);
+        // tensorToRgba sets every alpha to 255.
+        finish(it.id, it.file, rgba.data, m.width, m.height, it.durable, it.keepPixels, true);
       } catch (err) {
         failed(it.id, it.file, err);
       }
@@ -70,7 +92,7 @@ parentPort!.on('message', (m: WriteMessage | BatchMessage) => {
   }
   try {
     const data = m.float ? tensorToRgba(new Float32Array(m.buffer), 0, m.height, m.width, m.float.layout, m.float.range).data : new Uint8ClampedArray(m.buffer);
-    finish(m.id, m.file, data, m.width, m.height, m.durable, m.keepPixels ?? false);
+    finish(m.id, m.file, data, m.width, m.height, m.durable, m.keepPixels ?? false, m.float ? true : undefined);
   } catch (err) {
     failed(m.id, m.file, err);
   }

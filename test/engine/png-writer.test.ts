@@ -4,7 +4,7 @@
 // the file (or the generator, for bad values).
 import { test } from 'node:test';
 import assert from 'node:assert/strict';
-import { readFileSync, writeFileSync, mkdirSync } from 'node:fs';
+import { readFileSync, writeFileSync, mkdirSync, rmSync } from 'node:fs';
 import { join } from 'node:path';
 import { createHash } from 'node:crypto';
 import { encodePng, PngEncoder, type RgbaImage } from '../../app/core/image.ts';
@@ -131,6 +131,20 @@ test('whole batches handed to the pool write and encode the same bytes as toRgba
     assert.throws(() => pool.writeFloatBatch(gen.floatBatch(r.images, 3), [{ index: 3, file: join(dir, 'x.png') }]), /image 3 of a batch of 3/);
   } finally {
     await gen.dispose();
+    await pool.close();
+  }
+});
+
+test('a folder removed between two jobs is made again: the pool remembers the folders it made, and forgets one that is gone', async () => {
+  const dir = tempDir();
+  const pool = new PngWriterPool(1);
+  try {
+    const first = await pool.write(noise(5, 4, 1), join(dir, 'set', 'a', 'x.png'));
+    assert.ok(readFileSync(first.file).length > 0);
+    rmSync(join(dir, 'set'), { recursive: true });
+    const again = await pool.write(noise(5, 4, 2), join(dir, 'set', 'a', 'y.png'));
+    assert.deepEqual(new Uint8Array(readFileSync(again.file)), encodePng(noise(5, 4, 2)));
+  } finally {
     await pool.close();
   }
 });
