@@ -13,7 +13,7 @@ import { createHash } from 'node:crypto';
 import { Queue, Worker, type Job } from 'bullmq';
 import { Redis } from 'ioredis';
 import { redisMissing, startRedis, type TestRedis } from '../helpers/redis.ts';
-import { startWorker, type TestWorker } from '../helpers/farm.ts';
+import { running, startWorker, type TestWorker } from '../helpers/farm.ts';
 import { tempDir } from '../helpers/models.ts';
 import { parseFarmUrl, redisOptions } from '../../app/engine/farm/connection.ts';
 import { keys, UNIT_QUEUE } from '../../app/engine/farm/protocol.ts';
@@ -76,7 +76,11 @@ test('a worker killed mid-unit: its unit is retried on another worker after stal
     held = a?.busy ?? '';
     return !!held;
   });
-  await alpha.kill();
+  // Killed alone, as a crash or the out-of-memory killer would: its sandbox must notice and exit
+  // by itself (one once spun a core for minutes after its worker died).
+  const sandboxes = await alpha.killAlone();
+  assert.ok(sandboxes.length > 0, 'alpha had a sandbox process');
+  await until("alpha's sandbox to exit on its own", () => sandboxes.every((pid) => !running(pid)));
   const beta = await startWorker(redis.url, 'beta');
   workers.push(beta);
   assert.equal(await run.done, 0, run.out().stderr);

@@ -1,6 +1,7 @@
 // Farm workers for tests: `plumbline worker` processes in their own process groups (so a test can
 // kill one with its sandbox, as a crash would), with short lock and stall-check times.
 import { spawn, type ChildProcess } from 'node:child_process';
+import { readdirSync, readFileSync } from 'node:fs';
 import { join } from 'node:path';
 
 const root = join(import.meta.dirname, '..', '..');
@@ -15,6 +16,8 @@ export interface TestWorker {
   log: () => string;
   /** SIGKILL to the worker and its sandbox processes (its process group). */
   kill(): Promise<void>;
+  /** SIGKILL to the worker process alone, as a crash would; returns the sandbox processes it had. */
+  killAlone(): Promise<number[]>;
   /** SIGTERM: finish the unit in hand, then stop. */
   stop(): Promise<void>;
 }
@@ -48,6 +51,14 @@ export async function startWorker(url: string, name: string, extra: string[] = [
       process.kill(-child.pid!, 'SIGKILL');
       await waitExit();
     },
+    killAlone: async () => {
+      const sandboxes = childrenOf(child.pid!);
+      if (!exited()) {
+        process.kill(child.pid!, 'SIGKILL');
+        await waitExit();
+      }
+      return sandboxes;
+    },
     stop: async () => {
       if (exited()) return;
       child.kill('SIGTERM');
@@ -60,4 +71,31 @@ export async function startWorker(url: string, name: string, extra: string[] = [
       }
     },
   };
+}
+
+/** Processes whose parent is `pid` (Linux: field 4 of /proc/<pid>/stat). */
+export function childrenOf(pid: number): number[] {
+  const out: number[] = [];
+  for (const entry of readdirSync('/proc')) {
+    if (!/^\d+$/.test(entry)) continue;
+    try {
+      const stat = readFileSync(`/proc/${entry}/stat`, 'utf8');
+      // The command name (field 2) is in parentheses and may hold spaces: fields follow its last ')'.
+      const fields = stat.slice(stat.lastIndexOf(')') + 2).split(' ');
+      if (Number(fields[1]) === pid) out.push(Number(entry));
+    } catch {
+      // gone meanwhile
+    }
+  }
+  return out;
+}
+
+/** Whether a process still runs (a zombie, dead but not yet reaped, counts as gone). */
+export function running(pid: number): boolean {
+  try {
+    const stat = readFileSync(`/proc/${pid}/stat`, 'utf8');
+    return stat.slice(stat.lastIndexOf(')') + 2)[0] !== 'Z';
+  } catch {
+    return false;
+  }
 }

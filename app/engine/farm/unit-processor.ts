@@ -33,6 +33,21 @@ export const WORKER_SETTINGS_ENV = 'PLUMBLINE_FARM_WORKER';
 /** A failed attempt waits this long at most to remove the images it stored (the keys expire anyway). */
 const CLEANUP_WAIT_MS = 5_000;
 
+// The sandbox must not outlive its worker. Killed outright (kill -9, the kernel's out-of-memory
+// killer), the worker cannot stop it. Idle, the sandbox sees its IPC channel close and exits. Busy,
+// its next message (progress, result) fails; BullMQ's handler of the failure sends a message about
+// it, which fails again, round and round in microtasks that never let the 'disconnect' event run:
+// the process spun a core for minutes, deaf to SIGTERM (BullMQ waits for the job). So any message
+// to a worker that is gone ends the process instead.
+if (process.send) {
+  process.once('disconnect', () => process.exit(1));
+  const send = process.send.bind(process) as (...args: unknown[]) => boolean;
+  process.send = ((...args: unknown[]) => {
+    if (!process.connected) process.exit(1);
+    return send(...args);
+  }) as typeof process.send;
+}
+
 const settings: WorkerSettings = JSON.parse(process.env[WORKER_SETTINGS_ENV] ?? 'null') ?? { name: hostname(), threads: 1, url: '', scratch: '', pathMaps: [] };
 let redis: Redis | null = null;
 const connection = () => (redis ??= new Redis(redisOptions(parseFarmUrl(settings.url, settings.password), true)));
