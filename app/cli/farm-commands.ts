@@ -30,7 +30,7 @@ export function addFarmCommands(program: Command, ctx: CliContext, integer: (nam
   program
     .command('worker')
     .description('render work units from a farm (Redis) until stopped with Ctrl+C')
-    .requiredOption('--farm <url>', `the farm's Redis: redis://[user:password@]host:port (or the password in ${FARM_PASSWORD_ENV})`)
+    .requiredOption('--farm <url>', `the farm's Redis: redis://[user:password@]host:port[/db] (a password is better in ${FARM_PASSWORD_ENV}: it stays out of shell history and process lists)`)
     .option('--threads <n>', 'inference threads for this worker', integer('--threads', 1, 256), 1)
     .option('--name <name>', 'worker name shown in farm status (default: host-pid)')
     .option('--path-map <from=to>', "map the coordinator's generator path prefix to this machine's; repeatable", (v: string, prev: [string, string][]) => parsePathMap(v, prev, ctx.usage), [] as [string, string][])
@@ -64,7 +64,7 @@ export function addFarmCommands(program: Command, ctx: CliContext, integer: (nam
   farm
     .command('status')
     .description('list the workers (name, threads, generator, images/s) and the runs of a farm')
-    .requiredOption('--farm <url>', "the farm's Redis: redis://[user:password@]host:port")
+    .requiredOption('--farm <url>', `the farm's Redis: redis://[user:password@]host:port[/db] (password: ${FARM_PASSWORD_ENV})`)
     .option('--json', 'print JSON')
     .action(async (o) => {
       const f = await Farm.connect(o.farm, farmPassword());

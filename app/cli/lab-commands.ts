@@ -251,7 +251,7 @@ export function addLabCommands(program: Command, ctx: CliContext, number: (n: st
     .option('--resamples <n>', 'bootstrap resamples', integer('--resamples', 200, 100_000), 1000)
     .option('--json <file>', 'write the full report as JSON')
     .option('--threads <n>', 'inference threads', integer('--threads', 1, 256))
-    .option('--farm <url>', 'render and score on a farm: redis://[user:password@]host:port (workers: plumbline worker)')
+    .option('--farm <url>', 'render and score on a farm: redis://[user:password@]host:port[/db] (password: PLUMBLINE_FARM_PASSWORD; workers: plumbline worker)')
     .option('--no-publish-model', 'on a farm, do not publish the generator files through Redis (workers read them from shared storage)')
     .action(async (o) => {
       if (o.farm && (o.scorer.length || o.featureScorer)) throw ctx.usage('--farm audits built-in attributes only; leave out --scorer and --feature-scorer, or audit on this machine');
@@ -294,7 +294,9 @@ export function addLabCommands(program: Command, ctx: CliContext, number: (n: st
         const attributes = ['default', 'card', 'image', 'all'].includes(o.attributes) ? o.attributes : String(o.attributes).split(',');
         const gen = workspace.requireGenerator();
         farm = o.farm ? await Farm.connect(o.farm, farmPassword()) : null;
-        const measure = farm ? farmAuditMeasurer(farm, attributes, { fingerprint: gen.info.fingerprint, files: gen.info.files, modelPath: resolve(o.model ?? demoCardPath()), publish: o.publishModel, isCancelled: () => ctx.interrupt.aborted, onProgress: (p) => (progress = p) }) : undefined;
+        const idle = farm ? await farm.noWorkersWarning() : null;
+        if (idle) process.stderr.write(`warning: ${idle}\n`);
+        const measure = farm ? farmAuditMeasurer(farm, attributes, { fingerprint: gen.info.fingerprint, files: gen.info.files, modelPath: resolve(o.model ?? demoCardPath()), publish: o.publishModel, isCancelled: () => ctx.interrupt.aborted, onProgress: (p) => (progress = p), onNote: (line) => process.stderr.write(`farm: ${line}\n`) }) : undefined;
         const steps = runAudit(gen, dirs, {
           probes: o.probes,
           pinnedSeeds: pinned,

@@ -1,5 +1,5 @@
 // The plumbline command line: the same core and engine as the app, in-process, no UI.
-// Exit codes: 0 success, 1 failure, 2 invalid input, 130 cancelled (SIGINT).
+// Exit codes: 0 success, 1 failure, 2 invalid input, 130 cancelled (SIGINT or SIGTERM).
 import { Command, CommanderError, InvalidArgumentError } from 'commander';
 import { createHash } from 'node:crypto';
 import { join, resolve } from 'node:path';
@@ -28,6 +28,13 @@ process.on('SIGINT', () => {
   if (interrupt.signal.aborted) process.exit(EXIT.cancelled);
   interrupt.abort(new Error('interrupted (Ctrl+C)'));
   process.stderr.write('\ncancelling after the current batch… (Ctrl+C again to stop now)\n');
+});
+// SIGTERM (timeout, a job scheduler, CI) is a cancel too: a farm run's units are withdrawn and its
+// record closed, as on Ctrl+C, instead of a run left "running" with units queued for nobody.
+process.on('SIGTERM', () => {
+  if (interrupt.signal.aborted) process.exit(EXIT.cancelled);
+  interrupt.abort(new Error('terminated (SIGTERM)'));
+  process.stderr.write('\nterminated: cancelling after the current batch… (SIGTERM again to stop now)\n');
 });
 
 /** Option parsers carry the range they accept, so --help states exactly what is accepted. */

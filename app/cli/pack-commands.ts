@@ -17,7 +17,7 @@ import { buildPack, renderStrip, verifyPack, type VerifyResult } from '../engine
 import { Project, directionUses } from '../engine/project.ts';
 import { parseSeeds } from './seeds.ts';
 import { runCliJob } from './jobs.ts';
-import { parseRecipe, renderVariants, resolveRecipeReferences, type VariantDirection } from '../engine/variants.ts';
+import { parseRecipe, renderVariants, replacedText, resolveRecipeReferences, type VariantDirection } from '../engine/variants.ts';
 import { driveSteps } from '../engine/handlers/context.ts';
 import { checkUse, useViolations } from '../core/signoff-rules.ts';
 import { loadDirections, openWorkspace, type CliContext } from './lab-commands.ts';
@@ -233,7 +233,7 @@ export function addPackCommands(program: Command, ctx: CliContext, number: (n: s
     .option('--trust <key.pem>', 'with --pack: require a signature by this Ed25519 public key (PEM); repeatable', collect, [] as string[])
     .option('--project <dir>', "the project whose sign-off and audited safe ranges apply (as in the app), whose directions are used when no --directions or --pack is given, and whose named references the recipe may name")
     .requiredOption('-o, --out <dir>', 'output folder; rerun the same command to resume')
-    .option('--farm <url>', 'render on a farm: redis://[user:password@]host:port (workers: plumbline worker)')
+    .option('--farm <url>', 'render on a farm: redis://[user:password@]host:port[/db] (password: PLUMBLINE_FARM_PASSWORD; workers: plumbline worker)')
     .option('--no-publish-model', 'on a farm, do not publish the generator files through Redis (workers read them from shared storage)')
     .action(async (o) => withPackErrors(async () => {
       if (o.directions && o.pack) throw ctx.usage('give one of --directions or --pack, not both');
@@ -259,17 +259,19 @@ export function addPackCommands(program: Command, ctx: CliContext, number: (n: s
           process.stderr.write(`warning: no sign-off or safe range to check: ${o.directions} is not part of a project or pack; pass --project <dir> to apply its sign-off, or use --pack\n`);
         }
         const farm = o.farm ? await Farm.connect(o.farm, farmPassword()) : null;
+        const idle = farm ? await farm.noWorkersWarning() : null;
+        if (idle) process.stderr.write(`warning: ${idle}\n`);
         let progress: RunProgress | null = null;
         try {
           const force = o.force ? { reason: o.reason ?? '' } : null;
           const references = resolveRecipeReferences(recipe, dirname(recipeFile), o.project ? resolve(o.project) : null, gen);
           if (farm && references.length) throw ctx.usage('a recipe with references renders on this machine only: run it without --farm');
           const steps = farm
-            ? renderVariantsOnFarm(farm, gen, recipe, dirs, resolve(o.out), { force, modelPath: resolve(o.model ?? demoCardPath()), publish: o.publishModel, isCancelled: () => ctx.interrupt.aborted, onProgress: (p) => (progress = p) })
+            ? renderVariantsOnFarm(farm, gen, recipe, dirs, resolve(o.out), { force, modelPath: resolve(o.model ?? demoCardPath()), publish: o.publishModel, isCancelled: () => ctx.interrupt.aborted, onProgress: (p) => (progress = p), onNote: (line) => process.stderr.write(`farm: ${line}\n`) })
             : renderVariants(gen, recipe, dirs, resolve(o.out), { force, references });
           const done = await runCliJob(ctx, workspace, 'variants', 'stopped; run the same command again to resume', (job) => driveSteps(steps, job));
           if (progress) process.stderr.write(farmSummary(progress));
-          if (done) process.stdout.write(`${recipe.name}: ${done.rendered} rendered${done.replaced ? ` (${done.replaced} replaced: their recipe entry changed)` : ''}, ${done.reused} kept from an earlier run; manifest.json and contact-sheet.png in ${resolve(o.out)}\n`);
+          if (done) process.stdout.write(`${recipe.name}: ${done.rendered} rendered${done.replaced ? ` (${done.replaced} replaced: ${replacedText(done.replacedWhy)})` : ''}, ${done.reused} kept from an earlier run; manifest.json and contact-sheet.png in ${resolve(o.out)}\n`);
         } finally {
           await farm?.close();
         }

@@ -160,6 +160,21 @@ export interface VariantSetResult {
   rendered: number;
   reused: number;
   replaced: number;
+  /**
+   * Why files on disk were rendered again: `changed`, their recipe entry changed (another key);
+   * `unlisted`, the manifest did not list them (an earlier run stopped before recording them);
+   * `altered`, the file no longer matched its recorded SHA-256.
+   */
+  replacedWhy: { changed: number; unlisted: number; altered: number };
+}
+
+/** The CLI's words for VariantSetResult.replacedWhy: "64 not yet in the manifest when an earlier run stopped". */
+export function replacedText(why: VariantSetResult['replacedWhy']): string {
+  return [
+    why.unlisted ? `${why.unlisted} not yet in the manifest when an earlier run stopped` : '',
+    why.changed ? `${why.changed} whose recipe entry changed` : '',
+    why.altered ? `${why.altered} changed on disk since they were written` : '',
+  ].filter(Boolean).join(', ');
 }
 
 /** Units in a fixed order: setting by setting, seeds in chunks of `perUnit` — the same on one machine and on a farm. */
@@ -278,6 +293,7 @@ export async function* runVariantSet(
   let rendered = 0;
   let reused = 0;
   let replaced = 0;
+  const replacedWhy = { changed: 0, unlisted: 0, altered: 0 };
   const writeManifest = (complete: boolean) =>
     writeFileAtomic(manifestFile, JSON.stringify({
       format: 'plumbline.variants', version: 1, recipe: recipe.name, complete, createdAt: new Date().toISOString(),
@@ -304,11 +320,13 @@ export async function* runVariantSet(
       if (!existsSync(path)) return true;
       if (!k || k.key !== key) {
         replaced++;
+        replacedWhy[k ? 'changed' : 'unlisted']++;
         return true;
       }
       const bytes = readFileSync(path);
       if (sha(bytes) !== k.sha256) {
         replaced++;
+        replacedWhy.altered++;
         return true;
       }
       images.push({ file, seed: columns[i].seed, reference: columns[i].reference?.name ?? null, setting: label, sha256: k.sha256, key });
@@ -352,7 +370,7 @@ export async function* runVariantSet(
   images.sort((a, b) => a.file.localeCompare(b.file));
   writeManifest(true);
   writeFileAtomic(join(out, 'contact-sheet.png'), encodePng(contactSheet(recipe, sheetColumns(columns), thumbs)));
-  return { manifest: JSON.parse(readFileSync(manifestFile, 'utf8')), rendered, reused, replaced };
+  return { manifest: JSON.parse(readFileSync(manifestFile, 'utf8')), rendered, reused, replaced, replacedWhy };
 }
 
 const sha = (b: Uint8Array) => createHash('sha256').update(b).digest('hex');

@@ -32,7 +32,7 @@ test('a folder rendered with recipe A and resumed with recipe B holds exactly B'
   const second = cli('variants', '--recipe', b, '-d', directions, '--out', out);
   assert.equal(second.status, 0, second.stderr);
   // 'base' is identical in both recipes (no edits): its 4 images are rightly kept.
-  assert.match(second.stdout, /8 rendered \(8 replaced: their recipe entry changed\), 4 kept/);
+  assert.match(second.stdout, /8 rendered \(8 replaced: 8 whose recipe entry changed\), 4 kept/);
   const clean = join(dir, 'clean');
   assert.equal(cli('variants', '--recipe', b, '-d', directions, '--out', clean).status, 0);
   assert.deepEqual(pngs(out), pngs(clean));
@@ -42,6 +42,18 @@ test('a folder rendered with recipe A and resumed with recipe B holds exactly B'
   assert.ok(manifest.images.every((i: any) => /^[0-9a-f]{64}$/.test(i.key)), 'each image records the key of the recipe entry that made it');
   const third = cli('variants', '--recipe', b, '-d', directions, '--out', out);
   assert.match(third.stdout, /0 rendered, 12 kept/, 'an unchanged recipe resumes without rendering');
+  // A run that stopped before its manifest listed some images, and a file edited since: each
+  // replacement says why (not "recipe entry changed", which is not so).
+  const m = JSON.parse(readFileSync(join(out, 'manifest.json'), 'utf8'));
+  const dropped = m.images.filter((i: any) => i.setting === 'warm').map((i: any) => i.file);
+  m.images = m.images.filter((i: any) => i.setting !== 'warm');
+  writeFileSync(join(out, 'manifest.json'), JSON.stringify(m));
+  writeFileSync(join(out, m.images[0].file), 'not the image any more');
+  const fourth = cli('variants', '--recipe', b, '-d', directions, '--out', out);
+  assert.equal(fourth.status, 0, fourth.stderr);
+  assert.equal(dropped.length, 4);
+  assert.match(fourth.stdout, /5 rendered \(5 replaced: 4 not yet in the manifest when an earlier run stopped, 1 changed on disk since they were written\), 7 kept/);
+  for (const f of pngs(clean)) assert.ok(readFileSync(join(out, f)).equals(readFileSync(join(clean, f))), `${f} matches a clean render of B again`);
 });
 
 test('a folder holding someone else\'s manifest.json is not overwritten', () => {

@@ -250,7 +250,7 @@ export function farmAuditMeasurer(farm: Farm, selection: AttributeSelection, o: 
     let counted = 0;
     const run = farm.run({
       kind: 'audit', label: `audit of ${directions.map((d) => d.name).join(', ')}`, units, schema: auditUnitResultSchema, check,
-      model: { fingerprint: o.fingerprint, files: o.files, path: o.modelPath, mappingPath: o.mappingPath }, publish: o.publish, isCancelled: o.isCancelled,
+      model: { fingerprint: o.fingerprint, files: o.files, path: o.modelPath, mappingPath: o.mappingPath }, publish: o.publish, isCancelled: o.isCancelled, onNote: o.onNote,
     }, accept);
     for await (const p of run) {
       o.onProgress?.(p);

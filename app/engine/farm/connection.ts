@@ -77,3 +77,14 @@ export async function forEachKeyBatch(redis: Redis, pattern: string, each: (foun
 export async function deleteMatching(redis: Redis, pattern: string): Promise<void> {
   await forEachKeyBatch(redis, pattern, (found) => redis.del(...found));
 }
+
+/**
+ * Whether an error means Redis could not be reached or answered (a restart, a network break), as
+ * opposed to an answer that was wrong: ioredis gives up a command after its retries
+ * (MaxRetriesPerRequestError) or finds the connection closed.
+ */
+export function isConnectionError(err: unknown): boolean {
+  if (!(err instanceof Error)) return false;
+  const code = (err as NodeJS.ErrnoException).code ?? '';
+  return err.name === 'MaxRetriesPerRequestError' || ['ECONNREFUSED', 'ECONNRESET', 'EPIPE', 'ETIMEDOUT', 'EHOSTUNREACH', 'ENETUNREACH'].includes(code) || /Connection is closed|Stream isn't writeable|Redis did not answer/.test(err.message);
+}

@@ -8,7 +8,7 @@ import { FlowProducer, Job, Queue, Worker } from 'bullmq';
 import { Redis } from 'ioredis';
 import type { z } from 'zod';
 import { PlumblineError } from '../../core/errors.ts';
-import { describe, forEachKeyBatch, parseFarmUrl, redisOptions, type FarmAddress } from './connection.ts';
+import { describe, forEachKeyBatch, isConnectionError, parseFarmUrl, redisOptions, type FarmAddress } from './connection.ts';
 import { publishModel, unpublishModel } from './model-store.ts';
 import { removeRunParts } from './result-store.ts';
 import { keys, RUN_RECORD_TTL_S, runQueueName, UNIT_QUEUE, workerRecordSchema, runRecordSchema, type ModelRef, type RunRecord, type WorkerRecord } from './protocol.ts';
@@ -62,6 +62,8 @@ export interface RunOptions<R> {
   check: (unit: FarmUnit, result: R, where: { runId: string; jobId: string }) => number | Promise<number>;
   isCancelled?: () => boolean;
   attempts?: number;
+  /** Told when a unit leaves the worker that held it and goes round again. */
+  onNote?: (line: string) => void;
 }
 
 export class Farm {
@@ -85,13 +87,21 @@ export class Farm {
     } catch (err) {
       farm.redis.disconnect();
       const m = ((refusal as Error | null) ?? (err as Error)).message;
-      throw new PlumblineError('farm', /NOAUTH|WRONGPASS|AUTH/i.test(m) ? `the farm's Redis at ${describe(farm.address)} refused the password or user: ${m}` : `cannot reach the farm's Redis at ${describe(farm.address)}: ${m}`);
+      const hint = farm.address.password === undefined ? ' (no password was given: set PLUMBLINE_FARM_PASSWORD, or user:password in the URL)' : '';
+      const tls = farm.address.tls && /no answer/.test(m) ? ' (rediss:// speaks TLS: is this Redis set up for TLS?)' : '';
+      throw new PlumblineError('farm', /NOAUTH|WRONGPASS|AUTH/i.test(m) ? `the farm's Redis at ${describe(farm.address)} refused the password or user${hint}: ${m}` : `cannot reach the farm's Redis at ${describe(farm.address)}${tls}: ${m}`);
     }
     return farm;
   }
 
   async close(): Promise<void> {
     this.redis.disconnect();
+  }
+
+  /** A warning when no worker is announced on this farm (and database): a run would wait, silently, for one. */
+  async noWorkersWarning(): Promise<string | null> {
+    if ((await this.workers()).length > 0) return null;
+    return `no worker is on the farm at ${describe(this.address)}${this.address.db ? ` (database ${this.address.db}: workers must name the same one)` : ''}; the run waits until one starts (plumbline worker --farm …)`;
   }
 
   async workers(): Promise<WorkerRecord[]> {
@@ -151,6 +161,8 @@ export class Farm {
     const byId = new Map<string, FarmUnit>();
     const finished = new Set<string>();
     const workers = new Map<string, WorkerProgress>();
+    /** Which worker held each running unit at the last poll. */
+    const holders = new Map<string, string>();
     let parentId = '';
     let cancelled = false;
     try {
@@ -175,11 +187,16 @@ export class Farm {
         if (!cancelled && o.isCancelled?.()) {
           cancelled = true;
           cancelAt = Date.now();
-          await this.redis.set(keys.cancel(runId), '1', 'EX', RUN_RECORD_TTL_S);
-          // Units not yet started are removed; running ones stop at their next batch.
-          for (const id of byId.keys()) {
-            const job = await Job.fromId(units, id);
-            if (job && ['waiting', 'delayed', 'prioritized', 'wait'].includes(await job.getState())) await job.remove().catch(() => {});
+          try {
+            await this.redis.set(keys.cancel(runId), '1', 'EX', RUN_RECORD_TTL_S);
+            // Units not yet started are removed; running ones stop at their next batch.
+            for (const id of byId.keys()) {
+              const job = await Job.fromId(units, id);
+              if (job && ['waiting', 'delayed', 'prioritized', 'wait'].includes(await job.getState())) await job.remove().catch(() => {});
+            }
+          } catch (err) {
+            // Redis away: the clean-up below flags and removes them again, if it can.
+            if (!isConnectionError(err)) throw err;
           }
         }
         let states: { id: string; job: Job | undefined; state: string; by: string | null; progress: string | null }[];
@@ -220,6 +237,13 @@ export class Farm {
           if (state === 'failed' && job) {
             throw new PlumblineError('farm', `run ${runId} failed: unit ${unit.name} failed ${job.attemptsMade} time(s); last on worker ${by}: ${job.failedReason}`);
           }
+          // A unit that left its worker (it died, stalled or failed the attempt) goes round again: say so.
+          const held = holders.get(id);
+          if (held !== undefined && ((state === 'active' && processedBy && processedBy !== held) || ['waiting', 'wait', 'delayed', 'prioritized'].includes(state))) {
+            o.onNote?.(`unit ${unit.name} left worker ${held} (it stopped, stalled or failed the attempt)${state === 'active' ? `; now on worker ${processedBy}` : '; it waits for a worker'}`);
+            holders.delete(id);
+          }
+          if (state === 'active' && processedBy) holders.set(id, processedBy);
           // A unit's progress is a JSON object once its worker has reported a batch.
           if (state === 'active' && progress?.startsWith('{')) {
             const w = workers.get(by) ?? { worker: by, units: 0, images: 0, seconds: 0, imagesPerSecond: 0, busy: null };
@@ -233,6 +257,11 @@ export class Farm {
           try {
             images = await o.check(unit, parsed.data, { runId, jobId: id });
           } catch (err) {
+            // Redis away while fetching the unit's bytes is no fault of the result: read it again at the next poll.
+            if (isConnectionError(err)) {
+              if (Date.now() - lastContact > REDIS_SILENCE_LIMIT_MS) throw new PlumblineError('farm', `lost the farm's Redis at ${describe(this.address)} for ${REDIS_SILENCE_LIMIT_MS / 1000} s: ${(err as Error).message}`);
+              break;
+            }
             throw new PlumblineError('farm', `result of unit ${unit.name} from worker ${(parsed.data as { worker?: string }).worker ?? by} rejected: ${(err as Error).message}`);
           }
           await accept(unit, parsed.data);
@@ -257,6 +286,8 @@ export class Farm {
     } catch (err) {
       record.state = cancelled ? 'cancelled' : 'failed';
       record.message = (err as Error).message;
+      // Whatever Redis call met the outage, the run fails saying so, not with the client's own words alone.
+      if (!(err instanceof PlumblineError) && isConnectionError(err)) throw new PlumblineError('farm', `run ${runId} failed: lost the farm's Redis at ${describe(this.address)} (${(err as Error).message}); run the same command again when it is back${o.kind === 'variants' ? ' (finished images are kept)' : ''}`);
       throw err;
     } finally {
       if (record.state === 'running') {

@@ -28,6 +28,8 @@ export interface FarmRunOptions {
   publish?: boolean;
   isCancelled?: () => boolean;
   onProgress?: (p: RunProgress) => void;
+  /** Told when a unit leaves the worker that held it (the worker died, stalled or failed the attempt) and is retried. */
+  onNote?: (line: string) => void;
 }
 
 export function farmVariantRunner(farm: Farm, gen: Generator, recipe: Recipe, directions: VariantDirection[], out: string, o: FarmRunOptions): VariantUnitRunner {
@@ -76,12 +78,12 @@ export function farmVariantRunner(farm: Farm, gen: Generator, recipe: Recipe, di
         const thumb = recipe.seeds.indexOf(img.seed) < 8 ? decodeOwnPng(bytes, img.file) : undefined;
         return { file: img.file, seed: img.seed, setting: label, sha256: img.sha256, thumb };
       }));
-      // Merged: the unit's bytes leave Redis.
-      await removeParts(farm.redis, r.images.map((img) => img.key));
+      // Merged: the unit's bytes leave Redis (if Redis is away now, the run's clean-up or the keys' expiry takes them).
+      await removeParts(farm.redis, r.images.map((img) => img.key)).catch(() => {});
     };
     const run = farm.run({
       kind: 'variants', label: `variants ${recipe.name}`, units, schema: variantUnitResultSchema, check,
-      model: { fingerprint: gen.info.fingerprint, files: gen.info.files, path: o.modelPath, mappingPath: o.mappingPath }, publish: o.publish, isCancelled: o.isCancelled,
+      model: { fingerprint: gen.info.fingerprint, files: gen.info.files, path: o.modelPath, mappingPath: o.mappingPath }, publish: o.publish, isCancelled: o.isCancelled, onNote: o.onNote,
     }, accept);
     for await (const p of run) {
       o.onProgress?.(p);

@@ -35,17 +35,32 @@ const CLEANUP_WAIT_MS = 5_000;
 
 // The sandbox must not outlive its worker. Killed outright (kill -9, the kernel's out-of-memory
 // killer), the worker cannot stop it. Idle, the sandbox sees its IPC channel close and exits. Busy,
-// its next message (progress, result) fails; BullMQ's handler of the failure sends a message about
-// it, which fails again, round and round in microtasks that never let the 'disconnect' event run:
-// the process spun a core for minutes, deaf to SIGTERM (BullMQ waits for the job). So any message
-// to a worker that is gone ends the process instead.
+// its next message (progress, result) fails (EPIPE) before the channel's closing is noticed;
+// BullMQ's handler of that failure sends a message about it, which fails again, round and round
+// in next-tick callbacks that never let the event loop (and the 'disconnect' event) run: the
+// process spun a core for minutes, deaf to SIGTERM (BullMQ waits for the job). So a message that
+// cannot reach the worker ends the process instead.
 if (process.send) {
   process.once('disconnect', () => process.exit(1));
   const send = process.send.bind(process) as (...args: unknown[]) => boolean;
   process.send = ((...args: unknown[]) => {
     if (!process.connected) process.exit(1);
-    return send(...args);
+    const last = args.length - 1;
+    if (typeof args[last] === 'function') {
+      const callback = args[last] as (err: Error | null) => void;
+      args[last] = (err: Error | null) => (channelGone(err) ? process.exit(1) : callback(err));
+    }
+    try {
+      return send(...args);
+    } catch (err) {
+      if (channelGone(err)) process.exit(1);
+      throw err;
+    }
   }) as typeof process.send;
+}
+
+function channelGone(err: unknown): boolean {
+  return ['EPIPE', 'ECONNRESET', 'ERR_IPC_CHANNEL_CLOSED'].includes((err as NodeJS.ErrnoException | null)?.code ?? '');
 }
 
 const settings: WorkerSettings = JSON.parse(process.env[WORKER_SETTINGS_ENV] ?? 'null') ?? { name: hostname(), threads: 1, url: '', scratch: '', pathMaps: [] };

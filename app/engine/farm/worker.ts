@@ -9,6 +9,7 @@ import { Worker, type Job } from 'bullmq';
 import { Redis } from 'ioredis';
 import { describe, parseFarmUrl, redisOptions } from './connection.ts';
 import { keys, UNIT_QUEUE, WORKER_HEARTBEAT_MS, type WorkerRecord } from './protocol.ts';
+import { Farm } from './coordinator.ts';
 import { WORKER_SETTINGS_ENV, type WorkerSettings } from './unit-processor.ts';
 
 export interface WorkerOptions {
@@ -49,7 +50,19 @@ export async function startFarmWorker(o: WorkerOptions): Promise<RunningWorker> 
   // The sandbox is a child process of this one and inherits its environment.
   process.env[WORKER_SETTINGS_ENV] = JSON.stringify(settings);
   const log = o.log ?? (() => {});
+  // One clear answer before anything starts: a refused password or an unreachable Redis ends the
+  // command with the same words as farm status, instead of retrying forever.
+  await (await Farm.connect(o.url, o.password)).close();
+  // Later outages are ridden out (the clients reconnect); each kind of error is said once a minute, not per retry.
+  const said = new Map<string, number>();
+  const calmly = (err: Error) => {
+    const now = Date.now();
+    if (now - (said.get(err.message) ?? 0) < 60_000) return;
+    said.set(err.message, now);
+    log(`${name}: ${err.message}${/ECONNREFUSED|ECONNRESET|closed/.test(err.message) ? ' (Redis away; retrying until it is back)' : ''}`);
+  };
   const redis = new Redis(redisOptions(address, true));
+  redis.on('error', calmly);
   const record: WorkerRecord = { name, host: hostname(), threads, fingerprint: null, imagesPerSecond: null, units: 0, busy: null, since: new Date().toISOString() };
   const announce = () => redis.set(keys.worker(name), JSON.stringify(record), 'PX', 3 * WORKER_HEARTBEAT_MS).catch(() => {});
   await announce();
@@ -86,7 +99,7 @@ export async function startFarmWorker(o: WorkerOptions): Promise<RunningWorker> 
     log(`${name}: ${job?.data?.unitName ?? job?.id ?? 'a unit'} failed: ${err.message}`);
     void announce();
   });
-  worker.on('error', (err: Error) => log(`${name}: ${err.message}`));
+  worker.on('error', calmly);
   await worker.waitUntilReady();
   log(`worker ${name} (${threads} thread${threads > 1 ? 's' : ''}) waiting for units on ${describe(address)}; scratch ${scratch}`);
   return {
