@@ -250,3 +250,24 @@ test('a Redis that is away is told apart from a Redis that answered wrongly: onl
   assert.equal(isConnectionError(wrong), false);
   assert.equal(isConnectionError(new Error('image 3 is not a PNG')), false);
 });
+
+test('a run on a farm database without workers warns that it will wait; SIGTERM then cancels it as Ctrl+C does, leaving no units queued for nobody', { skip }, async () => {
+  const dir = tempDir();
+  const recipe = writeRecipe(dir, 'unserved', 8);
+  // Database 5: the workers of the other tests (and of the default database) do not serve it.
+  const url = `${redis.url}/5`;
+  const r = cliAsync('variants', '--recipe', recipe, '-d', directions, '--out', join(dir, 'out'), '--farm', url);
+  await until('the warning', () => /no worker is on the farm at .*\/5 \(database 5: workers must name the same one\); the run waits/.test(r.out().stderr), 30_000);
+  const queue = new Queue(UNIT_QUEUE, { connection: redisOptions(parseFarmUrl(url), false) });
+  try {
+    await until('its units queued', async () => (await queue.getJobCounts('waiting')).waiting > 0, 30_000);
+    r.child.kill('SIGTERM');
+    assert.equal(await r.done, 130, r.out().stderr);
+    const counts = await queue.getJobCounts('waiting', 'active', 'delayed', 'prioritized', 'waiting-children');
+    assert.ok(Object.values(counts).every((n) => n === 0), JSON.stringify(counts));
+  } finally {
+    await queue.close();
+  }
+  const runs = JSON.parse(cli('farm', 'status', '--farm', url, '--json').stdout).runs;
+  assert.equal(runs.at(-1).state, 'cancelled');
+});
