@@ -29,6 +29,7 @@ test('a folder rendered with recipe A and resumed with recipe B holds exactly B'
   const first = cli('variants', '--recipe', a, '-d', directions, '--out', out);
   assert.equal(first.status, 0, first.stderr);
   assert.match(first.stdout, /12 rendered, 0 kept/);
+  assert.doesNotMatch(first.stdout, /the sheet shows/, 'four seeds: the sheet shows every one');
   const second = cli('variants', '--recipe', b, '-d', directions, '--out', out);
   assert.equal(second.status, 0, second.stderr);
   // 'base' is identical in both recipes (no edits): its 4 images are rightly kept.

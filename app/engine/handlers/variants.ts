@@ -31,6 +31,6 @@ export const variantHandlers: AreaHandlers<'variants.render'> = {
       ? renderVariantsOnFarm(farm, gen, recipe, used, out, { ...modelLocation(gen), forced, isCancelled: () => ctx.signal.aborted, onProgress: (r) => (workers = r.workers) })
       : renderVariants(gen, recipe, used, out, { forced, references });
     const done = await driveSteps(withWorkers(job, () => workers), ctx);
-    return { out, rendered: done.rendered, reused: done.reused, replaced: done.replaced, contactSheet: new Uint8Array(readFileSync(join(out, 'contact-sheet.png'))) };
+    return { out, rendered: done.rendered, reused: done.reused, replaced: done.replaced, sheet: done.sheet, contactSheet: new Uint8Array(readFileSync(join(out, 'contact-sheet.png'))) };
   },
 };
