@@ -36,6 +36,7 @@ export function addFarmCommands(program: Command, ctx: CliContext, integer: (nam
     .option('--path-map <from=to>', "map the coordinator's generator path prefix to this machine's; repeatable", (v: string, prev: [string, string][]) => parsePathMap(v, prev, ctx.usage), [] as [string, string][])
     .option('--scratch <dir>', 'the only folder this worker writes (fetched generator files); default: a folder in the temp dir')
     .action(async (o) => {
+      ctx.onInterruptSay('stopping: the unit in hand finishes, nothing new is taken…');
       const worker = await startFarmWorker({
         url: o.farm, password: farmPassword(), name: o.name, threads: o.threads, pathMaps: o.pathMap, scratch: o.scratch ? resolve(o.scratch) : undefined,
         lockMs: Number(process.env.PLUMBLINE_FARM_LOCK_MS) || undefined,

@@ -34,8 +34,10 @@ import { farmPassword, farmSummary } from './farm-commands.ts';
 
 export interface CliContext {
   progressBar(total: number, label: string): { update(n: number, label?: string): void; stop(): void };
-  /** Aborted by Ctrl+C. */
+  /** Aborted by Ctrl+C or SIGTERM. */
   interrupt: AbortSignal;
+  /** What the first Ctrl+C or SIGTERM says it does (default: cancelling after the current batch). */
+  onInterruptSay(words: string): void;
   usage(message: string): Error;
 }
 

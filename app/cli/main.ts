@@ -24,17 +24,18 @@ export const EXIT = { ok: 0, failure: 1, invalidInput: 2, cancelled: 130 } as co
 
 /** Ctrl+C aborts this signal; running work stops at its next checkpoint. */
 const interrupt = new AbortController();
+let interruptWords = 'cancelling after the current batch…';
 process.on('SIGINT', () => {
   if (interrupt.signal.aborted) process.exit(EXIT.cancelled);
   interrupt.abort(new Error('interrupted (Ctrl+C)'));
-  process.stderr.write('\ncancelling after the current batch… (Ctrl+C again to stop now)\n');
+  process.stderr.write(`\n${interruptWords} (Ctrl+C again to stop now)\n`);
 });
 // SIGTERM (timeout, a job scheduler, CI) is a cancel too: a farm run's units are withdrawn and its
 // record closed, as on Ctrl+C, instead of a run left "running" with units queued for nobody.
 process.on('SIGTERM', () => {
   if (interrupt.signal.aborted) process.exit(EXIT.cancelled);
   interrupt.abort(new Error('terminated (SIGTERM)'));
-  process.stderr.write('\nterminated: cancelling after the current batch… (SIGTERM again to stop now)\n');
+  process.stderr.write(`\nterminated: ${interruptWords} (SIGTERM again to stop now)\n`);
 });
 
 /** Option parsers carry the range they accept, so --help states exactly what is accepted. */
@@ -152,7 +153,7 @@ export function buildProgram(): Command {
         await gen.dispose();
       }
     });
-  const ctx = { progressBar, interrupt: interrupt.signal, usage: (m: string) => new UsageError(m) };
+  const ctx = { progressBar, interrupt: interrupt.signal, usage: (m: string) => new UsageError(m), onInterruptSay: (words: string) => void (interruptWords = words) };
   addLabCommands(program, ctx, number, integer);
   addPackCommands(program, ctx, number);
   addLocateCommand(program, ctx, integer);
