@@ -271,7 +271,7 @@ export function addPackCommands(program: Command, ctx: CliContext, number: (n: s
             : renderVariants(gen, recipe, dirs, resolve(o.out), { force, references });
           const done = await runCliJob(ctx, workspace, 'variants', 'stopped; run the same command again to resume', (job) => driveSteps(steps, job));
           if (progress) process.stderr.write(farmSummary(progress));
-          if (done) process.stdout.write(`${recipe.name}: ${done.rendered} rendered${done.replaced ? ` (${done.replaced} replaced: ${replacedText(done.replacedWhy)})` : ''}, ${done.reused} kept from an earlier run; manifest.json and contact-sheet.png${done.sheet.shown < done.sheet.of ? ` (the sheet shows the first ${done.sheet.shown} of ${done.sheet.of} seeds and references)` : ''} in ${resolve(o.out)}\n`);
+          if (done) process.stdout.write(`${recipe.name}: ${done.rendered} rendered${done.replaced ? ` (${done.replaced} replaced: ${replacedText(done.replacedWhy)})` : ''}, ${done.reused} kept from an earlier run; manifest.json and contact-sheet.png${done.sheet.shown < done.sheet.of ? ` (the sheet shows the first ${done.sheet.shown} of ${done.sheet.of} ${done.sheet.what})` : ''} in ${resolve(o.out)}\n`);
         } finally {
           await farm?.close();
         }

@@ -166,8 +166,8 @@ export interface VariantSetResult {
    * `altered`, the file no longer matched its recorded SHA-256.
    */
   replacedWhy: { changed: number; unlisted: number; altered: number };
-  /** How many of the set's columns (seeds and references) the contact sheet shows: up to SHEET_COLUMNS. */
-  sheet: { shown: number; of: number };
+  /** How many of the set's columns (seeds, and references if any) the contact sheet shows: up to SHEET_COLUMNS. */
+  sheet: { shown: number; of: number; what: 'seeds' | 'seeds and references' };
 }
 
 /** The CLI's words for VariantSetResult.replacedWhy: "64 not yet in the manifest when an earlier run stopped". */
@@ -373,7 +373,7 @@ export async function* runVariantSet(
   writeManifest(true);
   const onSheetColumns = sheetColumns(columns);
   writeFileAtomic(join(out, 'contact-sheet.png'), encodePng(contactSheet(recipe, onSheetColumns, thumbs)));
-  return { manifest: JSON.parse(readFileSync(manifestFile, 'utf8')), rendered, reused, replaced, replacedWhy, sheet: { shown: onSheetColumns.length, of: columns.length } };
+  return { manifest: JSON.parse(readFileSync(manifestFile, 'utf8')), rendered, reused, replaced, replacedWhy, sheet: { shown: onSheetColumns.length, of: columns.length, what: refs.length ? 'seeds and references' : 'seeds' } };
 }
 
 const sha = (b: Uint8Array) => createHash('sha256').update(b).digest('hex');

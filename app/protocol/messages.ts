@@ -360,7 +360,7 @@ export const methods = {
     out: z.string().min(1),
     /** Forces settings the use rules refuse (unapproved, rejected, outside the safe range); recorded in the manifest. */
     forceReason: reason.optional(),
-  }), z.object({ out: z.string(), rendered: z.number(), reused: z.number(), replaced: z.number().optional(), contactSheet: bytes, sheet: z.object({ shown: z.number(), of: z.number() }).optional() })),
+  }), z.object({ out: z.string(), rendered: z.number(), reused: z.number(), replaced: z.number().optional(), contactSheet: bytes, sheet: z.object({ shown: z.number(), of: z.number(), what: z.string() }).optional() })),
   /** `out` is the absolute path the user chose; an existing file is replaced only with `overwrite`. */
   'pack.build': declare('control', z.object({ out: z.string().min(1), overwrite: z.boolean().optional() }), z.object({ file: z.string(), directions: z.array(z.string()), skipped: z.array(z.string()), bytes: z.number() })),
   /** Finds the latent of a reference image (docs/locate.md); progress plus locate.preview events. */

@@ -51,7 +51,7 @@ test('a variant set on two farm workers equals the one-machine set byte for byte
   assert.equal(farm.status, 0, farm.stderr);
   assert.match(farm.stdout, /160 rendered, 0 kept/);
   // 80 seeds: the contact sheet shows 8 columns, and the summary says so.
-  assert.match(farm.stdout, /contact-sheet\.png \(the sheet shows the first 8 of 80 seeds and references\)/);
+  assert.match(farm.stdout, /contact-sheet\.png \(the sheet shows the first 8 of 80 seeds\)/);
   const a = files(join(dir, 'local'));
   assert.deepEqual(files(join(dir, 'farm')), a);
   assert.equal(a.length, 161); // 160 images and the contact sheet

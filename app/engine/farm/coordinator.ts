@@ -267,6 +267,10 @@ export class Farm {
           await accept(unit, parsed.data);
           finished.add(id);
           const name = (parsed.data as { worker?: string }).worker ?? by;
+          // A unit can leave a dead worker and finish on another between two polls (a fast unit): say so here too.
+          const before = holders.get(id);
+          if (before !== undefined && before !== name) o.onNote?.(`unit ${unit.name} left worker ${before} (it stopped, stalled or failed the attempt); finished on worker ${name}`);
+          holders.delete(id);
           const w = workers.get(name) ?? { worker: name, units: 0, images: 0, seconds: 0, imagesPerSecond: 0, busy: null };
           w.units++;
           w.images += images;

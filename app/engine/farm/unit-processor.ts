@@ -65,7 +65,8 @@ function channelGone(err: unknown): boolean {
 
 const settings: WorkerSettings = JSON.parse(process.env[WORKER_SETTINGS_ENV] ?? 'null') ?? { name: hostname(), threads: 1, url: '', scratch: '', pathMaps: [] };
 let redis: Redis | null = null;
-const connection = () => (redis ??= new Redis(redisOptions(parseFarmUrl(settings.url, settings.password), true)));
+// Its errors (Redis away) surface as failed commands, and the worker process says them once a minute; unhandled, ioredis printed each retry with a stack.
+const connection = () => (redis ??= new Redis(redisOptions(parseFarmUrl(settings.url, settings.password), true)).on('error', () => {}));
 let loaded: { fingerprint: string; gen: Generator } | null = null;
 
 export function mapPath(path: string, maps: [string, string][]): string {

@@ -570,7 +570,7 @@ export class Lab {
         return;
       }
       this.contactSheet = this.thumbUrl(r.contactSheet);
-      const sheet = r.sheet && r.sheet.shown < r.sheet.of ? `; the contact sheet shows the first ${r.sheet.shown} of ${r.sheet.of} seeds and references` : '';
+      const sheet = r.sheet && r.sheet.shown < r.sheet.of ? `; the contact sheet shows the first ${r.sheet.shown} of ${r.sheet.of} ${r.sheet.what}` : '';
       this.variantSummary = `${r.rendered} rendered, ${r.reused} kept from an earlier run, in ${r.out}${force ? ` (forced: ${this.forceReason})` : ''}${sheet}`;
     } catch (err) {
       // Refusals by the use rules are shown beside the button with the way to force them; any
