@@ -181,6 +181,7 @@ export class Farm {
       (tree.children ?? []).forEach((c, k) => byId.set(c.job.id!, o.units[k]));
       let lastContact = Date.now();
       let cancelAt = 0;
+      const silenceTooLong = (err: unknown) => new PlumblineError('farm', `lost the farm's Redis at ${describe(this.address)} for ${REDIS_SILENCE_LIMIT_MS / 1000} s: ${(err as Error).message}`);
       while (finished.size < byId.size) {
         await new Promise((r) => setTimeout(r, POLL_MS));
         if (publishError) throw new PlumblineError('farm', `run ${runId}: publishing the generator's files through Redis failed: ${(publishError as Error).message}`);
@@ -221,7 +222,7 @@ export class Farm {
           if (!alive) throw new PlumblineError('farm', `the farm's Redis at ${describe(this.address)} no longer holds run ${runId} (it restarted without persistence, or was flushed); nothing from this run was kept — run it again`);
         } catch (err) {
           if (err instanceof PlumblineError) throw err;
-          if (Date.now() - lastContact > REDIS_SILENCE_LIMIT_MS) throw new PlumblineError('farm', `lost the farm's Redis at ${describe(this.address)} for ${REDIS_SILENCE_LIMIT_MS / 1000} s: ${(err as Error).message}`);
+          if (Date.now() - lastContact > REDIS_SILENCE_LIMIT_MS) throw silenceTooLong(err);
           continue;
         }
         // Who holds a unit now is read afresh each poll: a worker that died holding one is not shown busy.
@@ -259,7 +260,7 @@ export class Farm {
           } catch (err) {
             // Redis away while fetching the unit's bytes is no fault of the result: read it again at the next poll.
             if (isConnectionError(err)) {
-              if (Date.now() - lastContact > REDIS_SILENCE_LIMIT_MS) throw new PlumblineError('farm', `lost the farm's Redis at ${describe(this.address)} for ${REDIS_SILENCE_LIMIT_MS / 1000} s: ${(err as Error).message}`);
+              if (Date.now() - lastContact > REDIS_SILENCE_LIMIT_MS) throw silenceTooLong(err);
               break;
             }
             throw new PlumblineError('farm', `result of unit ${unit.name} from worker ${(parsed.data as { worker?: string }).worker ?? by} rejected: ${(err as Error).message}`);

@@ -7,7 +7,7 @@ import { fileURLToPath } from 'node:url';
 import { mkdirSync } from 'node:fs';
 import { Worker, type Job } from 'bullmq';
 import { Redis } from 'ioredis';
-import { describe, parseFarmUrl, redisOptions } from './connection.ts';
+import { describe, isConnectionError, parseFarmUrl, redisOptions } from './connection.ts';
 import { keys, UNIT_QUEUE, WORKER_HEARTBEAT_MS, type WorkerRecord } from './protocol.ts';
 import { Farm } from './coordinator.ts';
 import { WORKER_SETTINGS_ENV, type WorkerSettings } from './unit-processor.ts';
@@ -59,7 +59,7 @@ export async function startFarmWorker(o: WorkerOptions): Promise<RunningWorker> 
     const now = Date.now();
     if (now - (said.get(err.message) ?? 0) < 60_000) return;
     said.set(err.message, now);
-    log(`${name}: ${err.message}${/ECONNREFUSED|ECONNRESET|closed/.test(err.message) ? ' (Redis away; retrying until it is back)' : ''}`);
+    log(`${name}: ${err.message}${isConnectionError(err) ? ' (Redis away; retrying until it is back)' : ''}`);
   };
   const redis = new Redis(redisOptions(address, true));
   redis.on('error', calmly);
